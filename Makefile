@@ -1,0 +1,35 @@
+# The two commands a newcomer runs: `make demo` and `make test`.
+# Everything they need is installed here, into .venv, from the package registry.
+PYTHON ?= python3
+VENV ?= .venv
+PY := $(VENV)/bin/python
+STAMP := $(VENV)/.installed
+
+.PHONY: install demo test lint bench clean
+
+$(STAMP): pyproject.toml
+	test -x $(PY) || $(PYTHON) -m venv $(VENV)
+	$(PY) -m pip install --quiet --upgrade pip
+	$(PY) -m pip install --quiet -e '.[dev]'
+	touch $(STAMP)
+
+install: $(STAMP)
+
+demo: install
+	@$(VENV)/bin/loopledger run sample_results --out build; rc=$$?; \
+	 echo "loopledger exit code $$rc (0 = every test passed, 1 = a test failed, 2 = a file was invalid)"; \
+	 echo "Handbook: $(CURDIR)/build/handbook/index.html"; \
+	 test $$rc -le 1
+
+lint: install
+	$(VENV)/bin/ruff check pipeline plugins schemas tests
+	$(VENV)/bin/mypy
+
+test: lint
+	$(PY) -m pytest
+
+bench: install
+	$(PY) benchmarks/run.py
+
+clean:
+	rm -rf build dist .pytest_cache .mypy_cache .ruff_cache

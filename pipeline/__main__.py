@@ -1,0 +1,3 @@
+from loopledger.cli import main
+
+raise SystemExit(main())

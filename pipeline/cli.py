@@ -1,0 +1,75 @@
+"""The ``loopledger`` command: subcommands, one top-level error handler, exit codes.
+
+Exit codes: 0 every file valid and every test passed; 1 a test failed; 2 a
+file was invalid (the rest were still processed and published); 3 a usage or
+configuration error; 4 an internal error (a bug in loopledger or a plugin:
+please report it with the traceback).
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from collections.abc import Sequence
+
+from loopledger import __version__
+
+EXIT_USAGE = 3
+EXIT_INTERNAL = 4
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message: str) -> None:  # type: ignore[override]
+        self.print_usage(sys.stderr)
+        sys.stderr.write(f"loopledger: error: {message}\n")
+        raise SystemExit(EXIT_USAGE)
+
+
+def build_parser() -> tuple[argparse.ArgumentParser, dict[str, object]]:
+    from loopledger.commands import check, run
+    from loopledger.host import get_plugin_manager
+
+    parser = _Parser(prog="loopledger", description="Judge transducer test results and publish the evidence.")
+    parser.add_argument("--version", action="version", version=f"loopledger {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    runners: dict[str, object] = {}
+    for name, module, text in (("run", run, "judge an evidence folder, write data/ and the handbook"),
+                               ("check", check, "judge named result files; print path:line: messages")):
+        module.add_arguments(sub.add_parser(name, help=text, description=text))
+        runners[name] = module.main
+    for commands in get_plugin_manager().hook.ll_cli_commands():
+        for command in commands or []:
+            p = sub.add_parser(command.name, help=command.help, description=command.help)
+            command.add_arguments(p)
+            runners[command.name] = command.run
+    return parser, runners
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    from loopledger.config import ConfigError
+
+    parser, runners = build_parser()
+    args = parser.parse_args(argv)
+    if not args.command:
+        parser.print_help()
+        return EXIT_USAGE
+    try:
+        return int(runners[args.command](args))  # type: ignore[operator]
+    except ConfigError as exc:
+        sys.stderr.write(f"loopledger: configuration error: {exc}\n")
+        return EXIT_USAGE
+    except KeyboardInterrupt:
+        sys.stderr.write("loopledger: interrupted; outputs already written are whole, the rest were not "
+                         "replaced\n")
+        return 130
+    except Exception:
+        import traceback
+
+        traceback.print_exc()
+        sys.stderr.write("loopledger: internal error (a bug, not a problem with your evidence); "
+                         "outputs already in place were not replaced\n")
+        return EXIT_INTERNAL
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

@@ -1,0 +1,60 @@
+"""loopledger.toml: the evidence folder's settings, with defaults."""
+
+from __future__ import annotations
+
+import datetime as dt
+import tomllib
+from pathlib import Path
+from typing import Any
+
+CONFIG_NAME = "loopledger.toml"
+
+DEFAULTS: dict[str, Any] = {
+    "as_of": None,  # date "overdue" is judged on; None means today
+    "decision": {"rule": "simple"},
+    "limits": {
+        "max_file_bytes": 2_000_000,  # a result file larger than this is refused unread
+        "max_points": 500,  # per test
+        "max_repeats": 100,  # repeat readings per point
+    },
+}
+
+
+class ConfigError(Exception):
+    """A problem with loopledger.toml or the command line (exit code 3)."""
+
+
+def _merge(base: dict[str, Any], extra: dict[str, Any]) -> dict[str, Any]:
+    out = dict(base)
+    for key, value in extra.items():
+        if isinstance(value, dict) and isinstance(out.get(key), dict):
+            out[key] = _merge(out[key], value)
+        else:
+            out[key] = value
+    return out
+
+
+def load_config(evidence: Path, overrides: dict[str, Any] | None = None) -> dict[str, Any]:
+    """Read ``loopledger.toml`` from the evidence folder (if any) over the defaults."""
+    config = dict(DEFAULTS)
+    path = evidence / CONFIG_NAME
+    if path.is_file():
+        try:
+            config = _merge(config, tomllib.loads(path.read_text(encoding="utf-8-sig")))
+        except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+            raise ConfigError(f"{CONFIG_NAME}: {exc}") from exc
+    if overrides:
+        config = _merge(config, overrides)
+    as_of = config.get("as_of")
+    if as_of is None:
+        config["as_of"] = dt.date.today()
+    elif isinstance(as_of, dt.datetime):
+        config["as_of"] = as_of.date()
+    elif isinstance(as_of, str):
+        try:
+            config["as_of"] = dt.date.fromisoformat(as_of)
+        except ValueError as exc:
+            raise ConfigError(f"{CONFIG_NAME}: as_of '{as_of}' is not a date (YYYY-MM-DD)") from exc
+    elif not isinstance(as_of, dt.date):
+        raise ConfigError(f"{CONFIG_NAME}: as_of must be a date (YYYY-MM-DD)")
+    return config

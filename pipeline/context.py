@@ -1,0 +1,66 @@
+"""The run context: one columnar table of all points, the registries and the findings."""
+
+from __future__ import annotations
+
+import datetime as dt
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import pandas as pd
+
+from loopledger.findings import Finding
+
+if TYPE_CHECKING:
+    import pluggy
+
+    from loopledger.contracts import DecisionRule, ReadingMethod, SignalType
+
+
+@dataclass
+class RunContext:
+    """Everything a stage sees.
+
+    - ``points``: one row per reading point of every valid test, with the test's
+      header fields and the asset's registry fields joined on;
+    - ``tests``: one row per result file (invalid ones included, ``valid`` False);
+    - ``assets``: assets.csv as validated, indexed by ``asset``;
+    - ``instruments`` / ``ranges``: instruments.yaml, one row per instrument and
+      one row per meter range;
+    - ``extras``: what a stage leaves for later stages and pages (e.g. budgets).
+    """
+
+    evidence: Path
+    config: dict[str, Any]
+    pm: pluggy.PluginManager
+    assets: pd.DataFrame = field(default_factory=pd.DataFrame)
+    instruments: pd.DataFrame = field(default_factory=pd.DataFrame)
+    ranges: pd.DataFrame = field(default_factory=pd.DataFrame)
+    tests: pd.DataFrame = field(default_factory=pd.DataFrame)
+    points: pd.DataFrame = field(default_factory=pd.DataFrame)
+    findings: list[Finding] = field(default_factory=list)
+    extras: dict[str, Any] = field(default_factory=dict)
+    signal_types: dict[str, SignalType] = field(default_factory=dict)
+    methods: dict[str, ReadingMethod] = field(default_factory=dict)
+    decision_rules: dict[str, DecisionRule] = field(default_factory=dict)
+    raw_files: dict[str, bytes] = field(default_factory=dict)
+
+    @property
+    def as_of(self) -> dt.date:
+        value = self.config["as_of"]
+        assert isinstance(value, dt.date)
+        return value
+
+    def section(self, name: str) -> dict[str, Any]:
+        """This plugin's table of loopledger.toml (empty when absent)."""
+        value = self.config.get(name, {})
+        return value if isinstance(value, dict) else {}
+
+    def invalidate(self, files: set[str]) -> None:
+        """Drop the points of ``files`` and mark their tests invalid (they stay listed)."""
+        if not files:
+            return
+        if not self.tests.empty:
+            self.tests.loc[self.tests["source_file"].isin(files), "valid"] = False
+        if not self.points.empty:
+            self.points = self.points[~self.points["source_file"].isin(files)].copy()

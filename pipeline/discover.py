@@ -1,0 +1,92 @@
+"""File selection, in one place: which result files a run reads."""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+from loopledger.contracts import SourceFile
+from loopledger.findings import Finding, error, warning
+
+RESULTS_DIR = "results"
+RESULT_SUFFIXES = (".yaml", ".yml", ".csv", ".xlsx")
+
+
+def _bad_name(rel: str) -> bool:
+    return any(ord(ch) < 32 or ord(ch) == 127 for ch in rel)
+
+
+def discover(evidence: Path) -> tuple[list[SourceFile], list[Finding]]:
+    """Every result file under ``evidence/results`` at any depth, sorted.
+
+    Symbolic links are never followed (a link could lead outside the evidence
+    folder); each one is reported. Hidden files and folders are skipped.
+    """
+    root = evidence / RESULTS_DIR
+    findings: list[Finding] = []
+    if not root.is_dir():
+        return [], [warning(f"no '{RESULTS_DIR}/' folder in the evidence folder", file=RESULTS_DIR)]
+    found: list[SourceFile] = []
+    for dirpath, dirnames, filenames in os.walk(root, followlinks=False):
+        here = Path(dirpath)
+        for name in list(dirnames):
+            if name.startswith("."):
+                dirnames.remove(name)
+            elif (here / name).is_symlink():
+                dirnames.remove(name)
+                rel = (here / name).relative_to(evidence).as_posix()
+                findings.append(error("symbolic link to a folder is not followed; copy the files in instead",
+                                      file=rel, code="symlink"))
+        for name in filenames:
+            if name.startswith("."):
+                continue
+            path = here / name
+            rel = path.relative_to(evidence).as_posix()
+            if path.is_symlink():
+                findings.append(error("symbolic link is not followed; copy the file in instead",
+                                      file=rel, code="symlink"))
+                continue
+            if path.suffix.lower() not in RESULT_SUFFIXES:
+                findings.append(warning(f"not a result file (expected one of {', '.join(RESULT_SUFFIXES)}); "
+                                        "skipped", file=rel, code="skipped"))
+                continue
+            if _bad_name(rel):
+                findings.append(error("file name contains control characters; rename it", file=repr(rel)[1:-1],
+                                      code="file-name"))
+                continue
+            found.append(SourceFile(rel, path))
+    found.sort(key=lambda s: s.rel)
+    return found, findings
+
+
+def select(evidence: Path, paths: list[Path]) -> tuple[list[SourceFile], list[Finding]]:
+    """The result files named on a command line (files, or folders searched like ``results/``)."""
+    findings: list[Finding] = []
+    chosen: dict[str, SourceFile] = {}
+    base = evidence.resolve()
+    for given in paths:
+        resolved = given.resolve() if not given.is_symlink() else given.absolute()
+        try:
+            rel_path = resolved.relative_to(base)
+        except ValueError:
+            findings.append(error(f"'{given}' is not inside the evidence folder '{evidence}'", file=str(given)))
+            continue
+        if given.is_symlink():
+            findings.append(error("symbolic link is not followed", file=rel_path.as_posix(), code="symlink"))
+        elif given.is_dir():
+            for sub, _ in [(given, None)]:
+                for dirpath, dirnames, filenames in os.walk(sub, followlinks=False):
+                    dirnames[:] = [d for d in dirnames if not d.startswith(".")
+                                   and not (Path(dirpath) / d).is_symlink()]
+                    for name in filenames:
+                        p = Path(dirpath) / name
+                        if name.startswith(".") or p.suffix.lower() not in RESULT_SUFFIXES or p.is_symlink():
+                            continue
+                        rel = p.resolve().relative_to(base).as_posix()
+                        chosen[rel] = SourceFile(rel, p)
+        elif given.is_file():
+            rel = rel_path.as_posix()
+            chosen[rel] = SourceFile(rel, given)
+        else:
+            findings.append(error("no such file", file=str(given)))
+    return sorted(chosen.values(), key=lambda s: s.rel), findings

@@ -1,0 +1,147 @@
+"""Every hook loopledger calls, grouped by phase, in the order a run calls them.
+
+Hooks are called with keyword arguments; an implementation may accept fewer
+arguments than the specification names, so these specifications can grow
+without breaking plugins. All names carry the ``ll_`` prefix.
+
+Stage hooks (``ll_check`` … ``ll_history``) receive the :class:`RunContext`,
+add columns to ``ctx.points`` / ``ctx.tests`` (vectorised over the whole
+table, never a loop over files) and return a list of findings. After each
+stage the engine drops the points of every file that got an ``error``.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import pluggy
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+    from loopledger.context import RunContext
+    from loopledger.contracts import Command, DecisionRule, ReadingMethod, ResultRead, Section, SignalType
+    from loopledger.findings import Finding
+
+hookspec = pluggy.HookspecMarker("loopledger")
+hookimpl = pluggy.HookimplMarker("loopledger")
+
+
+# --- set-up: what the plugins bring ------------------------------------------------
+
+@hookspec
+def ll_cli_commands() -> list[Command]:
+    """Subcommands this plugin adds to ``loopledger`` (called once when the CLI starts).
+
+    :return: a list of :class:`Command`; names must be unique across plugins.
+    """
+
+
+@hookspec
+def ll_signal_types() -> list[SignalType]:
+    """Signal types this plugin handles (the ``signal`` column of assets.csv).
+
+    :return: a list of :class:`SignalType` instances.
+    """
+
+
+@hookspec
+def ll_reading_methods() -> list[ReadingMethod]:
+    """Ways of reading the output (the ``method`` field of a result file).
+
+    :return: a list of :class:`ReadingMethod` instances.
+    """
+
+
+@hookspec
+def ll_decision_rules() -> list[DecisionRule]:
+    """Decision rules this plugin offers (chosen by ``[decision] rule`` in loopledger.toml).
+
+    :return: a list of :class:`DecisionRule` instances.
+    """
+
+
+@hookspec
+def ll_configure(config: dict[str, Any]) -> list[Finding] | None:
+    """Check this plugin's section of loopledger.toml before anything is read.
+
+    :param config: the whole parsed loopledger.toml (with defaults filled in).
+    :return: findings; an ``error`` here is a configuration error (exit code 3).
+    """
+
+
+# --- load ---------------------------------------------------------------------------
+
+@hookspec(firstresult=True)
+def ll_read_result(path: Path, rel: str, data: bytes) -> ResultRead | None:
+    """Read one result file. Stops at first non-None result.
+
+    :param path: the file on disk (already read into ``data``; do not reopen it).
+    :param rel: its path relative to the evidence folder, for findings.
+    :param data: its bytes.
+    :return: a :class:`ResultRead`, or None when the file's format is not this plugin's.
+    """
+
+
+# --- stages, in run order -----------------------------------------------------------
+
+@hookspec
+def ll_check(ctx: RunContext) -> list[Finding] | None:
+    """Schema check: validate the tests and points tables and parse quantities.
+
+    Runs first. Adds ``input_value``, ``input_written_unit``, ``reading``, ``reading_unit``,
+    ``n_readings``, ``reading_sd``, ``reading_half_spread`` to ``ctx.points``.
+    """
+
+
+@hookspec
+def ll_expected(ctx: RunContext) -> list[Finding] | None:
+    """Expected output: fill ``input_pct``, ``expected``, ``injected``, ``sensitivity``."""
+
+
+@hookspec
+def ll_measured(ctx: RunContext) -> list[Finding] | None:
+    """Measured output: fill ``measured`` (output units) from each test's reading method."""
+
+
+@hookspec
+def ll_uncertainty(ctx: RunContext) -> list[Finding] | None:
+    """Measurement uncertainty: add ``u``, ``U``, ``k`` and friends per point (optional stage)."""
+
+
+@hookspec
+def ll_judge(ctx: RunContext) -> list[Finding] | None:
+    """Error and tolerance judgement: ``error``, ``mpe``, ``decision`` per point; verdicts per test."""
+
+
+@hookspec
+def ll_analyse(ctx: RunContext) -> list[Finding] | None:
+    """Per-test analyses after judgement (burden, signal integrity, fault signatures, linearity)."""
+
+
+@hookspec
+def ll_history(ctx: RunContext) -> list[Finding] | None:
+    """Per-asset history across tests (drift, intervals, traceability); fills ``ctx.assets_out``."""
+
+
+# --- outputs ------------------------------------------------------------------------
+
+@hookspec
+def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame] | None:
+    """Tables to write under ``OUT/data/`` as CSV, name -> frame (``points`` → points.csv)."""
+
+
+@hookspec
+def ll_publish(ctx: RunContext, out: Path) -> list[Finding] | None:
+    """Write the handbook under ``out / "handbook"``. Runs last, only for ``loopledger run``."""
+
+
+@hookspec
+def ll_test_sections(ctx: RunContext, test: str) -> list[Section] | None:
+    """Blocks to show on the evidence page of one test (``test`` is its id)."""
+
+
+@hookspec
+def ll_asset_sections(ctx: RunContext, asset: str) -> list[Section] | None:
+    """Blocks to show on the page of one asset."""

@@ -1,0 +1,77 @@
+"""Read every selected result file into two tables: tests (one row per file) and points."""
+
+from __future__ import annotations
+
+import hashlib
+from collections.abc import Callable, Iterable
+from typing import Any
+
+import pandas as pd
+
+from loopledger.contracts import SourceFile
+from loopledger.findings import Finding, error
+
+HEADER_FIELDS = ("asset", "date", "technician", "connection", "method", "injection", "ambient_c",
+                 "source", "meter", "shunt", "remarks")
+POINT_FIELDS = ("input", "reading", "readings", "reading_min", "reading_max", "direction")
+TEST_COLUMNS = ("test", "source_file", "sha256", "valid", *HEADER_FIELDS)
+POINT_COLUMNS = ("test", "source_file", "line", "phase", "point", *POINT_FIELDS)
+
+
+def test_id(rel: str) -> str:
+    """A test is named by its file's path under results/, without the suffix."""
+    stem = rel.split("/", 1)[1] if rel.startswith("results/") else rel
+    return stem.rsplit(".", 1)[0] if "." in stem.rsplit("/", 1)[-1] else stem
+
+
+def read_files(ctx: Any, files: Iterable[SourceFile],
+               progress: Callable[[int], None] | None = None) -> list[Finding]:
+    """Fill ``ctx.tests`` and ``ctx.points`` from ``files``; return the findings met on the way."""
+    limits = ctx.config["limits"]
+    findings: list[Finding] = []
+    tests: list[dict[str, Any]] = []
+    points: list[dict[str, Any]] = []
+    header_lines: dict[str, dict[str, int]] = {}
+    for source in files:
+        row: dict[str, Any] = {"test": test_id(source.rel), "source_file": source.rel, "sha256": "",
+                               "valid": True}
+        tests.append(row)
+        if progress:
+            progress(1)
+        try:
+            size = source.path.stat().st_size
+            if size > limits["max_file_bytes"]:
+                raise ValueError(f"file is {size:,} bytes, over the limit of {limits['max_file_bytes']:,} "
+                                 "(limits.max_file_bytes in loopledger.toml)")
+            data = source.path.read_bytes()
+        except (OSError, ValueError) as exc:
+            findings.append(error(f"cannot read: {exc}", file=source.rel, code="unreadable"))
+            row["valid"] = False
+            continue
+        row["sha256"] = hashlib.sha256(data).hexdigest()
+        ctx.raw_files[source.rel] = data
+        read = ctx.pm.hook.ll_read_result(path=source.path, rel=source.rel, data=data)
+        if read is None:
+            findings.append(error("no plugin reads this kind of file", file=source.rel, code="format"))
+            row["valid"] = False
+            continue
+        findings.extend(read.findings)
+        if any(f.severity == "error" for f in read.findings):
+            row["valid"] = False
+        for name in HEADER_FIELDS:
+            row[name] = read.header.get(name)
+        header_lines[source.rel] = read.header_lines
+        if len(read.points) > limits["max_points"]:
+            findings.append(error(f"{len(read.points)} points is over the limit of {limits['max_points']} "
+                                  "(limits.max_points)", file=source.rel, code="too-many"))
+            row["valid"] = False
+            continue
+        for point in read.points:
+            points.append({"test": row["test"], "source_file": source.rel,
+                           **{k: point.get(k) for k in ("line", "phase", "point", *POINT_FIELDS)}})
+    ctx.tests = pd.DataFrame(tests, columns=list(TEST_COLUMNS))
+    ctx.points = pd.DataFrame(points, columns=list(POINT_COLUMNS))
+    ctx.extras["header_lines"] = header_lines
+    bad = set(ctx.tests.loc[~ctx.tests["valid"].astype(bool), "source_file"])
+    ctx.points = ctx.points[~ctx.points["source_file"].isin(bad)].reset_index(drop=True)
+    return findings

@@ -1,0 +1,97 @@
+"""Terminal output: the run summary (rich) and the plain pre-commit style lines."""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from typing import TextIO
+
+from rich.console import Console
+from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+from rich.table import Table
+
+from loopledger.context import RunContext
+from loopledger.findings import Finding
+
+
+def progress_factory(console: Console, threshold: int = 200) -> Callable[[int, int], Callable[[int], None]]:
+    """A progress bar for reading many files (only on a terminal, only past ``threshold`` files)."""
+    state: dict[str, Progress] = {}
+
+    def start(total: int, _: int) -> Callable[[int], None]:
+        if total < threshold or not console.is_terminal:
+            return lambda n: None
+        bar = Progress(TextColumn("reading result files"), BarColumn(), MofNCompleteColumn(),
+                       TimeElapsedColumn(), console=console, transient=True)
+        task = bar.add_task("read", total=total)
+        bar.start()
+        state["bar"] = bar
+        done = {"n": 0}
+
+        def tick(n: int) -> None:
+            done["n"] += n
+            bar.advance(task, n)
+            if done["n"] >= total:
+                bar.stop()
+        return tick
+    return start
+
+
+def point_findings(ctx: RunContext) -> list[Finding]:
+    """The judgement as findings: failing points, as errors in the final phase, warnings if later adjusted."""
+    pts = ctx.points
+    if pts.empty or "decision" not in pts:
+        return []
+    tests = ctx.tests.set_index("test")
+    out = []
+    failing = pts[pts["decision"] != "pass"]
+    for row in failing.itertuples():
+        adjusted = row.phase == "as_found" and tests.at[row.test, "as_left"] == "pass"
+        severity = "warning" if adjusted or row.decision == "conditional-pass" else "error"
+        note = " (adjusted; as-left passes)" if adjusted else ""
+        out.append(Finding(severity, f"{row.decision}: error {row.error:+.4g} {row.output_unit} "
+                           f"({row.error_pct_span:+.3g} % of span) against MPE ±{row.mpe:.4g} "
+                           f"{row.output_unit}{note}", file=row.source_file, line=int(row.line),
+                           point=f"{row.phase} #{row.point}", code="judgement"))
+    return out
+
+
+def print_lines(findings: list[Finding], stream: TextIO) -> None:
+    for f in findings:
+        stream.write(f.format() + "\n")
+
+
+def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None:
+    tests = ctx.tests
+    counts = tests["verdict"].value_counts().to_dict() if not tests.empty else {}
+    n_assets = tests.loc[tests["valid"].astype(bool), "asset"].nunique() if not tests.empty else 0
+    console.print(f"[bold]loopledger[/] read {len(tests)} result files for {n_assets} assets "
+                  f"(judged on {ctx.as_of.isoformat()}, rule '{ctx.section('decision').get('rule', 'simple')}')")
+    line = ", ".join(f"{counts.get(v, 0)} {v}" for v in ("pass", "adjusted", "fail", "invalid"))
+    console.print(f"  tests: {line}")
+    problems = tests[tests["verdict"].isin(["fail", "invalid"])]
+    if not problems.empty:
+        table = Table(title="Tests needing attention", title_justify="left", show_lines=False)
+        for col in ("verdict", "asset", "date", "file", "why"):
+            table.add_column(col)
+        errors: dict[str, str] = {}
+        for f in ctx.findings:
+            if f.severity == "error" and f.file and f.file not in errors:
+                errors[f.file] = f.message + (f" [{f.field}]" if f.field else "")
+        for row in problems.itertuples():
+            why = errors.get(row.source_file, "")
+            if row.verdict == "fail":
+                pts = ctx.points[(ctx.points["test"] == row.test) & (ctx.points["decision"] != "pass")]
+                last = pts[pts["phase"] == ("as_left" if row.as_left else "as_found")]
+                why = f"{len(last)} point(s) outside tolerance, worst {last['error_pct_span'].abs().max():.3g} % of span"
+            style = "red" if row.verdict == "fail" else "yellow"
+            table.add_row(f"[{style}]{row.verdict}[/]", str(row.asset or ""), str(row.date or ""),
+                          row.source_file, why)
+        console.print(table)
+    shown = [f for f in ctx.findings if verbose or f.severity != "note"]
+    other = [f for f in shown if f.severity == "warning" or not f.file]
+    if other:
+        console.print(f"[bold]{len(other)} warning(s) and registry finding(s):[/]")
+        for f in other[: 40 if not verbose else None]:
+            console.print("  " + f.format(), markup=False, highlight=False)
+        if len(other) > 40 and not verbose:
+            console.print(f"  … {len(other) - 40} more (use --verbose, or see data/tests.csv)")

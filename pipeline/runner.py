@@ -1,0 +1,125 @@
+"""The stage runner: load, then each stage hook in order, dropping invalid files between stages."""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import pluggy
+
+from loopledger import discover as disc
+from loopledger.config import ConfigError, load_config
+from loopledger.context import RunContext
+from loopledger.findings import Finding, sort_findings
+from loopledger.load import read_files
+from loopledger.registry import load_assets, load_instruments
+
+#: the judging stages, in the order they run
+STAGES = ("check", "expected", "measured", "uncertainty", "judge", "analyse", "history")
+
+
+@dataclass
+class RunOptions:
+    evidence: Path
+    files: list[Path] | None = None  # None: everything under results/
+    overrides: dict[str, Any] | None = None
+    progress: Callable[[int, int], Callable[[int], None]] | None = None
+
+
+def _stamp(findings: list[Finding], stage: str) -> list[Finding]:
+    from dataclasses import replace
+
+    return [f if f.stage else replace(f, stage=stage) for f in findings]
+
+
+def prepare(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
+    """Read configuration and registries and collect what the plugins bring."""
+    if not opts.evidence.is_dir():
+        raise ConfigError(f"evidence folder '{opts.evidence}' does not exist")
+    config = load_config(opts.evidence, opts.overrides)
+    ctx = RunContext(evidence=opts.evidence, config=config, pm=pm)
+    for found in pm.hook.ll_configure(config=config):
+        errors = [f for f in found or [] if f.severity == "error"]
+        if errors:
+            raise ConfigError("; ".join(f.format() for f in errors))
+    ctx.signal_types = _named(pm.hook.ll_signal_types(), "signal type")
+    ctx.methods = _named(pm.hook.ll_reading_methods(), "reading method")
+    ctx.decision_rules = _named(pm.hook.ll_decision_rules(), "decision rule")
+    rule = str(ctx.section("decision").get("rule", "simple"))
+    if rule not in ctx.decision_rules:
+        raise ConfigError(f"loopledger.toml: unknown decision rule '{rule}' "
+                          f"(known: {', '.join(sorted(ctx.decision_rules))})")
+    ctx.assets, found = load_assets(opts.evidence)
+    ctx.findings += _stamp(found, "registry")
+    ctx.instruments, ctx.ranges, found = load_instruments(opts.evidence)
+    ctx.findings += _stamp(found, "registry")
+    return ctx
+
+
+def _named(groups: list[list[Any]], what: str) -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    for group in groups:
+        for item in group or []:
+            if item.name in out:
+                raise ConfigError(f"two plugins provide the {what} '{item.name}'")
+            out[item.name] = item
+    return out
+
+
+def run_stages(ctx: RunContext) -> None:
+    """Call each stage hook over the whole table; drop the points of files that got errors."""
+    for stage in STAGES:
+        if ctx.points.empty and stage != "history":
+            continue
+        hook = getattr(ctx.pm.hook, f"ll_{stage}")
+        for found in hook(ctx=ctx):
+            found = _stamp(list(found or []), stage)
+            ctx.findings += found
+            ctx.invalidate({f.file for f in found if f.severity == "error" and f.file})
+    if "verdict" not in ctx.tests.columns:
+        ctx.tests["verdict"] = "invalid"
+    ctx.tests.loc[~ctx.tests["valid"].astype(bool), "verdict"] = "invalid"
+    ctx.findings = sort_findings(ctx.findings)
+
+
+def run(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
+    """Everything up to (not including) export and publication."""
+    ctx = prepare(opts, pm)
+    if opts.files is None:
+        files, found = disc.discover(opts.evidence)
+    else:
+        files, found = disc.select(opts.evidence, opts.files)
+    ctx.findings += _stamp(found, "discover")
+    tick = opts.progress(len(files), 0) if opts.progress else None
+    ctx.findings += _stamp(read_files(ctx, files, tick), "load")
+    run_stages(ctx)
+    return ctx
+
+
+def export(ctx: RunContext, out: Path) -> list[Path]:
+    """Write every table the plugins export to ``out/data/NAME.csv`` (each atomically)."""
+    from loopledger.output import write_csv
+
+    written = []
+    for tables in ctx.pm.hook.ll_export_tables(ctx=ctx):
+        for name, frame in (tables or {}).items():
+            path = out / "data" / f"{name}.csv"
+            write_csv(path, frame)
+            written.append(path)
+    return written
+
+
+def publish(ctx: RunContext, out: Path) -> None:
+    for found in ctx.pm.hook.ll_publish(ctx=ctx, out=out):
+        ctx.findings += _stamp(list(found or []), "publish")
+
+
+def exit_code(ctx: RunContext) -> int:
+    """0 all valid and passing; 1 a test failed; 2 a file was invalid."""
+    if any(f.severity == "error" for f in ctx.findings):
+        return 2
+    if (ctx.tests.get("verdict") == "fail").any():
+        return 1
+    return 0

@@ -1,0 +1,68 @@
+"""Run a pandera model over a table and turn its failure cases into findings."""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Callable
+from typing import Any
+
+import pandas as pd
+
+from loopledger.findings import Finding, error
+
+_ISIN = re.compile(r"^isin\((.*)\)$")
+
+
+def describe(check: str, case: Any) -> str:
+    """A sentence for one pandera failure case."""
+    m = _ISIN.match(check)
+    if m:
+        return f"'{case}' is not one of {m.group(1)}"
+    if check == "not_nullable":
+        return "is missing"
+    if check.startswith("coerce_dtype") or check.startswith("dtype"):
+        wanted = check.split("(", 1)[-1].rstrip(")").strip("'")
+        wanted = {"float64": "a number", "int64": "a whole number", "str": "text"}.get(wanted, wanted)
+        return f"'{case}' is not {wanted}"
+    if check == "field_uniqueness" or check.startswith("unique"):
+        return f"'{case}' appears more than once"
+    if check.startswith("str_matches"):
+        return f"'{case}' has characters that are not allowed here"
+    if check == "column_in_dataframe":
+        return f"column '{case}' is missing"
+    return f"'{case}' fails the check: {check}"
+
+
+def validate(frame: pd.DataFrame, model: Any, where: Callable[[Any], dict[str, Any]],
+             ) -> tuple[pd.DataFrame, list[Finding]]:
+    """Validate ``frame`` against ``model`` lazily.
+
+    ``where(index)`` returns the finding fields (file, line, point) of a row.
+    Rows that fail are dropped from the returned (coerced) frame; every failure
+    becomes one finding naming the row and field.
+    """
+    import pandera.errors
+
+    schema = model.to_schema()
+    try:
+        return schema.validate(frame, lazy=True), []
+    except pandera.errors.SchemaErrors as exc:
+        cases = exc.failure_cases
+    findings: list[Finding] = []
+    bad_rows: set[Any] = set()
+    for case in cases.itertuples(index=False):
+        column = str(case.column) if case.column is not None and str(case.column) != "None" else ""
+        check = str(case.check)
+        index = case.index
+        if index is None or (isinstance(index, float) and pd.isna(index)):
+            findings.append(error(f"{column or 'table'} {describe(check, case.failure_case)}".strip(),
+                                  field=column, **where(None)))
+            bad_rows.update(frame.index)
+            continue
+        bad_rows.add(index)
+        findings.append(error(f"{column} {describe(check, case.failure_case)}".strip(), field=column,
+                              **where(index)))
+    kept = frame.drop(index=[i for i in bad_rows if i in frame.index])
+    if kept.empty:
+        return kept, findings
+    return schema.validate(kept, lazy=False), findings

@@ -1,0 +1,37 @@
+"""Stage 2, expected output: hand each signal type the points of its assets."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from loopledger.context import RunContext
+from loopledger.findings import Finding, error
+from loopledger.hookspecs import hookimpl
+
+
+@hookimpl
+def ll_expected(ctx: RunContext) -> list[Finding]:
+    """Evaluate every point of every signal type (the engine's expected-output stage)."""
+    return evaluate_all(ctx)
+
+
+def evaluate_all(ctx: RunContext) -> list[Finding]:
+    pts = ctx.points
+    findings: list[Finding] = []
+    for col in ("input_pct", "expected", "injected", "sensitivity"):
+        pts[col] = np.nan
+    pts["injected_unit"] = ""
+    known = ", ".join(sorted(ctx.signal_types))
+    for signal, idx in pts.groupby("signal", sort=False).groups.items():
+        handler = ctx.signal_types.get(str(signal))
+        if handler is None:
+            first = pts.loc[idx].drop_duplicates("source_file")
+            findings += [error(f"asset {r.asset} has signal '{signal}', which no plugin handles (known: {known})",
+                               file=r.source_file, field="signal") for r in first.itertuples()]
+            continue
+        frame, more = handler.evaluate(pts.loc[idx], ctx)
+        findings += more
+        for col in frame.columns:
+            pts.loc[idx, col] = frame[col]
+    ctx.points = pts
+    return findings

@@ -1,0 +1,43 @@
+"""Export: the point and test tables that OUT/data/points.csv and tests.csv are written from.
+
+Plugins add columns to the exports by appending their names to
+``ctx.extras["point_exports"]`` / ``ctx.extras["test_exports"]``.
+"""
+
+from __future__ import annotations
+
+import pandas as pd
+
+from loopledger.context import RunContext
+from loopledger.hookspecs import hookimpl
+from loopledger.schemas.points import POINT_COLUMNS, TEST_COLUMNS
+
+
+def _messages(ctx: RunContext, severity: str) -> pd.Series:
+    by_file: dict[str, list[str]] = {}
+    for f in ctx.findings:
+        if f.severity == severity and f.file:
+            text = f"line {f.line}: {f.message}" if f.line else f.message
+            by_file.setdefault(f.file, []).append(text)
+    return pd.Series({k: "; ".join(v) for k, v in by_file.items()}, dtype=object)
+
+
+def points_table(ctx: RunContext) -> pd.DataFrame:
+    extra = [c for c in ctx.extras.get("point_exports", []) if c in ctx.points.columns]
+    cols = [*POINT_COLUMNS, "acceptance_limit", "decision_rule", "source_file", "line", *extra]
+    pts = ctx.points.reindex(columns=list(dict.fromkeys(cols)))
+    return pts.sort_values(["asset", "date", "test", "phase", "point"], kind="stable")
+
+
+def tests_table(ctx: RunContext) -> pd.DataFrame:
+    extra = [c for c in ctx.extras.get("test_exports", []) if c in ctx.tests.columns]
+    tests = ctx.tests.copy()
+    tests["warnings"] = tests["source_file"].map(_messages(ctx, "warning")).fillna("")
+    tests["errors"] = tests["source_file"].map(_messages(ctx, "error")).fillna("")
+    cols = [*TEST_COLUMNS, "errors", "adjusted", "technician", "method", "connection", "decision_rule", *extra]
+    return tests.reindex(columns=list(dict.fromkeys(cols))).sort_values(["source_file"], kind="stable")
+
+
+@hookimpl
+def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
+    return {"points": points_table(ctx), "tests": tests_table(ctx)}

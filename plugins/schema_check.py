@@ -1,0 +1,237 @@
+"""Stage 1, schema check: validate headers and points, resolve registries, parse quantities.
+
+Ends by joining each test's header and its asset's registry row onto the
+points, so every later stage works on one table.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from loopledger import quantities as q
+from loopledger.context import RunContext
+from loopledger.findings import Finding, error, warning
+from loopledger.hookspecs import hookimpl
+from loopledger.validation import validate
+
+INSTRUMENT_KIND = {"source": "source", "meter": "meter", "shunt": "shunt"}
+
+
+def _header_where(ctx: RunContext, tests: pd.DataFrame, field: str | None = None):  # type: ignore[no-untyped-def]
+    lines = ctx.extras.get("header_lines", {})
+
+    def where(index: Any) -> dict[str, Any]:
+        if index is None:
+            return {}
+        rel = tests.at[index, "source_file"]
+        return {"file": rel, "line": lines.get(rel, {}).get(field or "", 0)}
+    return where
+
+
+def check_tests(ctx: RunContext) -> list[Finding]:
+    """Validate the header of every still-valid test; mark failures invalid."""
+    from loopledger.schemas.results import TestHeader
+
+    tests = ctx.tests
+    valid = tests[tests["valid"].astype(bool)].copy()
+    if valid.empty:
+        return []
+    valid["injection"] = valid["injection"].fillna("secondary")
+    valid["date"] = valid["date"].map(lambda d: d.isoformat() if isinstance(d, dt.date) else d)
+    lines = ctx.extras.get("header_lines", {})
+    for col in ("asset", "technician", "method", "connection", "source", "meter", "shunt", "remarks"):
+        valid[col] = valid[col].map(lambda v: None if v is None or (isinstance(v, float) and np.isnan(v))
+                                    else str(v))
+
+    def where(index: Any) -> dict[str, Any]:
+        return {"file": valid.at[index, "source_file"]} if index is not None else {}
+
+    checked, findings = validate(valid, TestHeader, where)
+    findings = [_with_line(f, lines) for f in findings]
+    today = dt.date.today()
+    dates = pd.to_datetime(checked["date"].astype(str).str.slice(0, 10), format="%Y-%m-%d", errors="coerce")
+    for idx in checked.index[dates.dt.date > today]:
+        rel = checked.at[idx, "source_file"]
+        findings.append(error(f"date {checked.at[idx, 'date']} is in the future", file=rel,
+                              line=lines.get(rel, {}).get("date", 0), field="date"))
+    checked["date"] = dates.dt.strftime("%Y-%m-%d")
+    findings += _check_references(ctx, checked, lines)
+    findings += _check_duplicate_files(checked, lines)
+    for col in checked.columns:
+        ctx.tests.loc[checked.index, col] = checked[col]
+    return findings
+
+
+def _with_line(f: Finding, lines: dict[str, dict[str, int]]) -> Finding:
+    line = lines.get(f.file, {}).get(f.field, 0)
+    return Finding(f.severity, f.message, f.file, line, f.field, f.point, f.code, f.stage)
+
+
+def _check_references(ctx: RunContext, tests: pd.DataFrame, lines: dict[str, dict[str, int]]) -> list[Finding]:
+    findings: list[Finding] = []
+    known_assets = set(ctx.assets.index)
+    methods = sorted(ctx.methods)
+    kinds = ctx.instruments["kind"].to_dict() if not ctx.instruments.empty else {}
+    for row in tests.itertuples():
+        rel = row.source_file
+        at = lines.get(rel, {})
+        if row.asset not in known_assets:
+            findings.append(error(f"asset '{row.asset}' is not in assets.csv", file=rel, line=at.get("asset", 0),
+                                  field="asset"))
+        if row.method not in ctx.methods:
+            findings.append(error(f"unknown method '{row.method}' (known: {', '.join(methods)})", file=rel,
+                                  line=at.get("method", 0), field="method"))
+        for role in ("source", "meter", "shunt"):
+            ident = getattr(row, role)
+            if ident is None or (isinstance(ident, float) and np.isnan(ident)):
+                continue
+            if ident not in kinds:
+                findings.append(error(f"instrument '{ident}' is not in instruments.yaml", file=rel,
+                                      line=at.get(role, 0), field=f"instruments.{role}"))
+            elif kinds[ident] != INSTRUMENT_KIND[role]:
+                findings.append(error(f"instrument '{ident}' is a {kinds[ident]}, not a {role}", file=rel,
+                                      line=at.get(role, 0), field=f"instruments.{role}"))
+        if row.method == "shunt" and (row.shunt is None or (isinstance(row.shunt, float) and np.isnan(row.shunt))):
+            findings.append(error("method 'shunt' needs instruments.shunt (the shunt's id)", file=rel,
+                                  line=at.get("method", 0), field="instruments.shunt"))
+    return findings
+
+
+def _check_duplicate_files(tests: pd.DataFrame, lines: dict[str, dict[str, int]]) -> list[Finding]:
+    findings: list[Finding] = []
+    dup = tests[tests.duplicated("sha256", keep="first") & (tests["sha256"] != "")]
+    for row in dup.itertuples():
+        first = tests.loc[(tests["sha256"] == row.sha256), "source_file"].iloc[0]
+        findings.append(error(f"same content as {first}: the same test is recorded twice", file=row.source_file,
+                              code="duplicate-test"))
+    same_day = tests[tests.duplicated(["asset", "date"], keep=False) & ~tests.index.isin(dup.index)]
+    for row in same_day.itertuples():
+        findings.append(warning(f"another result file has asset {row.asset} on {row.date}", file=row.source_file,
+                                line=lines.get(row.source_file, {}).get("date", 0), field="date"))
+    return findings
+
+
+def check_points(ctx: RunContext) -> list[Finding]:
+    """Validate raw points and parse input and readings into numbers with units."""
+    from loopledger.schemas.results import RawPoint
+
+    pts = ctx.points
+    if pts.empty:
+        return []
+
+    def where(index: Any) -> dict[str, Any]:
+        if index is None:
+            return {}
+        return {"file": pts.at[index, "source_file"], "line": int(pts.at[index, "line"]),
+                "point": f"{pts.at[index, 'phase']} #{pts.at[index, 'point']}"}
+
+    checked, findings = validate(pts, RawPoint, where)
+    bad = set(pts.index) - set(checked.index)
+    pts = pts.drop(index=list(bad))
+    parsed = q.parse_column(pts["input"].where(pts["input"].notna(), ""))
+    pts["input_value"], pts["input_written_unit"] = parsed["value"], parsed["unit"]
+    for idx, problem in parsed["problem"].dropna().items():
+        msg = "missing input" if pts.at[idx, "input"] is None else problem
+        findings.append(error(f"input: {msg}", field="input", **where(idx)))
+    findings += _parse_readings(pts, where)
+    ctx.points = pts
+    findings += _check_duplicate_points(pts, where)
+    return findings
+
+
+def _parse_readings(pts: pd.DataFrame, where) -> list[Finding]:  # type: ignore[no-untyped-def]
+    """Fill reading (mean), reading_unit, n_readings, reading_sd, reading_half_spread."""
+    findings: list[Finding] = []
+    single = pts["reading"].notna()
+    repeats = pts["readings"].notna()
+    span = pts["reading_min"].notna() | pts["reading_max"].notna()
+    given = single.astype(int) + repeats.astype(int) + span.astype(int)
+    for idx in pts.index[given != 1]:
+        what = "no reading" if given[idx] == 0 else "more than one of reading / readings / reading_min+max"
+        findings.append(error(f"{what}: give exactly one", field="reading", **where(idx)))
+    pts["reading_text"] = _reading_text(pts).astype(str)
+    raw_single = pts["reading"].copy()
+    pts["reading"] = np.nan
+    pts["reading_unit"] = ""
+    pts["n_readings"] = 1
+    pts["reading_sd"] = np.nan
+    pts["reading_half_spread"] = np.nan
+    rows = pts.index[single & (given == 1)]
+    parsed = q.parse_column(raw_single.loc[rows].rename(None)) if len(rows) else None
+    if parsed is not None:
+        pts.loc[rows, "reading"], pts.loc[rows, "reading_unit"] = parsed["value"], parsed["unit"]
+        for idx, problem in parsed["problem"].dropna().items():
+            findings.append(error(f"reading: {problem}", field="reading", **where(idx)))
+        # the column was the raw text; keep the number only where it parsed
+    rows = pts.index[repeats & (given == 1)]
+    if len(rows):
+        long = pts.loc[rows, "readings"].explode()
+        parsed = q.parse_column(long.reset_index(drop=True)).set_index(long.index)
+        for idx, problem in parsed["problem"].dropna().groupby(level=0).first().items():
+            findings.append(error(f"readings: {problem}", field="readings", **where(idx)))
+        first_unit = parsed["unit"].groupby(level=0).first()
+        values = q.convert(parsed["value"], parsed["unit"], first_unit.reindex(parsed.index))
+        stats = values.groupby(level=0).agg(["mean", "std", "count"])
+        pts.loc[stats.index, "reading"] = stats["mean"]
+        pts.loc[stats.index, "reading_sd"] = stats["std"]
+        pts.loc[stats.index, "n_readings"] = stats["count"].astype(int)
+        pts.loc[stats.index, "reading_unit"] = first_unit
+    rows = pts.index[span & (given == 1)]
+    if len(rows):
+        lo = q.parse_column(pts.loc[rows, "reading_min"].fillna(""))
+        hi = q.parse_column(pts.loc[rows, "reading_max"].fillna(""))
+        for idx in rows:
+            for name, frame in (("reading_min", lo), ("reading_max", hi)):
+                if frame.at[idx, "problem"] is not None:
+                    findings.append(error(f"{name}: {frame.at[idx, 'problem']}", field=name, **where(idx)))
+        hi_v = q.convert(hi["value"], hi["unit"], lo["unit"])
+        bad = hi_v < lo["value"]
+        for idx in bad[bad].index:
+            findings.append(error("reading_max is below reading_min", field="reading_max", **where(idx)))
+        pts.loc[rows, "reading"] = (lo["value"] + hi_v) / 2
+        pts.loc[rows, "reading_half_spread"] = (hi_v - lo["value"]) / 2
+        pts.loc[rows, "reading_unit"] = lo["unit"]
+    pts["reading"] = pts["reading"].astype(float)
+    pts["n_readings"] = pts["n_readings"].astype(int)
+    return findings
+
+
+def _reading_text(pts: pd.DataFrame) -> pd.Series:
+    """What the technician wrote, for pages: the reading, the repeats, or min … max."""
+    text = pts["reading"].where(pts["reading"].notna(), None).astype(object)
+    repeats = pts["readings"].dropna().map(lambda r: "; ".join(str(v) for v in r))
+    text = text.where(text.notna(), repeats.reindex(pts.index))
+    spread = pts["reading_min"].astype(str) + " … " + pts["reading_max"].astype(str)
+    return text.where(text.notna(), spread.where(pts["reading_min"].notna(), ""))
+
+
+def _check_duplicate_points(pts: pd.DataFrame, where) -> list[Finding]:  # type: ignore[no-untyped-def]
+    keys = ["source_file", "phase", "input_value", "input_written_unit", "direction", "reading", "reading_unit"]
+    frame = pts[keys].astype(str)
+    dup = frame.duplicated(keep="first")
+    return [error("duplicate point: same phase, input, direction and reading as an earlier point",
+                  field="input", code="duplicate-point", **where(idx)) for idx in pts.index[dup]]
+
+
+def join(ctx: RunContext) -> None:
+    """Join each point's test header and asset registry row onto the point table."""
+    header = ctx.tests[ctx.tests["valid"].astype(bool)].drop(columns=["valid"])
+    pts = ctx.points.drop(columns=[c for c in ("asset",) if c in ctx.points.columns])
+    pts = pts.merge(header, on=["test", "source_file"], how="inner", validate="many_to_one")
+    assets = ctx.assets.reset_index(drop=True)
+    pts = pts.merge(assets, on="asset", how="inner", suffixes=("", "_asset"), validate="many_to_one")
+    ctx.points = pts.reset_index(drop=True)
+
+
+@hookimpl
+def ll_check(ctx: RunContext) -> list[Finding]:
+    findings = check_tests(ctx)
+    ctx.invalidate({f.file for f in findings if f.severity == "error"})
+    findings += check_points(ctx)
+    ctx.invalidate({f.file for f in findings if f.severity == "error"})
+    join(ctx)
+    return findings

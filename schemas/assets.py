@@ -1,0 +1,65 @@
+"""assets.csv: one row per asset (the registry of devices under test)."""
+
+from __future__ import annotations
+
+import pandera.pandas as pa
+from pandera.typing import Series
+
+#: an asset id is used in page names: no path separators or control characters
+ASSET_ID = r"^[^\x00-\x1f\x7f/\\]+$"
+
+
+class AssetsFile(pa.DataFrameModel):
+    """Required columns are the device's identity, signal and ranges; the rest are optional.
+
+    - ``signal`` names the plugin that handles the device (``loopledger plugins`` lists them);
+    - ``accuracy`` is a class index (``0.5`` = ±0.5 % of output span), or ``0.08 mA``, or ``0.25 %span``;
+    - ``ct_ratio`` such as ``2000/1`` relates primary amps to the transducer's input;
+    - ``display_*`` is the control system's engineering range for the same signal;
+    - ``max_load_ohm``, ``power``, ``supply_v``, ``min_terminal_v``, ``receiver_ohm`` and the
+      ``cable_*`` columns describe the loop for the burden check;
+    - ``interval_months`` is the planned test interval.
+    """
+
+    asset: Series[str] = pa.Field(unique=True, str_matches=ASSET_ID, str_length={"min_value": 1, "max_value": 120})
+    description: Series[str] = pa.Field(nullable=True)
+    site: Series[str] = pa.Field(nullable=True)
+    area: Series[str] = pa.Field(nullable=True)
+    signal: Series[str] = pa.Field(str_length={"min_value": 1})
+    input_min: Series[float]
+    input_max: Series[float]
+    input_unit: Series[str]
+    output_min: Series[float]
+    output_max: Series[float]
+    output_unit: Series[str]
+    characteristic: Series[str] = pa.Field(isin=["linear", "sqrt"], nullable=True)
+    accuracy: Series[str]
+    ct_ratio: Series[str] = pa.Field(nullable=True, str_matches=r"^\s*\d+(\.\d+)?\s*/\s*\d+(\.\d+)?\s*$")
+    display_min: Series[float] = pa.Field(nullable=True)
+    display_max: Series[float] = pa.Field(nullable=True)
+    display_unit: Series[str] = pa.Field(nullable=True)
+    max_load_ohm: Series[float] = pa.Field(nullable=True, gt=0)
+    power: Series[str] = pa.Field(nullable=True, isin=["self", "loop"])
+    supply_v: Series[float] = pa.Field(nullable=True, gt=0)
+    min_terminal_v: Series[float] = pa.Field(nullable=True, ge=0)
+    receiver_ohm: Series[float] = pa.Field(nullable=True, ge=0)
+    cable_mm2: Series[float] = pa.Field(nullable=True, gt=0)
+    cable_awg: Series[float] = pa.Field(nullable=True)
+    cable_length_m: Series[float] = pa.Field(nullable=True, ge=0)
+    interval_months: Series[float] = pa.Field(nullable=True, gt=0)
+
+    @pa.dataframe_check(error="input_max must differ from input_min")
+    def input_range(cls, df):  # type: ignore[no-untyped-def]
+        return df["input_max"] != df["input_min"]
+
+    @pa.dataframe_check(error="output_max must differ from output_min")
+    def output_range(cls, df):  # type: ignore[no-untyped-def]
+        return df["output_max"] != df["output_min"]
+
+    class Config:
+        strict = False
+        coerce = True
+
+
+OPTIONAL = [name for name, field in AssetsFile.to_schema().columns.items() if field.nullable]
+REQUIRED = [name for name, field in AssetsFile.to_schema().columns.items() if not field.nullable]

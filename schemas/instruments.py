@@ -1,0 +1,64 @@
+"""instruments.yaml: the reference instruments, by id.
+
+```yaml
+DMM-1:
+  kind: meter                 # source | meter | shunt
+  description: Handheld multimeter
+  serial: "4417021"
+  calibrated: 2026-01-12
+  due: 2027-01-12
+  ranges:                     # meters: one entry per range; the unit says the function
+    - {range: 20 mA, accuracy: 0.05 %rdg + 2 digits, resolution: 0.001 mA, burden: 1.8 mV/mA}
+    - {range: 2 V,   accuracy: 0.025 %rdg + 2 digits, resolution: 0.0001 V}
+INJ-1:
+  kind: source
+  range: 5 A
+  accuracy: 0.1 %rdg + 0.05 %range
+SH-100:
+  kind: shunt
+  resistance: 100 ohm
+  tolerance: 0.01 %
+  tempco: 5 ppm/K
+  reference_temperature: 23 degC
+```
+"""
+
+from __future__ import annotations
+
+import pandera.pandas as pa
+from pandera.typing import Series
+
+
+class InstrumentsTable(pa.DataFrameModel):
+    """One row per instrument (instruments.yaml flattened)."""
+
+    instrument: Series[str] = pa.Field(unique=True, str_matches=r"^[^\x00-\x1f\x7f/\\]+$")
+    kind: Series[str] = pa.Field(isin=["source", "meter", "shunt"])
+    description: Series[str] = pa.Field(nullable=True)
+    serial: Series[str] = pa.Field(nullable=True)
+    calibrated: Series[pa.DateTime] = pa.Field(nullable=True)
+    due: Series[pa.DateTime] = pa.Field(nullable=True)
+    range: Series[str] = pa.Field(nullable=True)
+    accuracy: Series[str] = pa.Field(nullable=True)
+    resistance: Series[str] = pa.Field(nullable=True)
+    tolerance: Series[str] = pa.Field(nullable=True)
+    tempco: Series[str] = pa.Field(nullable=True)
+    reference_temperature: Series[str] = pa.Field(nullable=True)
+
+    class Config:
+        strict = False
+        coerce = True
+
+
+class MeterRanges(pa.DataFrameModel):
+    """One row per meter range."""
+
+    instrument: Series[str]
+    range: Series[str]
+    accuracy: Series[str] = pa.Field(nullable=True)
+    resolution: Series[str] = pa.Field(nullable=True)
+    burden: Series[str] = pa.Field(nullable=True)
+
+    class Config:
+        strict = False
+        coerce = True

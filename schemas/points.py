@@ -1,0 +1,51 @@
+"""The tables loopledger writes under OUT/data/ (and passes between stages).
+
+``points.csv`` — one row per judged point; ``tests.csv`` — one row per result
+file, invalid files included. Plugins add columns; these are the guaranteed ones.
+"""
+
+from __future__ import annotations
+
+import pandera.pandas as pa
+from pandera.typing import Series
+
+DECISIONS = ["pass", "fail", "conditional-pass", "conditional-fail"]
+VERDICTS = ["pass", "fail", "adjusted", "invalid"]
+
+
+class PointsOut(pa.DataFrameModel):
+    asset: Series[str]
+    test: Series[str]
+    date: Series[str]
+    phase: Series[str] = pa.Field(isin=["as_found", "as_left"])
+    point: Series[int] = pa.Field(ge=1)
+    input_pct: Series[float]
+    expected: Series[float]
+    measured: Series[float]
+    output_unit: Series[str]
+    error: Series[float]
+    error_pct_span: Series[float]
+    mpe: Series[float] = pa.Field(ge=0)
+    decision: Series[str] = pa.Field(isin=DECISIONS)
+
+    class Config:
+        strict = False
+
+
+class TestsOut(pa.DataFrameModel):
+    asset: Series[str] = pa.Field(nullable=True)
+    test: Series[str]
+    date: Series[str] = pa.Field(nullable=True)
+    source_file: Series[str]
+    sha256: Series[str] = pa.Field(nullable=True)
+    as_found: Series[str] = pa.Field(nullable=True)
+    as_left: Series[str] = pa.Field(nullable=True)
+    verdict: Series[str] = pa.Field(isin=VERDICTS)
+    warnings: Series[str] = pa.Field(nullable=True)
+
+    class Config:
+        strict = False
+
+
+POINT_COLUMNS = list(PointsOut.to_schema().columns)
+TEST_COLUMNS = list(TestsOut.to_schema().columns)

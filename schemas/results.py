@@ -1,0 +1,67 @@
+"""Result files, as read: the test header (one row per file) and the raw points.
+
+A result file is YAML, CSV or .xlsx; README shows each. Fields:
+
+- header: ``asset``, ``date`` (YYYY-MM-DD), ``technician``, ``connection``
+  (standalone | in-loop), ``method`` (a reading method: direct | shunt |
+  display, or one a plugin adds), ``injection`` (secondary | primary),
+  ``ambient_c``, instruments ``source`` / ``meter`` / ``shunt``, ``remarks``
+  (Markdown);
+- points, under ``as_found`` / ``as_left``: ``input`` (``25 %`` of range or a
+  quantity such as ``0.5 A``), ``reading`` (a quantity such as ``0.4011 V``),
+  or ``readings`` (repeats), or ``reading_min`` + ``reading_max`` (an unsteady
+  display), and optionally ``direction`` (up | down).
+"""
+
+from __future__ import annotations
+
+import pandera.pandas as pa
+from pandera.typing import Series
+
+
+def _is_iso_date(series):  # type: ignore[no-untyped-def]
+    import pandas as pd
+
+    text = series.astype(str).str.slice(0, 10)
+    return pd.to_datetime(text, format="%Y-%m-%d", errors="coerce").notna()
+
+
+class TestHeader(pa.DataFrameModel):
+    """The fields at the top of a result file."""
+
+    test: Series[str]
+    source_file: Series[str]
+    asset: Series[str] = pa.Field(str_length={"min_value": 1})
+    date: Series[str]
+    technician: Series[str] = pa.Field(str_length={"min_value": 1})
+    connection: Series[str] = pa.Field(isin=["standalone", "in-loop"])
+    method: Series[str] = pa.Field(str_length={"min_value": 1})
+    injection: Series[str] = pa.Field(isin=["secondary", "primary"])
+    ambient_c: Series[float] = pa.Field(nullable=True, ge=-60, le=90)
+    source: Series[str] = pa.Field(nullable=True)
+    meter: Series[str] = pa.Field(nullable=True)
+    shunt: Series[str] = pa.Field(nullable=True)
+    remarks: Series[str] = pa.Field(nullable=True)
+
+    @pa.check("date", error="a real date written YYYY-MM-DD")
+    def date_is_iso(cls, series):  # type: ignore[no-untyped-def]
+        return _is_iso_date(series)
+
+    class Config:
+        strict = False
+        coerce = True
+
+
+class RawPoint(pa.DataFrameModel):
+    """One reading point as written."""
+
+    test: Series[str]
+    source_file: Series[str]
+    line: Series[int]
+    phase: Series[str] = pa.Field(isin=["as_found", "as_left"])
+    point: Series[int] = pa.Field(ge=1)
+    direction: Series[str] = pa.Field(nullable=True, isin=["up", "down"])
+
+    class Config:
+        strict = False
+        coerce = True

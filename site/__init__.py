@@ -1,0 +1,1 @@
+"""The handbook's theme: jinja2 templates and CSS (package data)."""
