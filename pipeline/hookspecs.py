@@ -145,3 +145,12 @@ def ll_test_sections(ctx: RunContext, test: str) -> list[Section] | None:
 @hookspec
 def ll_asset_sections(ctx: RunContext, asset: str) -> list[Section] | None:
     """Blocks to show on the page of one asset."""
+
+
+@hookspec
+def ll_sheet_sections(ctx: RunContext, asset: str, plan: dict[str, Any]) -> list[Section] | None:
+    """Blocks for the printable test sheet a technician takes to site for ``asset``.
+
+    :param plan: the planned rig: ``method`` (direct | shunt | display), ``shunt_ohm``
+        (float or None), ``meter`` (instrument id or None), ``connection`` (standalone | in-loop).
+    """
