@@ -13,6 +13,12 @@ BUILTIN: tuple[str, ...] = (
     "measured_output",
     "reading_methods",
     "tolerance",
+    "uncertainty",
+    "decision_rules",
+    "conformity",
+    "linearity",
+    "method_compare",
+    "explain",
     "export_csv",
     "handbook",
 )

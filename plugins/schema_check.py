@@ -174,7 +174,9 @@ def _parse_readings(pts: pd.DataFrame, where) -> list[Finding]:  # type: ignore[
         for idx, problem in parsed["problem"].dropna().groupby(level=0).first().items():
             findings.append(error(f"readings: {problem}", field="readings", **where(idx)))
         first_unit = parsed["unit"].groupby(level=0).first()
-        values = q.convert(parsed["value"], parsed["unit"], first_unit.reindex(parsed.index))
+        flat = parsed.reset_index(drop=True)  # convert() needs a unique index; the repeats share one
+        values = q.convert(flat["value"], flat["unit"], pd.Series(first_unit.loc[parsed.index].to_numpy()))
+        values.index = parsed.index
         stats = values.groupby(level=0).agg(["mean", "std", "count"])
         pts.loc[stats.index, "reading"] = stats["mean"]
         pts.loc[stats.index, "reading_sd"] = stats["std"]

@@ -1,0 +1,319 @@
+"""The uncertainty budget of a table of points (JCGM 100:2008, GUM), shared by the uncertainty
+stage and the method comparison (not a plugin itself).
+
+Every component is a row of a long table: the point it belongs to (the point table's index),
+its name, distribution, half-width (in ``unit``), divisor, sensitivity coefficient (output unit
+per ``unit``), contribution u_i = |c_i| · half-width / divisor (output units) and degrees of
+freedom (infinite for type B). Components:
+
+- ``meter accuracy``: ``a %rdg × |reading| + n digits × resolution`` (and any %range term) on the
+  smallest range of the meter, of the reading's dimension, that holds the reading; rectangular;
+- ``meter resolution``: half a digit, rectangular (EA-4/02 keeps it as its own term);
+- ``shunt tolerance`` and ``shunt tempco`` (tempco × |ambient − reference temperature|): as ohms,
+  rectangular, carried by ∂I/∂R = −I/R;
+- ``source``: the source's specification at the injected value, rectangular, carried by the
+  characteristic's d output / d input (the ``sensitivity`` column of the point table);
+- ``repeatability``: type A, s/√n with n − 1 degrees of freedom;
+- ``unsteady reading``: half the min/max spread, rectangular;
+- ``display resolution`` / ``display accuracy`` for the ``display`` method.
+
+Combined u = √Σu_i²; ν_eff by Welch–Satterthwaite (GUM G.2b); k from Student's t for 95.45 %
+(k = 2 when every term is type B); U = k·u.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from loopledger import quantities as q
+from loopledger.context import RunContext
+
+#: the coverage probability the expanded uncertainty is stated for (GUM Table G.2's 95.45 %)
+COVERAGE = 0.9545
+SQRT3 = math.sqrt(3.0)
+TERM_COLUMNS = ["row", "component", "distribution", "half_width", "unit", "divisor", "sensitivity",
+                "contribution", "dof"]
+#: methods whose reading comes from a control system, not from the test meter
+NO_METER = ("display",)
+
+
+def coverage_factor(nu_eff: Any) -> np.ndarray:
+    """k for 95.45 % from Student's t at ``nu_eff`` degrees of freedom (2 where infinite)."""
+    from scipy import stats
+
+    nu = np.atleast_1d(np.asarray(nu_eff, dtype=float))
+    k = np.full(nu.shape, 2.0)
+    finite = np.isfinite(nu) & (nu > 0)
+    k[finite] = stats.t.ppf((1.0 + COVERAGE) / 2.0, nu[finite])
+    return k
+
+
+def welch_satterthwaite(u_c: Any, u_i: Any, dof: Any) -> float:
+    """ν_eff = u_c⁴ / Σ(u_i⁴/ν_i) (JCGM 100:2008 G.2b); infinite when every ν_i is."""
+    u_i, dof = np.asarray(u_i, dtype=float), np.asarray(dof, dtype=float)
+    denominator = float(np.sum(np.where(np.isfinite(dof), u_i ** 4 / dof, 0.0)))
+    return math.inf if denominator == 0.0 else float(u_c) ** 4 / denominator
+
+
+def _term(idx: pd.Index, name: str, distribution: str, half_width: Any, unit: Any, divisor: float,
+          sensitivity: Any, dof: Any = math.inf) -> pd.DataFrame:
+    if isinstance(unit, pd.Series):
+        unit = unit.to_numpy(dtype=object)
+    frame = pd.DataFrame({"row": idx, "component": name, "distribution": distribution,
+                          "half_width": np.asarray(half_width, dtype=float), "unit": unit,
+                          "divisor": divisor, "sensitivity": np.asarray(sensitivity, dtype=float),
+                          "dof": dof}, index=range(len(idx)))
+    frame["contribution"] = frame["sensitivity"].abs() * frame["half_width"] / divisor
+    return frame
+
+
+def reading_sensitivity(ctx: RunContext, pts: pd.DataFrame) -> pd.Series:
+    """d measured / d reading (output unit per reading unit), by asking each reading method.
+
+    The methods are linear in the reading, so a finite difference is exact to rounding; asking
+    the method keeps this right for methods a plugin adds.
+    """
+    out = pd.Series(np.nan, index=pts.index, dtype=float)
+    for method, idx in pts.groupby("method", sort=False).groups.items():
+        handler = ctx.methods.get(str(method))
+        if handler is None:
+            continue
+        rows = pts.loc[idx]
+        step = np.maximum(rows["reading"].abs().fillna(0.0), 1.0) * 1e-3
+        shifted = rows.assign(reading=rows["reading"] + step)
+        low, _ = handler.measured(rows, ctx)
+        high, _ = handler.measured(shifted, ctx)
+        out[idx] = (high - low) / step
+    return out
+
+
+def _instrument(ctx: RunContext, ids: pd.Series, column: str) -> pd.Series:
+    table = ctx.instruments
+    if table.empty or column not in table.columns:
+        return pd.Series(None, index=ids.index, dtype=object)
+    values = table[column].where(table[column].notna(), None).to_dict()
+    return ids.map(lambda i: values.get(i) if isinstance(i, str) else None)
+
+
+def _relative(text: Any, ohms: float) -> float:
+    """A shunt tolerance as a fraction: ``0.01 %``, ``100 ppm`` or ``0.01 ohm``."""
+    parsed = q.parse_one(text)
+    if parsed.unit == q.PERCENT:
+        return parsed.value / 100.0
+    ab = q.affine(parsed.unit, "dimensionless")
+    if ab is not None:
+        return parsed.value * ab[0]
+    return q.to_float(text, "ohm") / ohms
+
+
+def _per_kelvin(text: Any) -> float:
+    """A temperature coefficient as a fraction per kelvin: ``5 ppm/K``, ``0.0005 %/K``."""
+    return q.to_float(str(text).replace("%", "percent"), "1/K")
+
+
+def pick_ranges(ctx: RunContext, pts: pd.DataFrame) -> pd.DataFrame:
+    """Each point's meter range: the smallest of the reading's dimension that holds the reading.
+
+    Columns ``range`` (as written), ``range_value``, ``accuracy`` and ``resolution`` (both values
+    in the reading's unit) and ``over`` (the reading exceeds every range; the largest was used);
+    rows without a range of the reading's dimension are NaN.
+    """
+    cols = ["range", "range_value", "accuracy", "resolution"]
+    empty = pd.DataFrame({"range": None, "range_value": np.nan, "accuracy": None, "resolution": np.nan,
+                          "over": False}, index=pts.index, columns=[*cols, "over"])
+    ranges = ctx.ranges
+    if ranges.empty or pts.empty:
+        return empty
+    r = ranges.reset_index(drop=True)
+    parsed = q.parse_column(r["range"].fillna(""))
+    res = q.parse_column(r["resolution"].fillna(""))
+    r = r.assign(r_value=parsed["value"], r_unit=parsed["unit"], res_value=res["value"], res_unit=res["unit"])
+    left = pts[["meter", "reading", "reading_unit"]].rename_axis("row").reset_index()
+    both = left.merge(r, left_on="meter", right_on="instrument", how="inner")
+    if both.empty:
+        return empty
+    both["range_value"] = q.convert(both["r_value"], both["r_unit"], both["reading_unit"])
+    both["resolution"] = q.convert(both["res_value"], both["res_unit"], both["reading_unit"])
+    both = both[both["range_value"].notna()]
+    if both.empty:
+        return empty
+    holds = both["range_value"] >= both["reading"].abs() * (1 - 1e-12)
+    # the smallest range that holds the reading; where none does, the largest (the meter showed
+    # the value, so it reads over its nominal range) -- flagged as ``over``
+    both = both.assign(key=np.where(holds, both["range_value"], np.inf), over=~holds,
+                       size=-both["range_value"])
+    best = both.sort_values(["key", "size"]).drop_duplicates("row").set_index("row")
+    out = empty.copy()
+    out["over"] = False
+    for col in [*cols, "over"]:
+        out.loc[best.index, col] = best[col]
+    out["range_value"] = out["range_value"].astype(float)
+    out["resolution"] = out["resolution"].astype(float)
+    return out
+
+
+_DECIMALS = re.compile(r"[+-]?\d+(?:\.(\d*))?")
+
+
+def written_resolution(text: pd.Series) -> pd.Series:
+    """The last digit written (``1234.5 A`` → 0.1): a display's resolution when none is registered."""
+    digits = text.astype(str).str.extract(_DECIMALS.pattern)[0]
+    places = digits.fillna("").str.len()
+    return pd.Series(10.0 ** (-places.astype(float)), index=text.index)
+
+
+def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame, pd.Series]:
+    """(terms, per-point u/k/nu_eff/U/c_reading, problems) for the points ``pts``.
+
+    ``problems`` names, per point, what a complete budget lacked (None when complete); those
+    points get NaN u and U rather than a budget that leaves a main term out.
+    """
+    problems = pd.Series(None, index=pts.index, dtype=object)
+
+    def lack(mask: pd.Series, text: str) -> None:
+        mask = mask & problems.isna()
+        problems[mask[mask].index] = text
+
+    c_reading = reading_sensitivity(ctx, pts)
+    terms: list[pd.DataFrame] = []
+    uses_meter = ~pts["method"].isin(NO_METER)
+
+    # --- meter: accuracy on the range the reading falls in, and half a digit of resolution
+    metered = pts[uses_meter]
+    lack(uses_meter & pts["meter"].isna(), "no meter named (instruments.meter)")
+    picked = pick_ranges(ctx, metered)
+    lack(uses_meter & pts["meter"].notna() & picked["range_value"].reindex(pts.index).isna() & uses_meter,
+         "the meter has no range in instruments.yaml for the reading's unit")
+    ok = picked["range_value"].notna() & picked["accuracy"].notna()
+    for (spec_text, unit), idx in picked[ok].assign(unit=metered["reading_unit"]).groupby(
+            ["accuracy", "unit"], sort=False).groups.items():
+        rows = metered.loc[idx]
+        try:
+            spec = q.parse_spec(str(spec_text))
+            half = spec.half_width(rows["reading"].abs(), range_=picked.loc[idx, "range_value"],
+                                   resolution=picked.loc[idx, "resolution"].fillna(0.0), unit=str(unit))
+        except ValueError:
+            lack(pts.index.isin(idx) & uses_meter, f"meter accuracy '{spec_text}' cannot be read")
+            continue
+        terms.append(_term(idx, "meter accuracy", "rectangular", half, unit, SQRT3, c_reading[idx]))
+    lack(uses_meter & pts.index.isin(picked.index[picked["range_value"].notna() & picked["accuracy"].isna()]),
+         "the meter range has no accuracy in instruments.yaml")
+    has_res = picked["resolution"].notna()
+    idx = picked.index[has_res]
+    terms.append(_term(idx, "meter resolution", "rectangular", picked.loc[idx, "resolution"] / 2.0,
+                       metered.loc[idx, "reading_unit"], SQRT3, c_reading[idx]))
+
+    # --- shunt: tolerance and temperature coefficient, as ohms
+    is_shunt = pts["method"] == "shunt"
+    if is_shunt.any():
+        from loopledger.plugins.reading_methods import shunt_ohms
+
+        rows = pts[is_shunt]
+        ohms = shunt_ohms(ctx, rows["shunt"])
+        slope = -rows["measured"] / ohms
+        tol = _instrument(ctx, rows["shunt"], "tolerance")
+        tempco = _instrument(ctx, rows["shunt"], "tempco")
+        ref = _instrument(ctx, rows["shunt"], "reference_temperature")
+        rel = pd.Series(np.nan, index=rows.index)
+        drift = pd.Series(np.nan, index=rows.index)
+        for i in rows.index:
+            try:
+                rel[i] = _relative(tol[i], float(ohms[i]))
+            except (ValueError, TypeError):
+                pass
+            try:
+                if tempco[i] is not None:
+                    delta = abs(float(rows.at[i, "ambient_c"]) - q.to_float(ref[i], "degC"))
+                    drift[i] = _per_kelvin(tempco[i]) * delta
+            except (ValueError, TypeError):
+                pass
+        lack(is_shunt & pts.index.isin(rows.index[rel.isna()]), "the shunt has no readable tolerance")
+        good = rel.notna()
+        terms.append(_term(rows.index[good], "shunt tolerance", "rectangular", (ohms * rel)[good], "ohm",
+                           SQRT3, slope[good]))
+        good = drift.notna()
+        terms.append(_term(rows.index[good], "shunt tempco", "rectangular", (ohms * drift)[good], "ohm",
+                           SQRT3, slope[good]))
+
+    # --- the source, carried to the output by the characteristic's slope
+    src_acc = _instrument(ctx, pts["source"], "accuracy")
+    src_range = _instrument(ctx, pts["source"], "range")
+    lack(pts["source"].isna(), "no source named (instruments.source)")
+    lack(pts["source"].notna() & src_acc.isna(), "the source has no accuracy in instruments.yaml")
+    frame = pd.DataFrame({"acc": src_acc, "rng": src_range, "unit": pts["injected_unit"]})
+    for (acc, rng, unit), idx in frame.dropna(subset=["acc"]).fillna({"rng": ""}).groupby(
+            ["acc", "rng", "unit"], sort=False).groups.items():
+        rows = pts.loc[idx]
+        try:
+            spec = q.parse_spec(str(acc))
+            span = q.to_float(rng, str(unit)) if rng else np.nan
+            if spec.pct_range and not np.isfinite(span):
+                raise ValueError("no range")
+            half = spec.half_width(rows["injected"].abs(), range_=span if np.isfinite(span) else 0.0,
+                                   unit=str(unit))
+        except ValueError:
+            lack(pts.index.isin(idx), f"source accuracy '{acc}' (range '{rng}') cannot be applied in {unit}")
+            continue
+        terms.append(_term(idx, "source", "rectangular", half, unit, SQRT3, rows["sensitivity"]))
+
+    # --- what the readings themselves show
+    rep = pts["n_readings"].astype(int).gt(1) & pts["reading_sd"].notna()
+    idx = pts.index[rep]
+    n = pts.loc[idx, "n_readings"].astype(float)
+    terms.append(_term(idx, "repeatability", "normal (type A)", pts.loc[idx, "reading_sd"] / np.sqrt(n),
+                       pts.loc[idx, "reading_unit"], 1.0, c_reading[idx], dof=(n - 1).to_numpy()))
+    idx = pts.index[pts["reading_half_spread"].notna()]
+    terms.append(_term(idx, "unsteady reading", "rectangular", pts.loc[idx, "reading_half_spread"],
+                       pts.loc[idx, "reading_unit"], SQRT3, c_reading[idx]))
+
+    # --- the control system's display
+    shown = pts[pts["method"] == "display"]
+    if len(shown):
+        res = written_resolution(shown["reading_text"])
+        if "display_resolution" in shown.columns:
+            given = pd.to_numeric(shown["display_resolution"], errors="coerce")
+            res = given.where(given.notna(), res)
+        terms.append(_term(shown.index, "display resolution", "rectangular", res / 2.0, shown["reading_unit"],
+                           SQRT3, c_reading[shown.index]))
+        if "display_accuracy" in shown.columns:
+            for spec_text, idx in shown.dropna(subset=["display_accuracy"]).groupby("display_accuracy").groups.items():
+                rows = shown.loc[idx]
+                pct = rows["reading_unit"] == q.PERCENT
+                span = np.where(pct, 100.0, rows["display_max"].astype(float) - rows["display_min"].astype(float))
+                try:
+                    half = q.parse_spec(str(spec_text)).half_width(rows["reading"].abs(), span=span)
+                except ValueError:
+                    lack(pts.index.isin(idx), f"display_accuracy '{spec_text}' cannot be read")
+                    continue
+                terms.append(_term(idx, "display accuracy", "rectangular", half, rows["reading_unit"], SQRT3,
+                                   c_reading[idx]))
+
+    table = pd.concat([t for t in terms if len(t)], ignore_index=True) if any(len(t) for t in terms) else \
+        pd.DataFrame(columns=TERM_COLUMNS)
+    lack(pts.index.isin(table.loc[table["contribution"].isna(), "row"]),
+         "a budget term could not be evaluated (e.g. infinite slope at the zero of a square-root device)")
+    per = combine(table, pts.index)
+    per["c_reading"] = c_reading
+    per["overrange"] = picked["over"].reindex(pts.index).fillna(False).astype(bool)
+    bad = problems.notna()
+    per.loc[bad, ["u", "U", "k", "nu_eff"]] = np.nan
+    return table[TERM_COLUMNS], per, problems
+
+
+def combine(table: pd.DataFrame, index: pd.Index) -> pd.DataFrame:
+    """Per point: u = √Σu_i², ν_eff (Welch–Satterthwaite), k (Student t, 95.45 %), U = k·u."""
+    c = table["contribution"].astype(float)
+    dof = table["dof"].astype(float)
+    grouped = pd.DataFrame({"row": table["row"], "sq": c ** 2,
+                            "ws": np.where(np.isfinite(dof), c ** 4 / dof, 0.0)}).groupby("row")
+    sums = grouped[["sq", "ws"]].sum().reindex(index)
+    u = np.sqrt(sums["sq"])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        nu = np.where(sums["ws"] > 0, u ** 4 / sums["ws"], np.inf)
+    k = coverage_factor(nu)
+    return pd.DataFrame({"u": u, "k": k, "nu_eff": nu, "U": k * u}, index=index)
