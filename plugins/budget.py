@@ -119,13 +119,18 @@ def _per_kelvin(text: Any) -> float:
 def pick_ranges(ctx: RunContext, pts: pd.DataFrame) -> pd.DataFrame:
     """Each point's meter range: the smallest of the reading's dimension that holds the reading.
 
-    Columns ``range`` (as written), ``range_value``, ``accuracy`` and ``resolution`` (both values
-    in the reading's unit) and ``over`` (the reading exceeds every range; the largest was used);
-    rows without a range of the reading's dimension are NaN.
+    The digits written say which range the meter was on: a range whose resolution is coarser than
+    the last digit written cannot have shown the reading, so ``2.0016 V`` on a meter with 2 V
+    (0.1 mV) and 20 V (1 mV) ranges was read on the 2 V range, over its nominal value (meters
+    read a little beyond it). In order of preference: the smallest range that holds the reading
+    and could show its digits; the largest range below it that could show them (over-range); the
+    smallest that holds it; the largest. Columns ``range`` (as written), ``range_value``,
+    ``accuracy`` and ``resolution`` (values in the reading's unit); NaN where the meter has no
+    range of the reading's dimension.
     """
     cols = ["range", "range_value", "accuracy", "resolution"]
-    empty = pd.DataFrame({"range": None, "range_value": np.nan, "accuracy": None, "resolution": np.nan,
-                          "over": False}, index=pts.index, columns=[*cols, "over"])
+    empty = pd.DataFrame({"range": None, "range_value": np.nan, "accuracy": None, "resolution": np.nan},
+                         index=pts.index, columns=cols)
     ranges = ctx.ranges
     if ranges.empty or pts.empty:
         return empty
@@ -133,8 +138,9 @@ def pick_ranges(ctx: RunContext, pts: pd.DataFrame) -> pd.DataFrame:
     parsed = q.parse_column(r["range"].fillna(""))
     res = q.parse_column(r["resolution"].fillna(""))
     r = r.assign(r_value=parsed["value"], r_unit=parsed["unit"], res_value=res["value"], res_unit=res["unit"])
-    left = pts[["meter", "reading", "reading_unit"]].rename_axis("row").reset_index()
-    both = left.merge(r, left_on="meter", right_on="instrument", how="inner")
+    text = pts["reading_text"] if "reading_text" in pts.columns else pd.Series("", index=pts.index)
+    left = pts[["meter", "reading", "reading_unit"]].assign(written=written_resolution(text))
+    both = left.rename_axis("row").reset_index().merge(r, left_on="meter", right_on="instrument", how="inner")
     if both.empty:
         return empty
     both["range_value"] = q.convert(both["r_value"], both["r_unit"], both["reading_unit"])
@@ -142,15 +148,13 @@ def pick_ranges(ctx: RunContext, pts: pd.DataFrame) -> pd.DataFrame:
     both = both[both["range_value"].notna()]
     if both.empty:
         return empty
-    holds = both["range_value"] >= both["reading"].abs() * (1 - 1e-12)
-    # the smallest range that holds the reading; where none does, the largest (the meter showed
-    # the value, so it reads over its nominal range) -- flagged as ``over``
-    both = both.assign(key=np.where(holds, both["range_value"], np.inf), over=~holds,
-                       size=-both["range_value"])
-    best = both.sort_values(["key", "size"]).drop_duplicates("row").set_index("row")
+    holds = (both["range_value"] >= both["reading"].abs() * (1 - 1e-12)).to_numpy()
+    shows = ~(both["resolution"] > both["written"] * (1 + 1e-9)).to_numpy()
+    tier = np.select([holds & shows, ~holds & shows, holds], [0, 1, 2], 3)
+    both = both.assign(tier=tier, order=np.where(holds, both["range_value"], -both["range_value"]))
+    best = both.sort_values(["row", "tier", "order"]).drop_duplicates("row").set_index("row")
     out = empty.copy()
-    out["over"] = False
-    for col in [*cols, "over"]:
+    for col in cols:
         out.loc[best.index, col] = best[col]
     out["range_value"] = out["range_value"].astype(float)
     out["resolution"] = out["resolution"].astype(float)
@@ -161,10 +165,10 @@ _DECIMALS = re.compile(r"[+-]?\d+(?:\.(\d*))?")
 
 
 def written_resolution(text: pd.Series) -> pd.Series:
-    """The last digit written (``1234.5 A`` → 0.1): a display's resolution when none is registered."""
-    digits = text.astype(str).str.extract(_DECIMALS.pattern)[0]
-    places = digits.fillna("").str.len()
-    return pd.Series(10.0 ** (-places.astype(float)), index=text.index)
+    """The last digit written (``1234.5 A`` → 0.1; NaN where no number is written)."""
+    parts = text.fillna("").astype(str).str.extract(rf"^\s*({_DECIMALS.pattern})")
+    places = parts[1].fillna("").str.len().astype(float)
+    return pd.Series(np.where(parts[0].notna(), 10.0 ** (-places), np.nan), index=text.index)
 
 
 def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame, pd.Series]:
@@ -299,7 +303,6 @@ def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFr
          "a budget term could not be evaluated (e.g. infinite slope at the zero of a square-root device)")
     per = combine(table, pts.index)
     per["c_reading"] = c_reading
-    per["overrange"] = picked["over"].reindex(pts.index).fillna(False).astype(bool)
     bad = problems.notna()
     per.loc[bad, ["u", "U", "k", "nu_eff"]] = np.nan
     return table[TERM_COLUMNS], per, problems

@@ -166,12 +166,13 @@ def repeat_spread_pct(points: pd.DataFrame) -> pd.Series:
     out = pd.Series(np.nan, index=points.index, dtype=float)
     if "readings" not in points.columns or "reading_sensitivity" not in points.columns:
         return out
-    has = points["readings"].map(lambda v: isinstance(v, list) and len(v) > 1)
+    has = points["readings"].map(lambda v: isinstance(v, list | tuple) and len(v) > 1)
     if not has.any():
         return out
     long = points.loc[has, "readings"].explode()
-    parsed = q.parse_column(long.astype(str).reset_index(drop=True)).set_index(long.index)
-    values = q.convert(parsed["value"], parsed["unit"], points.loc[long.index, "reading_unit"])
+    parsed = q.parse_column(long.astype(str).reset_index(drop=True))  # convert() needs a unique index
+    values = q.convert(parsed["value"], parsed["unit"], pd.Series(points.loc[long.index, "reading_unit"].to_numpy()))
+    values.index = long.index
     rng = values.groupby(level=0).max() - values.groupby(level=0).min()
     span = points.loc[rng.index, "span"].abs()
     out[rng.index] = rng * points.loc[rng.index, "reading_sensitivity"].abs() / span * 100.0

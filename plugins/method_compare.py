@@ -31,6 +31,7 @@ def _as_read_by(pts: pd.DataFrame, method: str, shunt: str | None, reading: pd.S
     alt["shunt"] = shunt
     alt["reading"] = reading
     alt["reading_unit"] = unit
+    alt["reading_text"] = ""  # the digits written belong to the reading actually taken
     alt["n_readings"] = 1
     alt["reading_sd"] = np.nan
     alt["reading_half_spread"] = np.nan

@@ -17,7 +17,7 @@ import pandas as pd
 
 from loopledger.context import RunContext
 from loopledger.contracts import Section
-from loopledger.findings import Finding, error, note, warning
+from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import budget
 
@@ -57,13 +57,6 @@ def stage(ctx: RunContext) -> list[Finding]:
         findings.append(make(f"no uncertainty: {problem}{more}", file=str(rel), line=int(first["line"]),
                              point=f"{first['phase']} #{first['point']}", field="instruments",
                              code="uncertainty-incomplete"))
-    over = pts[per["overrange"]]
-    for rel, rows in over.groupby("source_file", sort=False):
-        first = rows.iloc[0]
-        findings.append(note(f"reading {first['reading_text']} is above every range of meter {first['meter']}; "
-                             f"the largest range's specification was used ({len(rows)} point(s))",
-                             file=str(rel), line=int(first["line"]), point=f"{first['phase']} #{first['point']}",
-                             field="reading", code="over-range"))
     return findings
 
 

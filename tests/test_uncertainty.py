@@ -199,3 +199,13 @@ def test_cli_run_exports_u_columns_and_budget_csv(tmp_path):
     # u is the root sum of squares of the exported contributions (JCGM 100:2008 eq. 10, uncorrelated)
     rss = frame.groupby("point")["contribution"].apply(lambda c: math.sqrt(float((c ** 2).sum())))
     assert points.set_index("point")["u"].to_numpy() == pytest.approx(rss.to_numpy(), rel=1e-9)
+
+
+def test_the_digits_written_pick_the_range_over_its_nominal_value(tmp_path, run_folder):
+    """2.0016 V needs the 20 V range by size, but its 0.1 mV digit can only come from the 2 V range
+    (1 mV resolution on 20 V): the meter was over-ranging on 2 V (common practice; meters read
+    past the nominal range). Half a digit is then 0.05 mV."""
+    ctx = shunt_point(tmp_path, run_folder, reading="2.0016 V")
+    terms = terms_of(ctx)
+    assert terms.at["meter resolution", "half_width"] == pytest.approx(0.00005)
+    assert terms.at["meter accuracy", "half_width"] == pytest.approx(0.0005 * 2.0016 + 2 * 0.0001)
