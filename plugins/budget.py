@@ -116,6 +116,22 @@ def _per_kelvin(text: Any) -> float:
     return q.to_float(str(text).replace("%", "percent"), "1/K")
 
 
+def _shunt_spec(ctx: RunContext, ident: str) -> tuple[float, float, float]:
+    """(tolerance as a fraction, tempco per kelvin, reference °C) of one shunt; NaN where unreadable."""
+    from loopledger.plugins.reading_methods import shunt_ohms
+
+    row = ctx.instruments.loc[ident] if ident in ctx.instruments.index else pd.Series(dtype=object)
+    ohms = float(shunt_ohms(ctx, pd.Series([ident], dtype=object)).iloc[0])
+    values = []
+    for column, read in (("tolerance", lambda t: _relative(t, ohms)), ("tempco", _per_kelvin),
+                         ("reference_temperature", lambda t: q.to_float(t, "degC"))):
+        try:
+            values.append(float(read(row.get(column))))
+        except (ValueError, TypeError):
+            values.append(float("nan"))
+    return values[0], values[1], values[2]
+
+
 def pick_ranges(ctx: RunContext, pts: pd.DataFrame) -> pd.DataFrame:
     """Each point's meter range: the smallest of the reading's dimension that holds the reading.
 
@@ -220,22 +236,12 @@ def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFr
         rows = pts[is_shunt]
         ohms = shunt_ohms(ctx, rows["shunt"])
         slope = -rows["measured"] / ohms
-        tol = _instrument(ctx, rows["shunt"], "tolerance")
-        tempco = _instrument(ctx, rows["shunt"], "tempco")
-        ref = _instrument(ctx, rows["shunt"], "reference_temperature")
-        rel = pd.Series(np.nan, index=rows.index)
-        drift = pd.Series(np.nan, index=rows.index)
-        for i in rows.index:
-            try:
-                rel[i] = _relative(tol[i], float(ohms[i]))
-            except (ValueError, TypeError):
-                pass
-            try:
-                if tempco[i] is not None:
-                    delta = abs(float(rows.at[i, "ambient_c"]) - q.to_float(ref[i], "degC"))
-                    drift[i] = _per_kelvin(tempco[i]) * delta
-            except (ValueError, TypeError):
-                pass
+        specs = {ident: _shunt_spec(ctx, str(ident)) for ident in pd.unique(rows["shunt"].dropna())}
+        spec = pd.DataFrame([specs.get(i, (np.nan, np.nan, np.nan)) for i in rows["shunt"]],
+                            index=rows.index, columns=["rel", "per_k", "ref"])
+        rel = spec["rel"]
+        ambient = pd.to_numeric(rows["ambient_c"], errors="coerce")
+        drift = spec["per_k"] * (ambient - spec["ref"]).abs()
         lack(is_shunt & pts.index.isin(rows.index[rel.isna()]), "the shunt has no readable tolerance")
         good = rel.notna()
         terms.append(_term(rows.index[good], "shunt tolerance", "rectangular", (ohms * rel)[good], "ohm",

@@ -77,13 +77,14 @@ def write(ctx: RunContext, test: str, out: TextIO) -> None:
                   f"(acceptance limit |e| ≤ {fmt(r['acceptance_limit'])} {unit})\n")
     analysis = ctx.extras.get("analysis")
     if analysis is not None:
-        from loopledger.plugins.linearity import LABELS, TEST_COLUMNS
+        from loopledger.plugins.linearity import LABELS, SIGNED, TEST_COLUMNS
 
         for row in analysis[analysis["test"] == test].itertuples():
             out.write(f"\nanalysis ({str(row.phase).replace('_', '-')}, % of span)\n")
             for col in TEST_COLUMNS:
                 value = getattr(row, col)
-                out.write(f"  {LABELS[col]:<34}{'—' if pd.isna(value) else f'{value:+.4f}'}\n")
+                text = "—" if pd.isna(value) else f"{value:+.4f}" if col in SIGNED else f"{value:.4f}"
+                out.write(f"  {LABELS[col]:<34}{text}\n")
     from loopledger.plugins.method_compare import comparison_rows
 
     columns, rows = comparison_rows(ctx, test)

@@ -207,6 +207,8 @@ def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
     return {} if table is None else {"analysis": table.sort_values(KEYS, kind="stable")}
 
 
+#: quantities with a direction (the rest are magnitudes)
+SIGNED = ("zero_error_pct", "span_error_pct", "trim_zero", "trim_span")
 LABELS = {"zero_error_pct": "Zero error", "span_error_pct": "Span error",
           "nonlin_terminal_pct": "Non-linearity, terminal-based", "nonlin_independent_pct": "Non-linearity, independent",
           "hysteresis_pct": "Hysteresis", "nonrepeatability_pct": "Non-repeatability",
@@ -226,6 +228,7 @@ def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
     rows = []
     for col in TEST_COLUMNS:
         values = [mine.loc[mine["phase"] == p, col].iloc[0] for p in phases]
-        rows.append([LABELS[col], *("—" if pd.isna(v) else f"{v:+.3f} %" for v in values)])
+        signed = col in SIGNED
+        rows.append([LABELS[col], *("—" if pd.isna(v) else f"{v:+.3f} %" if signed else f"{v:.3f} %" for v in values)])
     return [Section(title="Linearity, hysteresis and trim (% of output span; ISA-51.1 terms)", kind="table",
                     columns=["Quantity", *(p.replace("_", "-") for p in phases)], rows=rows, order=30)]

@@ -57,6 +57,10 @@ def stage(ctx: RunContext) -> list[Finding]:
         findings.append(make(f"no uncertainty: {problem}{more}", file=str(rel), line=int(first["line"]),
                              point=f"{first['phase']} #{first['point']}", field="instruments",
                              code="uncertainty-incomplete"))
+    no_ambient = pts[(pts["method"] == "shunt") & pd.to_numeric(pts["ambient_c"], errors="coerce").isna()]
+    for rel in pd.unique(no_ambient["source_file"]):
+        findings.append(warning("ambient_c not recorded: the shunt's temperature-coefficient term is left out of "
+                                "the uncertainty budget", file=str(rel), field="ambient_c", code="no-ambient"))
     return findings
 
 

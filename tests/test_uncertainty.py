@@ -209,3 +209,19 @@ def test_the_digits_written_pick_the_range_over_its_nominal_value(tmp_path, run_
     terms = terms_of(ctx)
     assert terms.at["meter resolution", "half_width"] == pytest.approx(0.00005)
     assert terms.at["meter accuracy", "half_width"] == pytest.approx(0.0005 * 2.0016 + 2 * 0.0001)
+
+
+def test_display_method_budget(tmp_path, run_folder):
+    """A control-system display 0-2000 A for 4-20 mA: d output / d reading = 16/2000 = 0.008 mA/A.
+    Resolution from the digits written (1000.5 A → 0.1 A): a = 0.05 A, u = 0.05/√3 × 0.008 =
+    0.000230940 mA; display_accuracy 0.1 %span: a = 2 A, u = 2/√3 × 0.008 = 0.00923760 mA
+    (datasheet arithmetic; JCGM 100:2008 §4.3.7 for the divisor). No meter term."""
+    doc = result_yaml(method="display", as_found=[("50 %", "1000.5 A")], instruments={"source": "CAL-1"})
+    ev = write_evidence(tmp_path / "ev", {"d.yaml": doc}, instruments=RIG)
+    lines = (ev / "assets.csv").read_text(encoding="utf-8").splitlines()
+    (ev / "assets.csv").write_text(f"{lines[0]},display_accuracy\n{lines[1]},0.1 %span\n", encoding="utf-8")
+    ctx = run_folder(ev)
+    terms = terms_of(ctx)
+    assert set(terms.index) == {"display resolution", "display accuracy", "source"}
+    assert terms.at["display resolution", "contribution"] == pytest.approx(0.000230940, rel=1e-5)
+    assert terms.at["display accuracy", "contribution"] == pytest.approx(0.00923760, rel=1e-5)
