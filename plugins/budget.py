@@ -38,6 +38,10 @@ COVERAGE = 0.9545
 SQRT3 = math.sqrt(3.0)
 TERM_COLUMNS = ["row", "component", "distribution", "half_width", "unit", "divisor", "sensitivity",
                 "contribution", "dof"]
+#: a term whose linear propagation fails (infinite slope at the zero of a square-root device):
+#: not a fault of the evidence, so only ever a warning
+UNEVALUATED = ("a budget term could not be evaluated (infinite slope, e.g. at the zero of a square-root "
+               "device, where the GUM's linear propagation does not apply)")
 #: methods whose reading comes from a control system, not from the test meter
 NO_METER = ("display",)
 
@@ -306,7 +310,7 @@ def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFr
     table = pd.concat([t for t in terms if len(t)], ignore_index=True) if any(len(t) for t in terms) else \
         pd.DataFrame(columns=TERM_COLUMNS)
     lack(pts.index.isin(table.loc[table["contribution"].isna(), "row"]),
-         "a budget term could not be evaluated (e.g. infinite slope at the zero of a square-root device)")
+         UNEVALUATED)
     per = combine(table, pts.index)
     per["c_reading"] = c_reading
     bad = problems.notna()

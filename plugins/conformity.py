@@ -23,6 +23,13 @@ from loopledger.plugins.decision_rules import specific_risk
 MIN_TUR = 4.0
 
 
+def worst_per_file(rows: pd.DataFrame, by: str) -> pd.DataFrame:
+    """One row per source file: the row with the smallest ``by``, and ``n_points`` of the file's rows."""
+    counts = rows.groupby("source_file").size().rename("n_points")
+    first = rows.sort_values(["source_file", by], kind="stable").drop_duplicates("source_file")
+    return first.join(counts, on="source_file")
+
+
 def conformity(ctx: RunContext) -> list[Finding]:
     pts = ctx.points
     if pts.empty or "U" not in pts.columns:
@@ -34,24 +41,21 @@ def conformity(ctx: RunContext) -> list[Finding]:
     exports = ctx.extras.setdefault("point_exports", [])
     exports += [c for c in ("tur", "risk") if c not in exports]
     findings: list[Finding] = []
-    low = pts[pts["tur"] < MIN_TUR]
-    for rel, rows in low.groupby("source_file", sort=False):
-        worst = rows.loc[rows["tur"].idxmin()]
+    low = worst_per_file(pts[pts["tur"] < MIN_TUR], "tur")
+    for w in low.itertuples():
         findings.append(warning(
-            f"TUR {worst['tur']:.2g}:1 is below {MIN_TUR:g}:1 at {len(rows)} point(s) (U ±{worst['U']:.3g} "
-            f"{worst['output_unit']} against MPE ±{worst['mpe']:.3g}); the rig is not good enough for a "
-            f"TUR-based decision (ANSI/NCSL Z540.3)", file=str(rel), line=int(worst["line"]),
-            point=f"{worst['phase']} #{worst['point']}", field="instruments", code="low-tur"))
+            f"TUR {w.tur:.2g}:1 is below {MIN_TUR:g}:1 at {w.n_points} point(s) (U ±{w.U:.3g} {w.output_unit} "
+            f"against MPE ±{w.mpe:.3g}); the rig is not good enough for a TUR-based decision (ANSI/NCSL Z540.3)",
+            file=str(w.source_file), line=int(w.line), point=f"{w.phase} #{w.point}", field="instruments",
+            code="low-tur"))
     rule = str(pts["decision_rule"].iloc[0]) if "decision_rule" in pts.columns else "simple"
     if rule != "simple":
-        empty = pts[(pd.to_numeric(pts["acceptance_limit"], errors="coerce").fillna(0.0) <= 0.0)]
-        for rel, rows in empty.groupby("source_file", sort=False):
-            first = rows.iloc[0]
+        limit = pd.to_numeric(pts["acceptance_limit"], errors="coerce").fillna(0.0)
+        for w in worst_per_file(pts[limit <= 0.0], "line").itertuples():
             findings.append(warning(
-                f"rule '{rule}': the acceptance zone is empty at {len(rows)} point(s) (U ±{first['U']:.3g} "
-                f"≥ MPE ±{first['mpe']:.3g} {first['output_unit']}): no point can pass with this rig",
-                file=str(rel), line=int(first["line"]), point=f"{first['phase']} #{first['point']}",
-                field="instruments", code="empty-acceptance-zone"))
+                f"rule '{rule}': the acceptance zone is empty at {w.n_points} point(s) (U ±{w.U:.3g} ≥ MPE "
+                f"±{w.mpe:.3g} {w.output_unit}): no point can pass with this rig", file=str(w.source_file),
+                line=int(w.line), point=f"{w.phase} #{w.point}", field="instruments", code="empty-acceptance-zone"))
     return findings
 
 

@@ -51,12 +51,13 @@ def stage(ctx: RunContext) -> list[Finding]:
     make = error if _rule_needs_u(ctx) else warning
     findings: list[Finding] = []
     lacking = pts.loc[problems.dropna().index].assign(problem=problems.dropna())
-    for (rel, problem), rows in lacking.groupby(["source_file", "problem"], sort=False):
-        first = rows.iloc[0]
-        more = f" (and {len(rows) - 1} more point(s))" if len(rows) > 1 else ""
-        findings.append(make(f"no uncertainty: {problem}{more}", file=str(rel), line=int(first["line"]),
-                             point=f"{first['phase']} #{first['point']}", field="instruments",
-                             code="uncertainty-incomplete"))
+    counts = lacking.groupby(["source_file", "problem"]).size().rename("n_points")
+    first = lacking.drop_duplicates(["source_file", "problem"]).join(counts, on=["source_file", "problem"])
+    for r in first.itertuples():
+        more = f" (and {r.n_points - 1} more point(s))" if r.n_points > 1 else ""
+        severity = warning if r.problem == budget.UNEVALUATED else make
+        findings.append(severity(f"no uncertainty: {r.problem}{more}", file=str(r.source_file), line=int(r.line),
+                             point=f"{r.phase} #{r.point}", field="instruments", code="uncertainty-incomplete"))
     no_ambient = pts[(pts["method"] == "shunt") & pd.to_numeric(pts["ambient_c"], errors="coerce").isna()]
     for rel in pd.unique(no_ambient["source_file"]):
         findings.append(warning("ambient_c not recorded: the shunt's temperature-coefficient term is left out of "

@@ -10,12 +10,13 @@ import copy
 import math
 
 import numpy as np
+import pandas as pd
 import pytest
 from scipy import stats
 
 from loopledger.cli import main
 from loopledger.plugins import budget
-from tests.evidence import INSTRUMENTS, good_points, result_yaml, write_evidence
+from tests.evidence import CT_ASSET, INSTRUMENTS, good_points, result_yaml, write_evidence
 
 #: a calibrator-grade source and the meter/shunt of the issue's worked point (fixture data)
 RIG = copy.deepcopy(INSTRUMENTS)
@@ -77,7 +78,7 @@ def test_the_tempco_term_uses_the_distance_from_the_reference_temperature(tmp_pa
 def test_rectangular_divisor_is_root_three():
     """A rectangular distribution of half-width a has u = a/√3 (JCGM 100:2008 §4.3.7);
     checked against scipy.stats.uniform's standard deviation."""
-    idx = __import__("pandas").Index([0])
+    idx = pd.Index([0])
     term = budget._term(idx, "x", "rectangular", [0.6], "V", budget.SQRT3, [1.0])
     assert term["contribution"].iloc[0] == pytest.approx(stats.uniform(loc=-0.6, scale=1.2).std(), rel=1e-12)
 
@@ -182,8 +183,6 @@ def test_missing_range_is_an_error_under_guarded_and_a_warning_under_simple(tmp_
 
 
 def test_cli_run_exports_u_columns_and_budget_csv(tmp_path):
-    import pandas as pd
-
     ev = write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(as_found=good_points(0.002),
                                                                instruments={"source": "CAL-1", "meter": "DMM-1"})},
                         instruments=RIG)
@@ -225,3 +224,17 @@ def test_display_method_budget(tmp_path, run_folder):
     assert set(terms.index) == {"display resolution", "display accuracy", "source"}
     assert terms.at["display resolution", "contribution"] == pytest.approx(0.000230940, rel=1e-5)
     assert terms.at["display accuracy", "contribution"] == pytest.approx(0.00923760, rel=1e-5)
+
+
+def test_square_root_zero_gets_a_warning_not_an_invalid_file(tmp_path, run_folder):
+    """d√x/dx is infinite at x = 0 (calculus): the linear GUM propagation cannot carry the source
+    term there, so that point has no U and a warning, even under `guarded`; the rest are judged."""
+    asset = {**CT_ASSET, "characteristic": "sqrt"}
+    points = [("0 %", "4.000 mA"), ("25 %", "12.000 mA"), ("100 %", "20.000 mA")]
+    doc = result_yaml(as_found=points, instruments={"source": "CAL-1", "meter": "DMM-1"})
+    ev = write_evidence(tmp_path / "ev", {"q.yaml": doc}, assets=[asset], instruments=RIG)
+    ctx = run_folder(ev, decision={"rule": "guarded"})
+    found = [f for f in ctx.findings if f.code == "uncertainty-incomplete"]
+    assert len(found) == 1 and found[0].severity == "warning" and found[0].point == "as_found #1"
+    assert ctx.points["U"].isna().tolist() == [True, False, False]
+    assert list(ctx.tests["valid"]) == [True]
