@@ -51,9 +51,9 @@ def conformity(ctx: RunContext) -> list[Finding]:
     rule = str(pts["decision_rule"].iloc[0]) if "decision_rule" in pts.columns else "simple"
     if rule != "simple":
         limit = pd.to_numeric(pts["acceptance_limit"], errors="coerce").fillna(0.0)
-        for w in worst_per_file(pts[limit <= 0.0], "line").itertuples():
+        for w in worst_per_file(pts[(limit <= 0.0) & pts["U"].notna()], "line").itertuples():
             findings.append(warning(
-                f"rule '{rule}': the acceptance zone is empty at {w.n_points} point(s) (U ±{w.U:.3g} ≥ MPE "
+                f"rule '{rule}': the acceptance zone is empty at {w.n_points} point(s) (U ±{w.U:.3g} against MPE "
                 f"±{w.mpe:.3g} {w.output_unit}): no point can pass with this rig", file=str(w.source_file),
                 line=int(w.line), point=f"{w.phase} #{w.point}", field="instruments", code="empty-acceptance-zone"))
     return findings
