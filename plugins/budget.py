@@ -211,7 +211,7 @@ def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFr
     metered = pts[uses_meter]
     lack(uses_meter & pts["meter"].isna(), "no meter named (instruments.meter)")
     picked = pick_ranges(ctx, metered)
-    lack(uses_meter & pts["meter"].notna() & picked["range_value"].reindex(pts.index).isna() & uses_meter,
+    lack(uses_meter & pts["meter"].notna() & picked["range_value"].reindex(pts.index).isna(),
          "the meter has no range in instruments.yaml for the reading's unit")
     ok = picked["range_value"].notna() & picked["accuracy"].notna()
     for (spec_text, unit), idx in picked[ok].assign(unit=metered["reading_unit"]).groupby(
@@ -219,10 +219,13 @@ def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFr
         rows = metered.loc[idx]
         try:
             spec = q.parse_spec(str(spec_text))
+            if spec.digits and picked.loc[idx, "resolution"].isna().any():
+                raise ValueError("digits without a resolution")
             half = spec.half_width(rows["reading"].abs(), range_=picked.loc[idx, "range_value"],
                                    resolution=picked.loc[idx, "resolution"].fillna(0.0), unit=str(unit))
         except ValueError:
-            lack(pts.index.isin(idx) & uses_meter, f"meter accuracy '{spec_text}' cannot be read")
+            lack(pts.index.isin(idx) & uses_meter,
+                 f"meter accuracy '{spec_text}' cannot be applied (unreadable, or digits without a resolution)")
             continue
         terms.append(_term(idx, "meter accuracy", "rectangular", half, unit, SQRT3, c_reading[idx]))
     lack(uses_meter & pts.index.isin(picked.index[picked["range_value"].notna() & picked["accuracy"].isna()]),
