@@ -6,10 +6,14 @@ budget is the same computation as the uncertainty stage's, on the point as it wo
 (the measured output × R, or the output itself); the repeatability seen in the test is not
 carried over, so both sides are compared on instrument terms plus what was observed only for the
 method actually used. Kept in ``ctx.extras["method_comparison"]`` (exported as
-``method_comparison.csv``) and shown on each test page and by ``loopledger explain``.
+``method_comparison.csv``) and shown on each test page and by ``loopledger explain``; the
+printable site test sheet gets the U and TUR the planned rig would give at the points of the
+asset's latest test.
 """
 
 from __future__ import annotations
+
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -20,6 +24,7 @@ from loopledger.contracts import Section
 from loopledger.findings import Finding
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import budget
+from loopledger.plugins.conformity import MIN_TUR
 from loopledger.plugins.uncertainty import fmt
 
 COLUMNS = ["test", "phase", "point", "alternative", "method", "shunt", "U", "tur"]
@@ -124,3 +129,49 @@ def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
     unit = str(ctx.points.loc[ctx.points["test"] == test, "output_unit"].iloc[0])
     return [Section(title=f"Method comparison: U ({unit}) and TUR with the other rig the registry allows",
                     kind="table", columns=columns, rows=rows, order=25)]
+
+
+def planned(ctx: RunContext, asset: str, plan: dict[str, Any]) -> pd.DataFrame:
+    """U and TUR at the points of the asset's latest test, had they been read with the planned rig."""
+    pts = ctx.points[ctx.points["asset"] == asset] if not ctx.points.empty else ctx.points
+    if pts.empty or "mpe" not in pts.columns:
+        return pd.DataFrame(columns=COLUMNS)
+    latest = pts.sort_values(["date", "test"]).iloc[-1]["test"]
+    pts = pts[(pts["test"] == latest) & pts["measured"].notna()]
+    if plan.get("meter"):
+        pts = pts.assign(meter=plan["meter"])
+    method = plan.get("method")
+    if method == "shunt":
+        from loopledger.plugins.reading_methods import shunt_ohms
+
+        shunts = ctx.instruments[ctx.instruments["kind"] == "shunt"] if not ctx.instruments.empty else pd.DataFrame()
+        ohms = shunt_ohms(ctx, pd.Series(shunts.index, index=shunts.index, dtype=object)) if len(shunts) else pd.Series()
+        wanted = plan.get("shunt_ohm")
+        match = ohms[np.isclose(ohms, float(wanted))] if wanted is not None else ohms
+        if match.empty:
+            return pd.DataFrame(columns=COLUMNS)
+        ident, value = str(match.index[0]), float(match.iloc[0])
+        amps = q.convert(pts["measured"], pts["output_unit"], "A")
+        return _evaluate(ctx, _as_read_by(pts, "shunt", ident, amps * value, "V"), f"shunt {ident} ({value:g} Ω)")
+    if method == "direct":
+        alt = _as_read_by(pts, "direct", None, pts["measured"], "")
+        alt["reading_unit"] = pts["output_unit"]
+        return _evaluate(ctx, alt, "direct")
+    return pd.DataFrame(columns=COLUMNS)
+
+
+@hookimpl
+def ll_sheet_sections(ctx: RunContext, asset: str, plan: dict[str, Any]) -> list[Section]:
+    table = planned(ctx, asset, plan)
+    if table.empty:
+        return []
+    pts = ctx.points[ctx.points["test"] == table["test"].iloc[0]].set_index(["phase", "point"])
+    rows = []
+    for r in table.itertuples():
+        mpe = pts.at[(r.phase, r.point), "mpe"]
+        rows.append([str(r.phase).replace("_", "-"), str(r.point), fmt(pts.at[(r.phase, r.point), "input_pct"], 3),
+                     fmt(mpe), fmt(r.U), fmt(r.tur, 3), "yes" if r.tur >= MIN_TUR else "no"])
+    unit = str(pts["output_unit"].iloc[0])
+    return [Section(title=f"Expected U ({unit}) and TUR with the planned rig: {table['alternative'].iloc[0]}",
+                    kind="table", columns=["Phase", "#", "Input %", "MPE ±", "U", "TUR", f"TUR ≥ {MIN_TUR:g}:1"],
+                    rows=rows, order=40)]

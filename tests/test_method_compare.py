@@ -46,3 +46,19 @@ def test_cli_shows_the_comparison_on_the_test_page(tmp_path):
     assert set(table["method"]) == {"direct", "shunt"}
     pages = [p.read_text(encoding="utf-8") for p in (out / "handbook" / "tests").glob("*.html")]
     assert all("Method comparison" in p for p in pages)
+
+
+def test_planned_rig_on_the_site_sheet(tmp_path, run_folder):
+    """A planned shunt rig gives the same U as the shunt test actually read (same budget)."""
+    ctx = run_folder(two_tests(tmp_path))
+    sections = [s for group in ctx.pm.hook.ll_sheet_sections(
+        ctx=ctx, asset="T-CT1", plan={"method": "shunt", "shunt_ohm": 100.0, "meter": "DMM-1",
+                                      "connection": "standalone"}) for s in group or []]
+    assert len(sections) == 1
+    shunt_u = ctx.points.loc[ctx.points["method"] == "shunt", "U"].iloc[0]
+    row = sections[0].rows[0]
+    assert float(row[4]) == pytest.approx(shunt_u, rel=1e-3)
+    assert row[6] == ("yes" if float(row[5]) >= 4 else "no")
+    none = ctx.pm.hook.ll_sheet_sections(ctx=ctx, asset="T-CT1", plan={"method": "shunt", "shunt_ohm": 250.0,
+                                                                      "meter": "DMM-1", "connection": "standalone"})
+    assert not any(none)
