@@ -30,7 +30,7 @@ PERCENT = "%"
 def registry() -> pint.UnitRegistry:
     import pint
 
-    ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+    ureg: pint.UnitRegistry = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
     return ureg
 
 
