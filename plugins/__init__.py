@@ -13,6 +13,9 @@ BUILTIN: tuple[str, ...] = (
     "measured_output",
     "reading_methods",
     "tolerance",
+    "burden",
+    "signal_integrity",
+    "fault_signatures",
     "export_csv",
     "handbook",
 )
