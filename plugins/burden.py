@@ -394,12 +394,13 @@ def _shunt_plan(ctx: RunContext, text: str) -> tuple[float | None, str | None]:
         raise ConfigError(f"--shunt '{text}' is neither a resistance nor a shunt in instruments.yaml") from exc
 
 
-def _run(args: argparse.Namespace, out: Callable[[str], Any] = sys.stdout.write) -> int:
+def _run(args: argparse.Namespace, out: Callable[[str], Any] | None = None) -> int:
     from loopledger import runner
     from loopledger.commands.check import find_evidence
     from loopledger.config import ConfigError
     from loopledger.host import get_plugin_manager
 
+    out = out or sys.stdout.write
     evidence = args.evidence or find_evidence([Path.cwd()])
     ctx = runner.prepare(runner.RunOptions(evidence), get_plugin_manager())
     if args.asset not in ctx.assets.index:

@@ -3,9 +3,9 @@
 Per phase of each test, from the judged points (errors in output units, position on the
 output span 0..1, MPE), in this order, first match wins:
 
-1. **broken loop / failure signal** — a reading in an NE 43 failure band (signal integrity);
-2. **reversed** — readings fall as the input rises (least-squares slope of measured on
-   expected below zero): reversed polarity or wrong terminals;
+1. **reversed** — readings fall as the input rises (least-squares slope of measured on
+   expected below −0.5): reversed polarity or wrong terminals;
+2. **broken loop / failure signal** — a reading in an NE 43 failure band (signal integrity);
 3. **clipping** — top-only shortfall (signal integrity's ``clipped``);
 4. only when a point fails:
    - **scaled** — every point is the same multiple of expected measured from the live zero
@@ -35,6 +35,8 @@ from loopledger.hookspecs import hookimpl
 from loopledger.plugins.burden import fmt
 from loopledger.plugins.signal_integrity import FAILURE_BANDS, NO_CURRENT_MA, output_ma
 
+#: measured falls against expected at least this steeply (a broken loop reads flat, near 0)
+REVERSED_SLOPE = -0.5
 #: a fixed ratio counts as "scaled" when it is this far from 1 ...
 RATIO_AWAY = 0.05
 #: ... and the ratios of the points agree within this
@@ -84,7 +86,7 @@ def phase_table(pts: pd.DataFrame) -> pd.DataFrame:
     frame["clipped"] = pts["clipped"] if "clipped" in pts else False
     band = pts["ne43_band"] if "ne43_band" in pts else pd.Series("n/a", index=pts.index)
     ma, _ = output_ma(pts)
-    frame["no_current"] = band.eq("failure-low") & (ma < NO_CURRENT_MA)
+    frame["no_current"] = band.eq("failure-low") & (ma.abs() < NO_CURRENT_MA)
     frame["failure"] = band.isin(FAILURE_BANDS)
     g = frame.groupby(key, sort=False)
     table = pd.DataFrame({
@@ -113,14 +115,14 @@ def signatures(table: pd.DataFrame) -> pd.DataFrame:
         return fmt(s, spec)
 
     cases = [
+        (t["measured_slope"] < REVERSED_SLOPE, "reversed",
+         "readings fall as the input rises: reversed polarity, crossed terminals or a reverse-acting setting"),
         (t["no_current"] > 0, "broken loop",
          "no loop current at " + num(t["no_current"], "{:.0f}") + " point(s): a broken loop, blown fuse or unpowered "
          "output — repair the loop before judging calibration"),
         (t["failure"] > 0, "failure signal",
          "the output sits in an NE 43 failure band at " + num(t["failure"], "{:.0f}") + " point(s): the device is "
          "signalling a fault"),
-        (t["measured_slope"] < 0, "reversed",
-         "readings fall as the input rises: reversed polarity, crossed terminals or a reverse-acting setting"),
         (t["clipped"] > 0, "clipping",
          "only the top " + num(t["clipped"], "{:.0f}") + " point(s) fall short: the loop is beyond the output's "
          "drive limit (see the burden check)"),

@@ -58,6 +58,9 @@ def classify(ma: pd.Series | np.ndarray) -> np.ndarray:
 
 
 def band_words(ma: float, band: str) -> str:
+    if ma <= -NO_CURRENT_MA:
+        return (f"{ma:.2f} mA: the current flows the wrong way — reversed polarity or swapped leads, not a "
+                "calibration error")
     if band == "failure-low" and ma < NO_CURRENT_MA:
         return (f"{ma:.2f} mA: no loop current — a broken loop (open circuit, blown fuse) or an unpowered "
                 "output, not a calibration error")
