@@ -325,7 +325,8 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
     exports += [c for c in TEST_COLUMNS if c not in exports]
     lines = ctx.extras.get("header_lines", {})
     findings: list[Finding] = []
-    for idx, row in zip(terms.index, terms.itertuples(), strict=True):
+    flagged = terms[terms["burden_status"] != "ok"] if len(terms) else terms
+    for idx, row in zip(flagged.index, flagged.itertuples(), strict=True):
         rel = str(tests.at[idx, "source_file"])
         if row.burden_status in ("exceeds", "low-margin"):
             findings.append(warning(f"burden: {summary(row)}", file=rel, field="connection", code="burden",

@@ -85,7 +85,7 @@ def clipping(points: pd.DataFrame) -> pd.Series:
     all_others_inside = (~short & ~inside).astype(int).groupby(key).transform("sum") == 0
     ceiling_above = (points["measured"].where(short).groupby(key).transform("min")
                      >= points["measured"].where(inside).groupby(key).transform("max"))
-    rising = exp.groupby(key).transform(lambda s: s.max() > s.min())
+    rising = exp.groupby(key).transform("max") > exp.groupby(key).transform("min")
     return (short & (lowest_short > highest_other) & (n_inside >= 2) & all_others_inside & ceiling_above
             & rising).fillna(False).astype(bool)
 
@@ -122,8 +122,9 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
     ctx.points = pts
     exports = ctx.extras.setdefault("point_exports", [])
     exports += [c for c in ("ne43_band", "clipped") if c not in exports]
-    findings = [warning(band_words(m, b), field="reading", code="ne43", **_where(row))
-                for row, m, b in zip(pts.itertuples(), ma, pts["ne43_band"], strict=True) if b in OUTSIDE]
+    outside = pts["ne43_band"].isin(OUTSIDE)
+    findings = [warning(band_words(m, row.ne43_band), field="reading", code="ne43", **_where(row))
+                for row, m in zip(pts[outside].itertuples(), ma[outside], strict=True)]
     for (test, phase), rows in pts[pts["clipped"]].groupby(["test", "phase"], sort=False):
         first = rows.sort_values("expected").iloc[0]
         ceiling = float(output_ma(rows)[0].max())
