@@ -12,8 +12,9 @@ output span 0..1, MPE), in this order, first match wins:
      ((measured − out_min) / (expected − out_min) constant within 1 %, more than 5 % from 1):
      scaled for another CT ratio or range;
    - **zero**, **span** or **zero and span** — the straight line fitted to error against
-     position: its intercept (zero) and its rise over the span (span), each significant when
-     larger than half the MPE and the other smaller than half of it;
+     position, when no point lies more than half the MPE off it: its intercept (zero) and its
+     rise over the span (span), each significant when larger than half the MPE and the other
+     smaller than half of it;
    - **non-linear** — what is left after that line exceeds half the MPE.
 
 Independently, **unsteady** — the spread between repeat readings (max − min, or ±2 standard
@@ -27,7 +28,6 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-
 from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.findings import Finding, warning
@@ -108,6 +108,11 @@ def signatures(table: pd.DataFrame) -> pd.DataFrame:
     span_sig = t["span_rise"].abs() > half
     zero_only = zero_sig & (t["span_rise"].abs() < half)
     span_only = span_sig & (t["zero"].abs() < half)
+    straight = t["residual"] <= half  # the fitted line explains the errors: a zero/span shape, not a bend
+    zero_sig &= straight
+    span_sig &= straight
+    zero_only &= straight
+    span_only &= straight
     scaled = ((t["ratio"] - 1).abs() > RATIO_AWAY) & (t["ratio_spread"] <= RATIO_AGREE)
     u = " " + t["unit"].astype(str)
 

@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import pandas as pd
 import pytest
-
 from loopledger.cli import main
 from loopledger.plugins import burden
+
 from tests.evidence import CT_ASSET, INSTRUMENTS, good_points, result_yaml, write_evidence
 
 

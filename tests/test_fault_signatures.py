@@ -7,8 +7,8 @@ fiducial rule of IEC 60688, from memory). The signatures themselves are common p
 from __future__ import annotations
 
 import yaml
-
 from loopledger.cli import main
+
 from tests.evidence import CT_ASSET, good_points, result_yaml, write_evidence
 
 PCTS = (0, 25, 50, 75, 100)
@@ -46,6 +46,12 @@ def test_fixed_ratio_is_scaled_for_another_ct_ratio(tmp_path, run_folder):
     assert sig == "scaled"
     [f] = [f for f in ctx.findings if f.code == "fault-signature"]
     assert "0.800 × expected" in f.message and "current-transformer ratio" in f.message
+
+
+def test_one_point_off_the_line_is_non_linear_not_span(tmp_path, run_folder):
+    # a single +0.3 mA reading at 75 % fits no straight line of the errors
+    _, sig = _signature(tmp_path, run_folder, result_yaml(as_found=_ma([4, 8, 12, 16.3, 20])))
+    assert sig == "non-linear"
 
 
 def test_readings_falling_as_input_rises_are_reversed(tmp_path, run_folder):

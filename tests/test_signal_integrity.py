@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from loopledger.cli import main
 from loopledger.plugins.signal_integrity import classify
+
 from tests.evidence import CT_ASSET, good_points, result_yaml, write_evidence
 
 
