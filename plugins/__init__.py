@@ -19,6 +19,9 @@ BUILTIN: tuple[str, ...] = (
     "linearity",
     "method_compare",
     "explain",
+    "burden",
+    "signal_integrity",
+    "fault_signatures",
     "export_csv",
     "handbook",
 )

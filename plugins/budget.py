@@ -29,7 +29,6 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-
 from loopledger import quantities as q
 from loopledger.context import RunContext
 
@@ -42,6 +41,9 @@ TERM_COLUMNS = ["row", "component", "distribution", "half_width", "unit", "divis
 #: not a fault of the evidence, so only ever a warning
 UNEVALUATED = ("a budget term could not be evaluated (infinite slope, e.g. at the zero of a square-root "
                "device, where the GUM's linear propagation does not apply)")
+#: how far past its nominal value a range is taken to read (a 2 V range showing 2.0016 V); beyond
+#: this a finer-digit range is not believed (an assumption, not a published figure)
+OVER_RANGE = 0.10
 #: methods whose reading comes from a control system, not from the test meter
 NO_METER = ("display",)
 
@@ -142,8 +144,9 @@ def pick_ranges(ctx: RunContext, pts: pd.DataFrame) -> pd.DataFrame:
     The digits written say which range the meter was on: a range whose resolution is coarser than
     the last digit written cannot have shown the reading, so ``2.0016 V`` on a meter with 2 V
     (0.1 mV) and 20 V (1 mV) ranges was read on the 2 V range, over its nominal value (meters
-    read a little beyond it). In order of preference: the smallest range that holds the reading
-    and could show its digits; the largest range below it that could show them (over-range); the
+    read a little beyond it); digits finer than any range shows count as the finest range's. In
+    order of preference: the smallest range that holds the reading
+    and could show its digits; the largest range below it, by at most :data:`OVER_RANGE`, that could show them; the
     smallest that holds it; the largest. Columns ``range`` (as written), ``range_value``,
     ``accuracy`` and ``resolution`` (values in the reading's unit); NaN where the meter has no
     range of the reading's dimension.
@@ -169,8 +172,12 @@ def pick_ranges(ctx: RunContext, pts: pd.DataFrame) -> pd.DataFrame:
     if both.empty:
         return empty
     holds = (both["range_value"] >= both["reading"].abs() * (1 - 1e-12)).to_numpy()
-    shows = ~(both["resolution"] > both["written"] * (1 + 1e-9)).to_numpy()
-    tier = np.select([holds & shows, ~holds & shows, holds], [0, 1, 2], 3)
+    # digits finer than every range can show say nothing about the range: read them as the finest
+    finest = both.groupby("row")["resolution"].transform("min")
+    written = np.fmax(both["written"], finest)
+    shows = ~(both["resolution"] > written * (1 + 1e-9)).to_numpy()
+    near = (both["range_value"] * (1 + OVER_RANGE) >= both["reading"].abs()).to_numpy()
+    tier = np.select([holds & shows, ~holds & near & shows, holds], [0, 1, 2], 3)
     both = both.assign(tier=tier, order=np.where(holds, both["range_value"], -both["range_value"]))
     best = both.sort_values(["row", "tier", "order"]).drop_duplicates("row").set_index("row")
     out = empty.copy()

@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-
 from loopledger.context import RunContext
 from loopledger.findings import Finding, warning
 from loopledger.hookspecs import hookimpl

@@ -20,7 +20,6 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-
 from loopledger.context import RunContext
 from loopledger.contracts import DecisionRule
 from loopledger.findings import Finding, error

@@ -14,7 +14,6 @@ from pathlib import Path
 from typing import TextIO
 
 import pandas as pd
-
 from loopledger.context import RunContext
 from loopledger.contracts import Command
 from loopledger.hookspecs import hookimpl
@@ -58,7 +57,8 @@ def write(ctx: RunContext, test: str, out: TextIO) -> None:
     for _, r in pts.iterrows():
         unit = r["output_unit"]
         out.write(f"\n{str(r['phase']).replace('_', '-')} #{r['point']} (line {r['line']})\n")
-        out.write(f"  input        {r['input']} = {r['input_pct']:.4g} % of range → expected {r['expected']:.6g} {unit}\n")
+        out.write(f"  input        {r['input']} = {r['input_pct']:.4g} % of range → "
+                  f"expected {r['expected']:.6g} {unit}\n")
         out.write(f"  conversion   {conversion(ctx, r)}\n")
         out.write(f"  error        {r['error']:+.5g} {unit} ({r['error_pct_span']:+.4g} % of span); "
                   f"MPE ±{r['mpe']:.4g} {unit}\n")

@@ -29,7 +29,6 @@ from itertools import combinations
 
 import numpy as np
 import pandas as pd
-
 from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.findings import Finding
@@ -210,7 +209,8 @@ def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
 #: quantities with a direction (the rest are magnitudes)
 SIGNED = ("zero_error_pct", "span_error_pct", "trim_zero", "trim_span")
 LABELS = {"zero_error_pct": "Zero error", "span_error_pct": "Span error",
-          "nonlin_terminal_pct": "Non-linearity, terminal-based", "nonlin_independent_pct": "Non-linearity, independent",
+          "nonlin_terminal_pct": "Non-linearity, terminal-based",
+          "nonlin_independent_pct": "Non-linearity, independent",
           "hysteresis_pct": "Hysteresis", "nonrepeatability_pct": "Non-repeatability",
           "trim_zero": "Suggested zero trim", "trim_span": "Suggested span trim",
           "worst_after_trim_pct": "Predicted worst error after trim"}

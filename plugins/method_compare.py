@@ -17,7 +17,6 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-
 from loopledger import quantities as q
 from loopledger.context import RunContext
 from loopledger.contracts import Section
@@ -145,7 +144,8 @@ def planned(ctx: RunContext, asset: str, plan: dict[str, Any]) -> pd.DataFrame:
         from loopledger.plugins.reading_methods import shunt_ohms
 
         shunts = ctx.instruments[ctx.instruments["kind"] == "shunt"] if not ctx.instruments.empty else pd.DataFrame()
-        ohms = shunt_ohms(ctx, pd.Series(shunts.index, index=shunts.index, dtype=object)) if len(shunts) else pd.Series()
+        ids = pd.Series(shunts.index, index=shunts.index, dtype=object)
+        ohms = shunt_ohms(ctx, ids) if len(shunts) else pd.Series(dtype=float)
         wanted = plan.get("shunt_ohm")
         match = ohms[np.isclose(ohms, float(wanted))] if wanted is not None else ohms
         if match.empty:

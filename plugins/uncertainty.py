@@ -14,7 +14,6 @@ from __future__ import annotations
 import math
 
 import pandas as pd
-
 from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.findings import Finding, error, warning

@@ -5,6 +5,7 @@ from __future__ import annotations
 import copy
 
 from loopledger.cli import main
+
 from tests.evidence import INSTRUMENTS, result_yaml, write_evidence
 
 RIG = copy.deepcopy(INSTRUMENTS)

@@ -11,10 +11,10 @@ import numpy as np
 import pandas as pd
 import pytest
 import yaml
-from scipy.optimize import linprog
-
 from loopledger.cli import main
 from loopledger.plugins.linearity import analyse, minimax_lines
+from scipy.optimize import linprog
+
 from tests.evidence import result_yaml, write_evidence
 
 

@@ -12,10 +12,10 @@ import math
 import numpy as np
 import pandas as pd
 import pytest
-from scipy import stats
-
 from loopledger.cli import main
 from loopledger.plugins import budget
+from scipy import stats
+
 from tests.evidence import CT_ASSET, INSTRUMENTS, good_points, result_yaml, write_evidence
 
 #: a calibrator-grade source and the meter/shunt of the issue's worked point (fixture data)
@@ -238,3 +238,12 @@ def test_square_root_zero_gets_a_warning_not_an_invalid_file(tmp_path, run_folde
     assert len(found) == 1 and found[0].severity == "warning" and found[0].point == "as_found #1"
     assert ctx.points["U"].isna().tolist() == [True, False, False]
     assert list(ctx.tests["valid"]) == [True]
+
+
+@pytest.mark.parametrize("reading,half_digit", [("2.00200 V", 0.00005), ("2.5 V", 0.0005), ("2.5000 V", 0.0005)])
+def test_range_choice_when_digits_say_little(tmp_path, run_folder, reading, half_digit):
+    """Digits finer than any range shows count as the finest range's (2.00200 V → the 2 V range,
+    over-ranging); a reading above the 2 V range's reach is on 20 V whatever is written (common
+    practice for the fixture's 2 V / 20 V meter)."""
+    ctx = shunt_point(tmp_path, run_folder, reading=reading)
+    assert terms_of(ctx).at["meter resolution", "half_width"] == pytest.approx(half_digit)
