@@ -8,6 +8,8 @@ flow equation, common practice): 25 % of ΔP is 50 % of flow, i.e. 12 mA on
 so transmitters hold the output at zero flow below a low-flow cut-off:
 ``low_flow_cutoff_pct`` in assets.csv, in % of flow (output), blank = none.
 Below the cut-off the expected output is ``output_min`` and the sensitivity 0.
+At exactly 0 % of a square-root range with no cut-off the sensitivity is
+unbounded: it is left NaN and the file gets a note saying so.
 """
 
 from __future__ import annotations
@@ -16,7 +18,7 @@ import numpy as np
 import pandas as pd
 from loopledger.context import RunContext
 from loopledger.contracts import SignalType
-from loopledger.findings import Finding
+from loopledger.findings import Finding, note
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import asset_columns, scaling
 from loopledger.schemas.signals import ProcessTransmitterColumns
@@ -43,7 +45,13 @@ class ProcessTransmitter(SignalType):
     def evaluate(self, points: pd.DataFrame, ctx: RunContext) -> tuple[pd.DataFrame, list[Finding]]:
         cols, findings = asset_columns.check(points, ProcessTransmitterColumns)
         frame, more = scaling.linear_evaluate(points)
-        return apply_cutoff(frame, points, cols["low_flow_cutoff_pct"]), findings + more
+        frame = apply_cutoff(frame, points, cols["low_flow_cutoff_pct"])
+        unbounded = frame["sensitivity"].isna() & frame["expected"].notna()
+        findings += [note("square root at 0 % of the input: the output's sensitivity to the input is unbounded "
+                          "here (no low_flow_cutoff_pct for this asset), so this point has no sensitivity",
+                          field="input", **scaling.where(points, i))
+                     for i in points.loc[unbounded].drop_duplicates("source_file").index]
+        return frame, findings + more
 
 
 @hookimpl

@@ -25,13 +25,14 @@ def where(points: pd.DataFrame, idx: object) -> dict[str, object]:
             "point": f"{points.at[idx, 'phase']} #{points.at[idx, 'point']}"}
 
 
-def input_in_range_unit(points: pd.DataFrame, scale: pd.Series | float = 1.0,
+def input_in_range_unit(points: pd.DataFrame, scale: pd.Series | float = 1.0, also: str = "",
                         ) -> tuple[pd.Series, pd.Series, list[Finding]]:
     """(input_pct, injected value in the asset's input_unit × scale, findings).
 
     ``scale`` divides a written quantity before it is placed on the input range
     (a current transformer's ratio for primary injection) and multiplies the
-    injected value computed from a percentage.
+    injected value computed from a percentage. ``also`` names another unit the
+    signal type accepts, for the message about an input in neither.
     """
     findings: list[Finding] = []
     lo, hi = points["input_min"].astype(float), points["input_max"].astype(float)
@@ -42,8 +43,9 @@ def input_in_range_unit(points: pd.DataFrame, scale: pd.Series | float = 1.0,
     pct = pd.Series(np.where(is_pct, value, (native - lo) / (hi - lo) * 100.0), index=points.index)
     injected = pd.Series(np.where(is_pct, (lo + value / 100.0 * (hi - lo)) * scale, converted), index=points.index)
     for idx in points.index[~is_pct & converted.isna()]:
-        findings.append(error(f"input '{points.at[idx, 'input']}' is not in units of {points.at[idx, 'input_unit']} "
-                              "or %", field="input", **where(points, idx)))
+        units = f"{points.at[idx, 'input_unit']}, {also} or %" if also else f"{points.at[idx, 'input_unit']} or %"
+        findings.append(error(f"input '{points.at[idx, 'input']}' is not in units of {units}", field="input",
+                              **where(points, idx)))
     return pct, injected, findings
 
 
@@ -63,9 +65,10 @@ def expected_output(points: pd.DataFrame, out_frac: pd.Series) -> pd.Series:
     return lo + out_frac * (hi - lo)
 
 
-def linear_evaluate(points: pd.DataFrame, scale: pd.Series | float = 1.0) -> tuple[pd.DataFrame, list[Finding]]:
+def linear_evaluate(points: pd.DataFrame, scale: pd.Series | float = 1.0, also: str = "",
+                    ) -> tuple[pd.DataFrame, list[Finding]]:
     """The whole evaluation for a device whose output follows its input range directly."""
-    pct, injected, findings = input_in_range_unit(points, scale)
+    pct, injected, findings = input_in_range_unit(points, scale, also)
     frac, slope = characteristic(pct, points["characteristic"])
     expected = expected_output(points, frac)
     in_span = (points["input_max"].astype(float) - points["input_min"].astype(float)) * scale
@@ -86,7 +89,7 @@ def evaluate_via(points: pd.DataFrame, via: pd.Series, measurand: pd.Series, mea
     measurand (``measurand`` in ``measurand_unit``, e.g. °C) and gives
     ``slope`` = d measurand / d injected; the rest go through the plain path.
     """
-    frame, findings = linear_evaluate(points.loc[~via])
+    frame, findings = linear_evaluate(points.loc[~via], also=injected_unit)
     rows = points.loc[via]
     if rows.empty:
         return frame.reindex(points.index), findings

@@ -50,3 +50,11 @@ def test_end_to_end_through_the_cli(tmp_path):
     split = pd.read_csv(out / "data" / "loop_split.csv")
     assert len(split) == 6
     assert split["card_error_pct"].round(6).isin([0.1, -0.06]).all()
+
+
+def test_both_test_pages_get_the_split(tmp_path, run_folder, pm):
+    ctx = run_folder(_evidence(tmp_path))
+    sections = [s for found in pm.hook.ll_test_sections(ctx=ctx, test="device") for s in found or []]
+    split = [s for s in sections if s.title.startswith("Loop split")]
+    assert len(split) == 1 and split[0].kind == "table" and len(split[0].rows) == 6
+    assert {row[-1] for row in split[0].rows} == {"+0.100", "-0.060"}

@@ -16,7 +16,7 @@ def test_describe_lists_each_plugin_with_its_hooks_and_signals(pm):
     entries = {e["name"]: e for e in plugin_list.describe(pm)}
     assert entries["rtd_transmitter"]["hooks"] == ["ll_signal_types"]
     assert [s.name for s in entries["rtd_transmitter"]["signal types"]] == ["rtd-transmitter"]
-    assert set(entries["loop_split"]["hooks"]) == {"ll_analyse", "ll_export_tables"}
+    assert set(entries["loop_split"]["hooks"]) == {"ll_analyse", "ll_export_tables", "ll_test_sections"}
     assert [m.name for m in entries["counts_reading"]["reading methods"]] == ["counts"]
     signals = {s.name for e in entries.values() for s in e.get("signal types", [])}
     assert signals == BUILT_IN_SIGNALS
@@ -28,7 +28,7 @@ def test_cli_lists_signal_types_and_their_asset_columns(capsys):
     for name in BUILT_IN_SIGNALS:
         assert f"signal type {name}:" in out
     assert "assets.csv column r0_ohm" in out and "assets.csv column tc_type" in out
-    assert "hooks: ll_analyse, ll_export_tables" in out
+    assert "hooks: ll_analyse, ll_export_tables, ll_test_sections" in out
     assert "command plugins:" in out
 
 

@@ -95,3 +95,14 @@ def test_end_to_end_through_the_cli(tmp_path):
     assert main(["run", str(_evidence(tmp_path)), "--out", str(out), "--no-handbook"]) == 0
     points = pd.read_csv(out / "data" / "points.csv")
     assert len(points) == 11 and (points["decision"] == "pass").all()
+
+
+def test_square_root_at_zero_without_cut_off_gets_a_note(tmp_path, run_folder):
+    # d√x/dx = 1/(2√x) is unbounded at x = 0 (calculus): no finite sensitivity exists there
+    rows = [dict(ASSETS[0], low_flow_cutoff_pct=None)]
+    ev = write_evidence(tmp_path / "ev", {"ft.yaml": result_doc("T-FT-DP", FLOW_POINTS)}, assets=rows)
+    ctx = run_folder(ev)
+    notes = [f for f in ctx.findings if f.severity == "note"]
+    assert len(notes) == 1 and notes[0].point == "as_found #1"
+    assert list(ctx.tests["verdict"]) == ["pass"]
+    assert ctx.points.set_index("point").at[1, "expected"] == pytest.approx(4.0)

@@ -70,3 +70,11 @@ def test_end_to_end_through_the_cli(tmp_path):
     assert main(["run", str(_evidence(tmp_path)), "--out", str(out), "--no-handbook"]) == 0
     points = pd.read_csv(out / "data" / "points.csv")
     assert len(points) == 9 and (points["decision"] == "pass").all()
+
+
+def test_input_in_the_wrong_kind_of_unit_names_both_accepted_units(tmp_path, run_folder):
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": result_doc("T-TT-PT100", [{"input": "4.1 mV",
+                                                                               "reading": "4 mA"}])},
+                        assets=ASSETS[:1])
+    bad = [f for f in run_folder(ev).findings if f.severity == "error"]
+    assert len(bad) == 1 and "degC, ohm or %" in bad[0].message and bad[0].field == "input"

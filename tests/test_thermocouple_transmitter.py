@@ -76,3 +76,13 @@ def test_end_to_end_through_the_cli(tmp_path):
     assert len(points) == 5 and (points["decision"] == "pass").all()
     tests = pd.read_csv(out / "data" / "tests.csv")
     assert sorted(tests["cjc_c"].tolist()) == [0.0, 25.0]
+
+
+def test_cjc_c_from_a_csv_result_file(tmp_path, run_folder):
+    # IEC 60584-1 type J (domain.md): E(100 °C) 5.269 − E(25 °C) 1.277 = 3.992 mV with the terminals at 25 °C
+    csv = ("asset,date,technician,connection,method,injection,cjc_c,source,meter,phase,input,reading\n"
+           "T-TC-J,2026-04-14,T. Tester,standalone,direct,secondary,25.0,SRC-1,DMM-1,as_found,3.992 mV,7.201 mA\n")
+    ev = write_evidence(tmp_path / "ev", {"j.csv": csv}, assets=ASSETS[1:])
+    ctx = run_folder(ev)
+    assert [f for f in ctx.findings if f.severity == "error"] == []
+    assert ctx.points["expected"].iloc[0] == pytest.approx(7.2, abs=16 * 0.03 / 500)
