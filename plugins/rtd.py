@@ -22,6 +22,8 @@ B = -5.775e-7
 C = -4.183e-12
 T_MIN = -200.0
 T_MAX = 850.0
+#: a resistance set to a table value rounded to 0.01 ohm may land just outside the range ends
+RANGE_SLACK = 0.01
 
 Array = npt.NDArray[np.float64]
 
@@ -41,7 +43,7 @@ def slope(t: npt.ArrayLike, r0: npt.ArrayLike = 100.0) -> Array:
 
 
 def temperature(r: npt.ArrayLike, r0: npt.ArrayLike = 100.0, iterations: int = 8) -> Array:
-    """Temperature in °C for a resistance ``r`` ohms (NaN outside −200..850 °C)."""
+    """Temperature in °C for a resistance ``r`` ohms (NaN outside −200..850 °C, ± ``RANGE_SLACK``)."""
     r = np.asarray(r, dtype=float)
     r0 = np.asarray(r0, dtype=float)
     w1 = r / r0 - 1.0
@@ -54,5 +56,5 @@ def temperature(r: npt.ArrayLike, r0: npt.ArrayLike = 100.0, iterations: int = 8
         for _ in range(iterations):
             tb = tb - (resistance(tb, r0) - r) / slope(tb, r0)
         t = np.where(below, tb, t)
-    in_range = (t >= T_MIN - 1e-9) & (t <= T_MAX + 1e-9)
+    in_range = (t >= T_MIN - RANGE_SLACK) & (t <= T_MAX + RANGE_SLACK)
     return np.where(in_range, t, np.nan)

@@ -66,3 +66,5 @@ def test_out_of_range_resistance_is_nan():
     # IEC 60751 defines the equation from −200 °C to 850 °C only
     assert np.isnan(rtd.temperature(10.0))
     assert np.isnan(rtd.temperature(400.0))
+    # ... but the −200 °C table value rounded to 2 decimals (18.52 ohm) is still accepted
+    assert rtd.temperature(18.52) == pytest.approx(-200.0, abs=0.001)
