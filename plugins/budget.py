@@ -15,7 +15,9 @@ freedom (infinite for type B). Components:
   characteristic's d output / d input (the ``sensitivity`` column of the point table);
 - ``repeatability``: type A, s/√n with n − 1 degrees of freedom;
 - ``unsteady reading``: half the min/max spread, rectangular;
-- ``display resolution`` / ``display accuracy`` for the ``display`` method.
+- ``display resolution`` (the last digit written, or ``display_resolution``) for a reading taken
+  from the control system (``display``, or a plugin's method used without a meter) and
+  ``display accuracy`` for the ``display`` method.
 
 Combined u = √Σu_i²; ν_eff by Welch–Satterthwaite (GUM G.2b); k from Student's t for 95.45 %
 (k = 2 when every term is type B); U = k·u.
@@ -46,6 +48,8 @@ UNEVALUATED = ("a budget term could not be evaluated (infinite slope, e.g. at th
 OVER_RANGE = 0.10
 #: methods whose reading comes from a control system, not from the test meter
 NO_METER = ("display",)
+#: methods that need the test meter; any other method uses it only when the test names a meter
+METER_METHODS = ("direct", "shunt")
 
 
 def coverage_factor(nu_eff: Any) -> np.ndarray:
@@ -212,11 +216,11 @@ def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFr
 
     c_reading = reading_sensitivity(ctx, pts)
     terms: list[pd.DataFrame] = []
-    uses_meter = ~pts["method"].isin(NO_METER)
+    uses_meter = pts["method"].isin(METER_METHODS) | (pts["meter"].notna() & ~pts["method"].isin(NO_METER))
 
     # --- meter: accuracy on the range the reading falls in, and half a digit of resolution
     metered = pts[uses_meter]
-    lack(uses_meter & pts["meter"].isna(), "no meter named (instruments.meter)")
+    lack(pts["method"].isin(METER_METHODS) & pts["meter"].isna(), "no meter named (instruments.meter)")
     picked = pick_ranges(ctx, metered)
     lack(uses_meter & pts["meter"].notna() & picked["range_value"].reindex(pts.index).isna(),
          "the meter has no range in instruments.yaml for the reading's unit")
@@ -295,8 +299,8 @@ def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFr
     terms.append(_term(idx, "unsteady reading", "rectangular", pts.loc[idx, "reading_half_spread"],
                        pts.loc[idx, "reading_unit"], SQRT3, c_reading[idx]))
 
-    # --- the control system's display
-    shown = pts[pts["method"] == "display"]
+    # --- a reading taken from the control system (display, counts ...): its last digit
+    shown = pts[~uses_meter]
     if len(shown):
         res = written_resolution(shown["reading_text"])
         if "display_resolution" in shown.columns:
@@ -305,6 +309,7 @@ def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFr
         terms.append(_term(shown.index, "display resolution", "rectangular", res / 2.0, shown["reading_unit"],
                            SQRT3, c_reading[shown.index]))
         if "display_accuracy" in shown.columns:
+            shown = shown[shown["method"] == "display"]
             for spec_text, idx in shown.dropna(subset=["display_accuracy"]).groupby("display_accuracy").groups.items():
                 rows = shown.loc[idx]
                 pct = rows["reading_unit"] == q.PERCENT

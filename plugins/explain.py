@@ -17,7 +17,7 @@ import pandas as pd
 from loopledger.context import RunContext
 from loopledger.contracts import Command
 from loopledger.hookspecs import hookimpl
-from loopledger.plugins.uncertainty import fmt
+from loopledger.plugins.uncertainty import fmt, percent
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -39,7 +39,9 @@ def conversion(ctx: RunContext, r: pd.Series) -> str:
     if r["method"] == "display":
         return (f"displayed {r['reading_text']} mapped onto {r['output_min']:g}-{r['output_max']:g} {unit} "
                 f"→ {fmt(r['measured'], 6)} {unit}")
-    return f"{r['reading_text']} read on the meter {r['meter']} → {fmt(r['measured'], 6)} {unit}"
+    if isinstance(r["meter"], str):
+        return f"{r['reading_text']} read on the meter {r['meter']} → {fmt(r['measured'], 6)} {unit}"
+    return f"{r['reading_text']} (method {r['method']}) → {fmt(r['measured'], 6)} {unit}"
 
 
 def write(ctx: RunContext, test: str, out: TextIO) -> None:
@@ -70,9 +72,7 @@ def write(ctx: RunContext, test: str, out: TextIO) -> None:
                       f"{fmt(b.divisor):>9}{fmt(b.sensitivity):>13}{fmt(b.contribution):>14}{fmt(b.dof, 3):>6}\n")
         out.write(f"  combined     u = {fmt(r.get('u'))} {unit}, ν_eff = {fmt(r.get('nu_eff'), 3)}, "
                   f"k = {fmt(r.get('k'), 4)}, U = {fmt(r.get('U'))} {unit} (95.45 %)\n")
-        risk = r.get("risk")
-        out.write(f"  capability   TUR = {fmt(r.get('tur'), 3)}:1, specific risk = "
-                  f"{'—' if pd.isna(risk) else f'{100 * float(risk):.3g} %'}\n")
+        out.write(f"  capability   TUR = {fmt(r.get('tur'), 3)}:1, specific risk = {percent(r.get('risk'))}\n")
         out.write(f"  decision     {r['decision']} by rule {r['decision_rule']} "
                   f"(acceptance limit |e| ≤ {fmt(r['acceptance_limit'])} {unit})\n")
     analysis = ctx.extras.get("analysis")

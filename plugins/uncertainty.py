@@ -79,12 +79,20 @@ def fmt(value: object, digits: int = 4) -> str:
     return f"{number:.{digits}g}"
 
 
+def percent(p: object) -> str:
+    """A probability as a percentage for people: '—', '< 0.001 %' or three significant digits."""
+    if p is None or pd.isna(p):  # type: ignore[arg-type]
+        return "—"
+    value = 100.0 * float(p)  # type: ignore[arg-type]
+    return "< 0.001 %" if value < 0.001 else f"{value:.3g} %"
+
+
 def point_rows(pts: pd.DataFrame) -> list[list[str]]:
     cols = ["phase", "point", "u", "k", "nu_eff", "U", "mpe", "tur", "risk", "acceptance_limit", "decision"]
     rows = []
     for r in pts.reindex(columns=cols).itertuples(index=False):
         rows.append([str(r.phase).replace("_", "-"), str(r.point), fmt(r.u), fmt(r.k, 3), fmt(r.nu_eff, 3), fmt(r.U),
-                     fmt(r.mpe), fmt(r.tur, 3), "—" if pd.isna(r.risk) else f"{100 * float(r.risk):.2f} %",
+                     fmt(r.mpe), fmt(r.tur, 3), percent(r.risk),
                      fmt(r.acceptance_limit), str(r.decision)])
     return rows
 
