@@ -247,3 +247,19 @@ def test_range_choice_when_digits_say_little(tmp_path, run_folder, reading, half
     practice for the fixture's 2 V / 20 V meter)."""
     ctx = shunt_point(tmp_path, run_folder, reading=reading)
     assert terms_of(ctx).at["meter resolution", "half_width"] == pytest.approx(half_digit)
+
+
+def test_counts_read_from_the_control_system_need_no_meter(tmp_path, run_folder):
+    """A 12-bit card, 0..4095 counts over 4-20 mA: one count is 16/4095 mA, so half a count
+    rectangular is 0.5/√3 × 16/4095 = 0.00112795 mA (arithmetic; JCGM 100:2008 §4.3.7)."""
+    asset = {**CT_ASSET, "counts_min": 0, "counts_max": 4095}
+    doc = result_yaml(method="counts", as_found=[("50 %", "2048 counts")], instruments={"source": "CAL-1"})
+    ev = write_evidence(tmp_path / "ev", {"c.yaml": doc}, assets=[asset], instruments=RIG)
+    lines = (ev / "assets.csv").read_text(encoding="utf-8").splitlines()
+    if "counts_min" not in lines[0]:
+        (ev / "assets.csv").write_text(f"{lines[0]},counts_min,counts_max\n{lines[1]},0,4095\n", encoding="utf-8")
+    ctx = run_folder(ev)
+    assert not [f for f in ctx.findings if f.code == "uncertainty-incomplete"]
+    terms = terms_of(ctx)
+    assert set(terms.index) == {"display resolution", "source"}
+    assert terms.at["display resolution", "contribution"] == pytest.approx(0.5 / math.sqrt(3) * 16 / 4095, rel=1e-6)
