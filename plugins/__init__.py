@@ -13,6 +13,10 @@ BUILTIN: tuple[str, ...] = (
     "measured_output",
     "reading_methods",
     "tolerance",
+    "history",
+    "drift",
+    "intervals",
+    "traceability",
     "export_csv",
     "handbook",
 )
