@@ -28,7 +28,7 @@ import pandas as pd
 
 from loopledger.context import RunContext
 from loopledger.contracts import Command, Section
-from loopledger.findings import Finding, note, warning
+from loopledger.findings import Finding, warning
 from loopledger.hookspecs import hookimpl
 
 ROLES = ("source", "meter", "shunt")
@@ -63,16 +63,18 @@ def _day(value: object) -> str:
     return "" if value is None or pd.isna(value) else pd.Timestamp(value).strftime("%Y-%m-%d")  # type: ignore[arg-type]
 
 
-def describe(row: pd.Series) -> str:
-    who = f"{row['role']} {row['instrument']}"
-    if row["status"] == "past-due":
-        return f"{who} was past its calibration due date {_day(row['due'])}"
-    if row["status"] == "before-calibration":
-        return (f"{who} was used before its calibration on record ({_day(row['calibrated'])}); "
-                "the certificate in force that day is not in instruments.yaml")
-    if row["status"] == "no-dates":
-        return f"{who} has no calibration dates in instruments.yaml"
-    return ""
+def describe(table: pd.DataFrame) -> pd.Series:
+    """One sentence per (test, role) row whose status is not ok ('' where it is)."""
+    who = table["role"].astype(str) + " " + table["instrument"].astype(str)
+    due = table["due"].dt.strftime("%Y-%m-%d")
+    cal = table["calibrated"].dt.strftime("%Y-%m-%d")
+    text = np.select(
+        [table["status"] == "past-due", table["status"] == "before-calibration", table["status"] == "no-dates"],
+        [who + " was past its calibration due date " + due,
+         who + " was used before its calibration on record (" + cal + "); the certificate in force that day "
+         "is not in instruments.yaml",
+         who + " has no calibration dates in instruments.yaml"], default="")
+    return pd.Series(text, index=table.index, dtype=object)
 
 
 def check(ctx: RunContext) -> list[Finding]:
@@ -81,19 +83,17 @@ def check(ctx: RunContext) -> list[Finding]:
     table = table[table["status"] != "unknown"]  # the schema check already reported those
     ctx.extras["reference_uses"] = table
     issues = table[table["status"] != "ok"].copy()
-    issues["text"] = issues.apply(describe, axis=1) if len(issues) else pd.Series(dtype=str)
+    issues["text"] = describe(issues)
     by_test = issues.groupby("test")["text"].agg("; ".join)
     past_due = set(issues.loc[issues["status"] == "past-due", "test"])
     ctx.tests["reference_out_of_cal"] = ctx.tests["test"].isin(past_due).astype(bool)
     ctx.tests["reference_issues"] = [str(by_test.get(t, "")) for t in ctx.tests["test"]]
     exports = ctx.extras.setdefault("test_exports", [])
     exports += [c for c in ("reference_out_of_cal", "reference_issues") if c not in exports]
-    findings: list[Finding] = []
-    for row in issues.itertuples():
-        make = warning if row.status == "past-due" else note
-        findings.append(make(f"test of {row.date}: {row.text}", file=row.source_file, field=f"instruments.{row.role}",
-                             code=f"reference-{row.status}"))
-    return findings
+    # a warning only where the register shows the instrument out of calibration; the other issues are
+    # in reference_issues and on the test page (one note per historical test would bury the warnings)
+    return [warning(f"test of {row.date}: {row.text}", file=row.source_file, field=f"instruments.{row.role}",
+                    code="reference-past-due") for row in issues[issues["status"] == "past-due"].itertuples()]
 
 
 @hookimpl
@@ -124,7 +124,8 @@ def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
 def impacted(ctx: RunContext, instrument: str, since: dt.date | None) -> tuple[pd.DataFrame, dt.date | None]:
     """Tests that used ``instrument`` on or after ``since`` (default: its calibrated date on record).
 
-    One row per test: date, test, asset, role, verdict, source_file, worst_pct (largest |error| as %
+    One row per test: date, test, asset, role, verdict, status (of the instrument on that date, see
+    :func:`uses`), source_file, worst_pct (largest |error| as %
     of the acceptance limit) and points (each point's |error| as % of its limit).
     """
     if since is None and instrument in ctx.instruments.index:
@@ -135,7 +136,7 @@ def impacted(ctx: RunContext, instrument: str, since: dt.date | None) -> tuple[p
     if since is not None:
         mine = mine[pd.to_datetime(mine["date"], errors="coerce") >= pd.Timestamp(since)]
     mine = mine.groupby("test", sort=False).agg(date=("date", "first"), role=("role", ", ".join),
-                                                source_file=("source_file", "first"))
+                                                source_file=("source_file", "first"), status=("status", "first"))
     info = ctx.tests.set_index("test")
     mine["asset"] = info["asset"].reindex(mine.index)
     mine["verdict"] = info["verdict"].reindex(mine.index)
@@ -150,7 +151,7 @@ def impacted(ctx: RunContext, instrument: str, since: dt.date | None) -> tuple[p
         mine["worst_pct"] = np.nan
         mine["points"] = ""
     out = mine.reset_index().sort_values(["date", "test"], kind="stable")
-    return out[["date", "test", "asset", "role", "verdict", "worst_pct", "points", "source_file"]], since
+    return out[["date", "test", "asset", "role", "verdict", "status", "worst_pct", "points", "source_file"]], since
 
 
 def _add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -186,7 +187,8 @@ def _run(args: argparse.Namespace) -> int:
       + f": {len(table)}\n")
     for r in table.itertuples():
         worst = "—" if pd.isna(r.worst_pct) else f"{r.worst_pct:.0f} %"
-        w(f"{r.date}  {r.asset}  {r.verdict}  as {r.role}  worst |error| {worst} of limit  {r.source_file}\n")
+        late = "  (used after its due date)" if r.status == "past-due" else ""
+        w(f"{r.date}  {r.asset}  {r.verdict}  as {r.role}  worst |error| {worst} of limit  {r.source_file}{late}\n")
         if r.points:
             w(f"    {r.points}\n")
     return 0
