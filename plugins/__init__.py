@@ -15,6 +15,7 @@ BUILTIN: tuple[str, ...] = (
     "tolerance",
     "history",
     "drift",
+    "drift_chart",
     "intervals",
     "traceability",
     "export_csv",
