@@ -17,8 +17,8 @@ OFFSETS = [("2022-03-01", 0.020, None), ("2023-03-01", 0.050, None), ("2024-03-0
 
 def _evidence(tmp_path):
     return write_evidence(tmp_path / "ev", {
-        f"{d}.yaml": result_yaml(date=d, as_found=good_points(f), as_left=good_points(l) if l is not None else None)
-        for d, f, l in OFFSETS})
+        f"{d}.yaml": result_yaml(date=d, as_found=good_points(f), as_left=good_points(left) if left is not None else None)
+        for d, f, left in OFFSETS})
 
 
 def _svg(page: str) -> str:
