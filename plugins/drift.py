@@ -76,12 +76,12 @@ def drift_points(hist: pd.DataFrame) -> pd.DataFrame:
 def fit(points: pd.DataFrame, min_tests: int = 3, significance: float = 0.05,
         horizon_years: float = 100.0) -> pd.DataFrame:
     """Least-squares line per (asset, input_pct), vectorised over all groups at once."""
-    from scipy import stats
+    from scipy.special import stdtr  # Student t CDF; scipy.stats costs seconds to import
 
     use = points[points["in_fit"].astype(bool)].copy()
     if use.empty:
         return pd.DataFrame(columns=FIT_COLUMNS)
-    dates = pd.to_datetime(use["date"])
+    dates = pd.to_datetime(use["date"], format="%Y-%m-%d")
     grp = use.groupby(KEYS, sort=False)
     ref = dates.groupby([use["asset"], use["input_pct"]], sort=False).transform("min")
     x = (dates - ref).dt.days / DAYS_PER_YEAR
@@ -102,7 +102,7 @@ def fit(points: pd.DataFrame, min_tests: int = 3, significance: float = 0.05,
     ssr = (s["syy"] - slope * s["sxy"]).clip(lower=0.0)
     stderr = np.sqrt(ssr / dof.where(dof > 0) / s["sxx"]).where(ok)
     tstat = slope / stderr
-    p_value = pd.Series(2.0 * stats.t.sf(np.abs(tstat), dof.where(ok)), index=s.index)
+    p_value = pd.Series(2.0 * stdtr(dof.where(ok), -np.abs(tstat)), index=s.index)
     p_value = p_value.where(stderr > 0, np.where(slope.abs() > 0, 0.0, 1.0)).where(ok)
     out = pd.DataFrame({"n": s["n"].astype(int), "slope_pct_per_year": slope, "stderr": stderr,
                         "intercept_pct": (s["ym"] - slope * s["xm"]), "ref_date": s["ref_date"].dt.strftime("%Y-%m-%d"),
@@ -126,12 +126,13 @@ def per_asset(fits: pd.DataFrame) -> pd.DataFrame:
     """The worst point of each asset: earliest predicted date, else the fastest fitted drift."""
     if fits.empty:
         return pd.DataFrame(columns=ASSET_COLUMNS).set_index("asset", drop=False)
-    f = fits.assign(_when=pd.to_datetime(fits["predicted_out_of_tolerance"]),
+    f = fits.assign(_when=pd.to_datetime(fits["predicted_out_of_tolerance"], format="%Y-%m-%d"),
                     _rate=-fits["slope_pct_per_year"].abs().fillna(-1.0), _n=-fits["n"])
     worst = f.sort_values(["asset", "_when", "_rate", "_n"], na_position="last", kind="stable").groupby("asset").head(1)
-    status = fits.groupby("asset")["status"].agg(lambda s: "trend" if (s == "trend").any() else
-                                                 ("no significant trend" if (s != "too few tests").any()
-                                                  else "too few tests"))
+    trend = (fits["status"] == "trend").groupby(fits["asset"]).any()
+    fitted = (fits["status"] != "too few tests").groupby(fits["asset"]).any()
+    status = pd.Series(np.where(trend, "trend", np.where(fitted, "no significant trend", "too few tests")),
+                       index=trend.index)
     out = pd.DataFrame({
         "asset": worst["asset"].to_numpy(), "drift_input_pct": worst["input_pct"].to_numpy(),
         "drift_pct_span_per_year": worst["slope_pct_per_year"].to_numpy(), "drift_stderr": worst["stderr"].to_numpy(),
@@ -158,6 +159,10 @@ def compute(ctx: RunContext) -> pd.DataFrame:
 
 def _num(value: object, fmt: str) -> str:
     return "—" if value is None or pd.isna(value) else format(value, fmt)  # type: ignore[arg-type]
+
+
+def _date(value: object) -> str:
+    return value if isinstance(value, str) and value else "—"
 
 
 @hookimpl
@@ -188,14 +193,12 @@ def ll_configure(config: dict[str, Any]) -> list[Finding]:
 @hookimpl
 def ll_asset_sections(ctx: RunContext, asset: str) -> list[Section]:
     compute(ctx)
-    fits = ctx.extras["drift_fits"]
-    mine = fits[fits["asset"] == asset]
-    if mine.empty:
+    mine = history.records_of(ctx, "drift_fits", asset)
+    if not mine:
         return []
-    rows = [[f"{r.input_pct:g} %", str(r.n), _num(r.slope_pct_per_year, "+.4f"), _num(r.stderr, ".4f"),
-             _num(r.p_value, ".3f"), _num(r.fitted_now_pct, "+.3f"), _num(r.mpe_pct, ".3f"), r.status,
-             r.predicted_acceptance_limit or "—", r.predicted_out_of_tolerance or "—"]
-            for r in mine.astype(object).where(mine.notna(), None).itertuples()]
+    rows = [[f"{r['input_pct']:g} %", str(r["n"]), _num(r["slope_pct_per_year"], "+.4f"), _num(r["stderr"], ".4f"),
+             _num(r["p_value"], ".3f"), _num(r["fitted_now_pct"], "+.3f"), _num(r["mpe_pct"], ".3f"), r["status"],
+             _date(r["predicted_acceptance_limit"]), _date(r["predicted_out_of_tolerance"])] for r in mine]
     return [Section(title="Drift per test point (as-found error vs time, reset at each adjustment)", kind="table",
                     columns=["Point", "Tests", "Drift % span/yr", "Std error", "p", "Fitted error now % span",
                              "MPE % span", "Trend", "Reaches acceptance limit", "Reaches MPE"],

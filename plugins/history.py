@@ -14,6 +14,8 @@ test's verdict, adjusted flag, technician, method and instruments.
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 import pandas as pd
 
@@ -76,27 +78,49 @@ def _assemble(points: pd.DataFrame, tests: pd.DataFrame) -> pd.DataFrame:
     return out.sort_values(["asset", "date", "test", "input_pct"], kind="stable").reset_index(drop=True)[COLUMNS]
 
 
-def _fmt(value: float) -> str:
-    return "—" if pd.isna(value) else f"{value:+.3f}"
+def records_of(ctx: RunContext, name: str, value: str, by: str = "asset") -> list[dict[str, Any]]:
+    """The rows of ``ctx.extras[name]`` whose ``by`` column is ``value``, as dicts (NaN kept).
+
+    Grouped once per run and kept: pages are built one asset / one test at a time, and filtering
+    the whole table per page would cost pages × rows.
+    """
+    cache = ctx.extras.setdefault("_grouped", {})
+    if (name, by) not in cache:
+        frame = ctx.extras.get(name)
+        groups: dict[str, list[dict[str, Any]]] = {}
+        if frame is not None and not frame.empty:
+            for rec in frame.to_dict("records"):
+                groups.setdefault(str(rec[by]), []).append(rec)
+        cache[(name, by)] = groups
+    return cache[(name, by)].get(value, [])  # type: ignore[no-any-return]
+
+
+def _missing(value: object) -> bool:
+    return value is None or (isinstance(value, float) and np.isnan(value)) or value is pd.NaT
+
+
+def _fmt(value: Any) -> str:
+    return "—" if _missing(value) else f"{value:+.3f}"
 
 
 def _text(value: object) -> str:
-    return "" if value is None or (isinstance(value, float) and np.isnan(value)) else str(value)
+    return "" if _missing(value) else str(value)
 
 
-def asset_table(hist: pd.DataFrame) -> tuple[list[str], list[list[str]]]:
+def asset_table(records: list[dict[str, Any]]) -> tuple[list[str], list[list[str]]]:
     """Columns and rows of the history table on an asset page (newest test first)."""
-    inputs = sorted(hist["input_pct"].unique())
+    inputs = sorted({r["input_pct"] for r in records})
     columns = ["Date", "Verdict", "Technician", "Rig", *[f"{x:g} %: found / left" for x in inputs]]
+    tests: dict[tuple[str, str], dict[str, Any]] = {}
+    for r in records:
+        entry = tests.setdefault((str(r["date"]), str(r["test"])), {"first": r, "cells": {}})
+        entry["cells"][r["input_pct"]] = f"{_fmt(r['as_found_pct'])} / {_fmt(r['as_left_pct'])}"
     rows = []
-    for (date, _test), g in sorted(hist.groupby(["date", "test"], sort=False), key=lambda kv: kv[0], reverse=True):
-        first = g.iloc[0]
-        rig = ", ".join(x for x in (_text(first["method"]), _text(first["source"]), _text(first["meter"]),
-                                    _text(first["shunt"])) if x)
-        by_input = g.set_index("input_pct")
-        cells = [f"{_fmt(by_input.at[x, 'as_found_pct'])} / {_fmt(by_input.at[x, 'as_left_pct'])}"
-                 if x in by_input.index else "" for x in inputs]
-        rows.append([str(date), _text(first["verdict"]), _text(first["technician"]), rig, *cells])
+    for (date, _test), entry in sorted(tests.items(), reverse=True):
+        first = entry["first"]
+        rig = ", ".join(x for x in (_text(first[k]) for k in ("method", "source", "meter", "shunt")) if x)
+        rows.append([date, _text(first["verdict"]), _text(first["technician"]), rig,
+                     *[entry["cells"].get(x, "") for x in inputs]])
     return columns, rows
 
 
@@ -108,9 +132,9 @@ def ll_history(ctx: RunContext) -> list[Finding]:
 
 @hookimpl
 def ll_asset_sections(ctx: RunContext, asset: str) -> list[Section]:
-    hist = assemble(ctx)
-    mine = hist[hist["asset"] == asset]
-    if mine.empty:
+    assemble(ctx)
+    mine = records_of(ctx, "history", asset)
+    if not mine:
         return []
     columns, rows = asset_table(mine)
     return [Section(title="Test history: error at each test point (% of span)", kind="table", columns=columns,

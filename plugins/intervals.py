@@ -169,7 +169,7 @@ def summary(ctx: RunContext) -> pd.DataFrame:
     out["last_test"] = last["date"].reindex(out.index)
     out["verdict"] = last["verdict"].reindex(out.index).fillna("untested")
     out["interval_months"] = pd.to_numeric(assets.get("interval_months"), errors="coerce")
-    last_dates = pd.to_datetime(out["last_test"])
+    last_dates = pd.to_datetime(out["last_test"], format="%Y-%m-%d")
     due = add_months(last_dates, out["interval_months"])
     as_of = pd.Timestamp(ctx.as_of)
     out["next_due"] = due.dt.strftime("%Y-%m-%d")
@@ -179,13 +179,13 @@ def summary(ctx: RunContext) -> pd.DataFrame:
                 "predicted_out_of_tolerance", "predicted_acceptance_limit"):
         out[col] = d[col].reindex(out.index) if col in d.columns else np.nan
     out["drift_status"] = out["drift_status"].fillna("too few tests")
-    out["predicted_before_due"] = (pd.to_datetime(out["predicted_out_of_tolerance"]) < due).astype(bool)
+    out["predicted_before_due"] = (pd.to_datetime(out["predicted_out_of_tolerance"], format="%Y-%m-%d") < due).astype(bool)
     hist = history.assemble(ctx)
     ratio = hist.groupby("test")["as_found_ratio"].max() if not hist.empty else pd.Series(dtype=float)
     out["last_as_found_ratio"] = last["test"].map(ratio).reindex(out.index) if "test" in last else np.nan
     stair = pd.Series(staircase(out["interval_months"], out["last_as_found_ratio"], cfg), index=out.index)
     out["staircase_months"] = stair.where(out["interval_months"].notna())
-    until = (pd.to_datetime(out["predicted_acceptance_limit"]) - last_dates).dt.days / MONTH_DAYS
+    until = (pd.to_datetime(out["predicted_acceptance_limit"], format="%Y-%m-%d") - last_dates).dt.days / MONTH_DAYS
     out["drift_months"] = np.floor(until).clip(lower=cfg["min_months"])
     both = pd.concat([out["staircase_months"], out["drift_months"]], axis=1)
     out["recommended_interval_months"] = both.min(axis=1, skipna=True)
@@ -284,11 +284,11 @@ def ll_asset_sections(ctx: RunContext, asset: str) -> list[Section]:
 def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
     if "global_false_accept" not in ctx.tests.columns:
         return []
-    value = ctx.tests.loc[ctx.tests["test"] == test, "global_false_accept"]
-    if value.empty or pd.isna(value.iloc[0]):
+    values = ctx.extras.setdefault("_false_accept", ctx.tests.set_index("test")["global_false_accept"].to_dict())
+    v = float(values.get(test, np.nan))
+    if np.isnan(v):
         return []
     limit = float(settings(ctx)["false_accept_limit"])
-    v = float(value.iloc[0])
     return [Section(title="Global false-accept probability", kind="facts", order=60, rows=[
         ("Probability (bivariate normal, fleet EOPR as prior)", f"{v:.2%}"),
         ("Target", f"≤ {limit:.0%}" + (" — exceeded" if v > limit else " — met"))])]

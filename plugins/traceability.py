@@ -50,7 +50,7 @@ def uses(tests: pd.DataFrame, instruments: pd.DataFrame) -> pd.DataFrame:
     reg = instruments if not instruments.empty else pd.DataFrame(columns=["calibrated", "due"])
     for col in ("calibrated", "due"):
         long[col] = pd.to_datetime(long["instrument"].map(reg[col]) if col in reg.columns else pd.NaT)
-    when = pd.to_datetime(long["date"], errors="coerce")
+    when = pd.to_datetime(long["date"], format="%Y-%m-%d", errors="coerce")
     known = long["instrument"].isin(reg.index)
     long["status"] = np.select(
         [~known, long["due"].notna() & (when > long["due"]),
@@ -60,7 +60,9 @@ def uses(tests: pd.DataFrame, instruments: pd.DataFrame) -> pd.DataFrame:
 
 
 def _day(value: object) -> str:
-    return "" if value is None or pd.isna(value) else pd.Timestamp(value).strftime("%Y-%m-%d")  # type: ignore[arg-type]
+    if value is None or value is pd.NaT or (isinstance(value, float) and np.isnan(value)):
+        return ""
+    return value.strftime("%Y-%m-%d") if hasattr(value, "strftime") else str(value)
 
 
 def describe(table: pd.DataFrame) -> pd.Series:
@@ -105,16 +107,15 @@ def ll_history(ctx: RunContext) -> list[Finding]:
 
 @hookimpl
 def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
-    table = ctx.extras.get("reference_uses")
-    if table is None:
-        return []
-    mine = table[table["test"] == test]
-    if mine.empty:
+    from loopledger.plugins.history import records_of
+
+    mine = records_of(ctx, "reference_uses", test, by="test")
+    if not mine:
         return []
     label = {"ok": "within calibration", "past-due": "PAST DUE on the test date",
              "before-calibration": "before the calibration on record", "no-dates": "no dates on record"}
-    rows = [[r.role, r.instrument, _day(r.calibrated) or "—", _day(r.due) or "—", label.get(r.status, r.status)]
-            for r in mine.itertuples()]
+    rows = [[r["role"], r["instrument"], _day(r["calibrated"]) or "—", _day(r["due"]) or "—",
+             label.get(r["status"], r["status"])] for r in mine]
     return [Section(title="Reference instruments on the test date", kind="table", order=40,
                     columns=["Role", "Instrument", "Calibrated", "Due", "Status"], rows=rows)]
 
