@@ -18,7 +18,6 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-
 from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.findings import Finding

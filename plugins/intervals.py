@@ -27,7 +27,6 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-
 from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.findings import Finding, error, warning
@@ -43,8 +42,9 @@ MONTH_DAYS = 365.25 / 12
 EOPR_CLIP = (0.01, 0.9999)
 SUMMARY_COLUMNS = ["asset", "description", "signal", "n_tests", "last_test", "verdict", "interval_months", "next_due",
                    "overdue", "drift_pct_span_per_year", "drift_stderr", "drift_input_pct", "drift_status",
-                   "predicted_out_of_tolerance", "predicted_acceptance_limit", "predicted_before_due", "last_as_found_ratio",
-                   "staircase_months", "drift_months", "recommended_interval_months", "interval_basis"]
+                   "predicted_out_of_tolerance", "predicted_acceptance_limit", "predicted_before_due",
+                   "last_as_found_ratio", "staircase_months", "drift_months", "recommended_interval_months",
+                   "interval_basis"]
 
 
 def settings(ctx: RunContext) -> dict[str, float]:
@@ -179,7 +179,8 @@ def summary(ctx: RunContext) -> pd.DataFrame:
                 "predicted_out_of_tolerance", "predicted_acceptance_limit"):
         out[col] = d[col].reindex(out.index) if col in d.columns else np.nan
     out["drift_status"] = out["drift_status"].fillna("too few tests")
-    out["predicted_before_due"] = (pd.to_datetime(out["predicted_out_of_tolerance"], format="%Y-%m-%d") < due).astype(bool)
+    predicted = pd.to_datetime(out["predicted_out_of_tolerance"], format="%Y-%m-%d")
+    out["predicted_before_due"] = (predicted < due).astype(bool)
     hist = history.assemble(ctx)
     ratio = hist.groupby("test")["as_found_ratio"].max() if not hist.empty else pd.Series(dtype=float)
     out["last_as_found_ratio"] = last["test"].map(ratio).reindex(out.index) if "test" in last else np.nan

@@ -12,10 +12,10 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
-from scipy import stats
-
 from loopledger.cli import main
 from loopledger.plugins import drift
+from scipy import stats
+
 from tests.evidence import good_points, result_yaml, write_evidence
 
 MPE_MA = 0.08  # class 0.5 on a 16 mA span (the fixture asset)

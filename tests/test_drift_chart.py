@@ -9,6 +9,7 @@ from __future__ import annotations
 import re
 
 from loopledger.cli import main
+
 from tests.evidence import good_points, result_yaml, write_evidence
 
 OFFSETS = [("2022-03-01", 0.020, None), ("2023-03-01", 0.050, None), ("2024-03-01", 0.090, 0.005),
@@ -17,7 +18,8 @@ OFFSETS = [("2022-03-01", 0.020, None), ("2023-03-01", 0.050, None), ("2024-03-0
 
 def _evidence(tmp_path):
     return write_evidence(tmp_path / "ev", {
-        f"{d}.yaml": result_yaml(date=d, as_found=good_points(f), as_left=good_points(left) if left is not None else None)
+        f"{d}.yaml": result_yaml(date=d, as_found=good_points(f),
+                                 as_left=good_points(left) if left is not None else None)
         for d, f, left in OFFSETS})
 
 

@@ -9,8 +9,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from loopledger.cli import main
+
 from tests.evidence import good_points, result_yaml, write_evidence
 
 

@@ -5,11 +5,11 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
-from scipy import stats
-
 from loopledger.cli import main
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import intervals
+from scipy import stats
+
 from tests.evidence import CT_ASSET, good_points, result_yaml, write_evidence
 
 RULE = {"extend_within": 0.8, "extend_factor": 1.5, "shorten_factor": 0.5, "min_months": 1, "max_months": 100}

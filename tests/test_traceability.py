@@ -11,9 +11,9 @@ import copy
 import datetime as dt
 
 import pytest
-
 from loopledger.cli import main
 from loopledger.plugins import traceability
+
 from tests.evidence import INSTRUMENTS, good_points, result_yaml, write_evidence
 
 
