@@ -135,3 +135,43 @@ def test_cli_writes_drift_tables(tmp_path):
     assets = pd.read_csv(tmp_path / "out" / "data" / "assets.csv")
     assert assets.loc[0, "drift_status"] == "too few tests"
     assert np.isnan(assets.loc[0, "drift_pct_span_per_year"])
+
+
+def test_acceptance_limit_date_comes_before_the_mpe_date_under_a_guard_band():
+    """With a guard band (ILAC-G8:2019 §4.2.2: acceptance limit = tolerance limit − w) the fitted line
+    reaches the acceptance limit first; both dates are where the numpy.polyfit line meets each limit."""
+    rows = [("2020-01-01", 0.10, None), ("2021-01-01", 0.21, None), ("2022-01-01", 0.29, None),
+            ("2023-01-01", 0.41, None)]
+    hist = _history(rows).assign(limit_pct=0.4)  # MPE 0.5 % of span, w = 0.1 % of span
+    row = drift.fit(drift.drift_points(hist)).iloc[0]
+    x = _years([r[0] for r in rows])
+    slope, intercept = np.polyfit(x, [r[1] for r in rows], 1)
+    for column, limit in (("predicted_acceptance_limit", 0.4), ("predicted_out_of_tolerance", 0.5)):
+        days = round((limit - intercept) / slope * 365.25)
+        assert row[column] == (pd.Timestamp("2020-01-01") + pd.Timedelta(days=days)).strftime("%Y-%m-%d")
+    assert row["predicted_acceptance_limit"] < row["predicted_out_of_tolerance"]
+
+
+def test_a_falling_error_is_predicted_against_the_lower_limit():
+    """Drift downwards meets −MPE: the crossing of the polyfit line with −0.5 % of span."""
+    rows = [("2020-01-01", -0.05, None), ("2021-01-01", -0.16, None), ("2022-01-01", -0.24, None),
+            ("2023-01-01", -0.36, None)]
+    row = drift.fit(drift.drift_points(_history(rows))).iloc[0]
+    x = _years([r[0] for r in rows])
+    slope, intercept = np.polyfit(x, [r[1] for r in rows], 1)
+    days = round((-0.5 - intercept) / slope * 365.25)
+    assert row["predicted_out_of_tolerance"] == (pd.Timestamp("2020-01-01") + pd.Timedelta(days=days)).strftime(
+        "%Y-%m-%d")
+
+
+def test_a_test_with_only_an_as_left_breaks_the_chain():
+    """No as-found at a point means the drift up to that test is unknown: only later results are fitted
+    (scipy.stats.linregress over those alone)."""
+    rows = [("2019-01-01", 0.10, None), ("2020-01-01", 0.20, None), ("2021-01-01", None, 0.0),
+            ("2022-01-01", 0.10, None), ("2023-01-01", 0.19, None), ("2024-01-01", 0.31, None)]
+    hist = _history([(d, np.nan if f is None else f, left) for d, f, left in rows])
+    row = drift.fit(drift.drift_points(hist)).iloc[0]
+    later = rows[3:]
+    ref = stats.linregress(_years([r[0] for r in later]), [r[1] for r in later])
+    assert (row["n"], row["ref_date"]) == (3, "2022-01-01")
+    assert row["slope_pct_per_year"] == pytest.approx(ref.slope, rel=1e-9)
