@@ -199,7 +199,7 @@ def ll_asset_sections(ctx: RunContext, asset: str) -> list[Section]:
              _num(r["p_value"], ".3f"), _num(r["fitted_now_pct"], "+.3f"), _num(r["mpe_pct"], ".3f"), r["status"],
              _date(r["predicted_acceptance_limit"]), _date(r["predicted_out_of_tolerance"])] for r in mine]
     return [Section(title="Drift per test point (as-found error vs time, reset at each adjustment)", kind="table",
-                    columns=["Point", "Tests", "Drift % span/yr", "Std error", "p", "Fitted error now % span",
+                    columns=["Point", "Tests", "Drift % span/yr", "Std error", "p", "Fitted error at last test % span",
                              "MPE % span", "Trend", "Reaches acceptance limit", "Reaches MPE"],
                     rows=rows, order=32)]
 

@@ -201,6 +201,15 @@ def _text(value: Any, fmt: str = "") -> str:
     return format(value, fmt) if fmt else str(value)
 
 
+def _when(row: pd.Series, ctx: RunContext) -> str:
+    predicted = row["predicted_out_of_tolerance"]
+    if not isinstance(predicted, str) or not predicted:
+        return ""
+    if predicted <= ctx.as_of.isoformat():
+        return f" — already passed on {ctx.as_of.isoformat()}: test it now"
+    return " — before the next due date" if row["predicted_before_due"] else ""
+
+
 @hookimpl(trylast=True)
 def ll_history(ctx: RunContext) -> list[Finding]:
     cfg = settings(ctx)
@@ -270,8 +279,7 @@ def ll_asset_sections(ctx: RunContext, asset: str) -> list[Section]:
         ("Overdue on " + ctx.as_of.isoformat(), "yes" if r["overdue"] else "no"),
         ("Drift rate", rate), ("Trend", _text(r["drift_status"])),
         ("Predicted to reach the acceptance limit", _text(r["predicted_acceptance_limit"])),
-        ("Predicted to reach the MPE", _text(r["predicted_out_of_tolerance"])
-         + (" — before the next due date" if r["predicted_before_due"] else "")),
+        ("Predicted to reach the MPE", _text(r["predicted_out_of_tolerance"]) + _when(r, ctx)),
         ("Staircase interval (ILAC-G24 / OIML D 10)", f"{_text(r['staircase_months'], 'g')} months"),
         ("Interval allowed by drift", f"{_text(r['drift_months'], 'g')} months"),
         ("Recommended interval", f"{_text(r['recommended_interval_months'], 'g')} months "
