@@ -140,6 +140,7 @@ def per_asset(fits: pd.DataFrame) -> pd.DataFrame:
         "predicted_acceptance_limit": worst["predicted_acceptance_limit"].to_numpy(),
     })
     out["drift_status"] = out["asset"].map(status)
+    out.loc[out["drift_status"] == "too few tests", "drift_input_pct"] = np.nan
     return out.set_index("asset", drop=False).rename_axis(None)[ASSET_COLUMNS]
 
 

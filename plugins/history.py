@@ -1,7 +1,7 @@
 """History stage: every asset's tests in date order, as-found and as-left error per test point.
 
 Points of different tests are matched by their input as % of range (rounded to
-0.001 %), so "0 A", "0 %" and "0.0 A" written in different years are one test
+the nearest 0.5 %), so "0 A", "0 %" and "0.0 A" written in different years are one test
 point. Where a phase holds several readings at one input (up and down, or
 repeats) the error at that point is their mean; ``*_ratio`` is the largest
 |error| / MPE there, so the worst reading still shows.
@@ -23,8 +23,9 @@ from loopledger.contracts import Section
 from loopledger.findings import Finding
 from loopledger.hookspecs import hookimpl
 
-#: input % is matched between tests to this many decimals
-KEY_DECIMALS = 3
+#: input % is matched between tests to the nearest multiple of this step (% of range), so a set
+#: point injected at 24.8 % one year and 25.1 % the next is one test point
+KEY_STEP = 0.5
 PHASES = ("as_found", "as_left")
 TEST_FIELDS = ("verdict", "adjusted", "technician", "method", "source", "meter", "shunt")
 COLUMNS = ["asset", "test", "date", "input_pct", "as_found_pct", "as_left_pct", "as_found_ratio", "as_left_ratio",
@@ -55,7 +56,7 @@ def _assemble(points: pd.DataFrame, tests: pd.DataFrame) -> pd.DataFrame:
     limit = p["acceptance_limit"] if "acceptance_limit" in p.columns else p["mpe"]
     frame = pd.DataFrame({
         "asset": p["asset"].astype(str), "test": p["test"].astype(str), "date": p["date"].astype(str),
-        "phase": p["phase"].astype(str), "input_pct": p["input_pct"].astype(float).round(KEY_DECIMALS),
+        "phase": p["phase"].astype(str), "input_pct": (p["input_pct"].astype(float) / KEY_STEP).round() * KEY_STEP + 0.0,
         "error_pct": p["error_pct_span"].astype(float),
         "ratio": p["error"].abs() / p["mpe"],
         "mpe_pct": p["mpe"] / span * 100.0,

@@ -55,3 +55,13 @@ def test_cli_asset_page_shows_the_history(tmp_path):
     assert "Test history" in page
     assert "+0.600 / +0.050" in page  # 2024 at every point: found 0.096 mA, left 0.008 mA of 16 mA
     assert page.index("2025-05-01") < page.index("2024-05-01")  # newest first
+
+
+def test_set_points_a_little_off_nominal_are_one_test_point(tmp_path, run_folder):
+    """0.248 A on a 0-1 A input is 24.8 % of range: matched with 25 % (nearest 0.5 %)."""
+    ev = write_evidence(tmp_path / "ev", {
+        "a.yaml": result_yaml(date="2024-05-01", as_found=[("0.248 A", f"{4 + 16 * 0.248 + 0.01:.4f} mA")]),
+        "b.yaml": result_yaml(date="2025-05-01", as_found=[("25 %", "8.0200 mA")])})
+    hist = run_folder(ev).extras["history"]
+    assert list(hist["input_pct"]) == [25.0, 25.0]
+    assert list(hist["as_found_pct"].round(6)) == [round(0.01 / 16 * 100, 6), round(0.02 / 16 * 100, 6)]
