@@ -56,7 +56,8 @@ def _assemble(points: pd.DataFrame, tests: pd.DataFrame) -> pd.DataFrame:
     limit = p["acceptance_limit"] if "acceptance_limit" in p.columns else p["mpe"]
     frame = pd.DataFrame({
         "asset": p["asset"].astype(str), "test": p["test"].astype(str), "date": p["date"].astype(str),
-        "phase": p["phase"].astype(str), "input_pct": (p["input_pct"].astype(float) / KEY_STEP).round() * KEY_STEP + 0.0,
+        "phase": p["phase"].astype(str),
+        "input_pct": (p["input_pct"].astype(float) / KEY_STEP).round() * KEY_STEP + 0.0,  # + 0.0: no "-0 %"
         "error_pct": p["error_pct_span"].astype(float),
         "ratio": p["error"].abs() / p["mpe"],
         "mpe_pct": p["mpe"] / span * 100.0,
