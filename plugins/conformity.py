@@ -35,7 +35,9 @@ def conformity(ctx: RunContext) -> list[Finding]:
         return []
     with np.errstate(divide="ignore", invalid="ignore"):
         pts["tur"] = pts["mpe"] / pts["U"]
-        pts["risk"] = specific_risk(pts["error"], pts["u"], pts["mpe"])
+        # u from another plugin's uncertainty stage may be missing: U / k then (k = 2 if absent too)
+        u = pts["u"] if "u" in pts.columns else pts["U"] / (pts["k"] if "k" in pts.columns else 2.0)
+        pts["risk"] = specific_risk(pts["error"], u, pts["mpe"])
     ctx.points = pts
     exports = ctx.extras.setdefault("point_exports", [])
     exports += [c for c in ("tur", "risk") if c not in exports]
