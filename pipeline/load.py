@@ -7,7 +7,6 @@ from collections.abc import Callable, Iterable
 from typing import Any
 
 import pandas as pd
-
 from loopledger.contracts import SourceFile
 from loopledger.findings import Finding, error
 

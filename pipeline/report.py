@@ -5,12 +5,11 @@ from __future__ import annotations
 from collections.abc import Callable
 from typing import TextIO
 
+from loopledger.context import RunContext
+from loopledger.findings import Finding
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
-
-from loopledger.context import RunContext
-from loopledger.findings import Finding
 
 
 def progress_factory(console: Console, threshold: int = 200) -> Callable[[int, int], Callable[[int], None]]:
@@ -68,24 +67,34 @@ def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None
                   f"(judged on {ctx.as_of.isoformat()}, rule '{ctx.section('decision').get('rule', 'simple')}')")
     line = ", ".join(f"{counts.get(v, 0)} {v}" for v in ("pass", "adjusted", "fail", "invalid"))
     console.print(f"  tests: {line}")
-    problems = tests[tests["verdict"].isin(["fail", "invalid"])]
-    if not problems.empty:
-        table = Table(title="Tests needing attention", title_justify="left", show_lines=False)
-        for col in ("verdict", "asset", "date", "file", "why"):
-            table.add_column(col)
-        errors: dict[str, str] = {}
-        for f in ctx.findings:
-            if f.severity == "error" and f.file and f.file not in errors:
-                errors[f.file] = f.message + (f" [{f.field}]" if f.field else "")
-        for row in problems.itertuples():
-            why = errors.get(row.source_file, "")
-            if row.verdict == "fail":
-                pts = ctx.points[(ctx.points["test"] == row.test) & (ctx.points["decision"] != "pass")]
-                last = pts[pts["phase"] == ("as_left" if row.as_left else "as_found")]
-                why = f"{len(last)} point(s) outside tolerance, worst {last['error_pct_span'].abs().max():.3g} % of span"
-            style = "red" if row.verdict == "fail" else "yellow"
-            table.add_row(f"[{style}]{row.verdict}[/]", str(row.asset or ""), str(row.date or ""),
-                          row.source_file, why)
+    valid = tests[tests["valid"].astype(bool)] if not tests.empty else tests
+    latest = valid.sort_values(["date", "test"]).groupby("asset").tail(1) if not valid.empty else valid
+    failing = latest[latest["verdict"] == "fail"] if not latest.empty else latest
+    earlier = int((valid["verdict"] == "fail").sum()) - len(failing) if not valid.empty else 0
+    if len(failing):
+        table = Table(title="Assets whose latest test failed", title_justify="left")
+        for col in ("asset", "date", "test", "why"):
+            table.add_column(col, overflow="fold")
+        for row in failing.itertuples():
+            pts = ctx.points[(ctx.points["test"] == row.test) & (ctx.points["decision"] != "pass")]
+            last = pts[pts["phase"] == ("as_left" if row.as_left else "as_found")]
+            worst = last["error_pct_span"].abs().max()
+            table.add_row(str(row.asset), str(row.date), str(row.test),
+                          f"{len(last)} point(s) outside ±MPE, worst {worst:.3g} % of span")
+        console.print(table)
+    if earlier > 0:
+        console.print(f"  {earlier} earlier test(s) failed and were followed by later tests (see the handbook)")
+    errors: dict[str, str] = {}
+    for f in ctx.findings:
+        if f.severity == "error" and f.file and f.file not in errors:
+            errors[f.file] = f.message + (f" [{f.field}]" if f.field else "")
+    invalid = tests[tests["verdict"] == "invalid"] if not tests.empty else tests
+    if len(invalid):
+        table = Table(title="Result files that could not be judged", title_justify="left")
+        table.add_column("file", overflow="fold")
+        table.add_column("first problem", overflow="fold")
+        for row in invalid.itertuples():
+            table.add_row(row.source_file, errors.get(row.source_file, ""))
         console.print(table)
     shown = [f for f in ctx.findings if verbose or f.severity != "note"]
     other = [f for f in shown if f.severity == "warning" or not f.file]

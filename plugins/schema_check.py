@@ -11,7 +11,6 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-
 from loopledger import quantities as q
 from loopledger.context import RunContext
 from loopledger.findings import Finding, error, warning
@@ -61,8 +60,10 @@ def check_tests(ctx: RunContext) -> list[Finding]:
     checked["date"] = dates.dt.strftime("%Y-%m-%d")
     findings += _check_references(ctx, checked, lines)
     findings += _check_duplicate_files(checked, lines)
+    tests = ctx.tests.astype({c: object for c in checked.columns if c in ctx.tests.columns and c != "valid"})
     for col in checked.columns:
-        ctx.tests.loc[checked.index, col] = checked[col]
+        tests.loc[checked.index, col] = checked[col]
+    ctx.tests = tests
     return findings
 
 

@@ -6,10 +6,9 @@ import argparse
 import sys
 from pathlib import Path
 
-from rich.console import Console
-
 from loopledger import report, runner
 from loopledger.host import get_plugin_manager
+from rich.console import Console
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -31,7 +30,7 @@ def overrides(args: argparse.Namespace) -> dict[str, object]:
 
 
 def main(args: argparse.Namespace) -> int:
-    console = Console(stderr=False)
+    console = Console(stderr=False, width=None if sys.stdout.isatty() else 120)
     pm = get_plugin_manager()
     opts = runner.RunOptions(args.evidence, overrides=overrides(args),
                              progress=report.progress_factory(Console(stderr=True)))
