@@ -19,7 +19,7 @@ import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 
-RC = {
+RC: Any = {
     "svg.hashsalt": "loopledger-handbook",
     "svg.fonttype": "none",  # text stays text: smaller files, selectable and read by screen readers
     "font.family": "DejaVu Sans",
@@ -138,5 +138,6 @@ def drift_alt(data: dict[str, Any]) -> str:
             f"{len(dates)} tests from {dates[0]} to {dates[-1]}." if dates else "Chart of as-found error over time.")
     for f in data.get("fits") or []:
         if f.get("slope_pct_per_year") is not None:
-            text += f" Fitted drift at {float(f['input_pct']):g} %: {float(f['slope_pct_per_year']):+.3f} % of span a year."
+            text += (f" Fitted drift at {float(f['input_pct']):g} %: "
+                     f"{float(f['slope_pct_per_year']):+.3f} % of span a year.")
     return text

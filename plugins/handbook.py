@@ -72,7 +72,7 @@ def environment() -> Any:
 
         env = jinja2.Environment(
             loader=jinja2.PackageLoader("loopledger.site", "templates"),
-            autoescape=True, undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
+            autoescape=True, undefined=jinja2.ChainableUndefined, trim_blocks=True, lstrip_blocks=True,
             keep_trailing_newline=True,
         )
         env.filters["num"] = _num

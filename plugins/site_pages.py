@@ -17,7 +17,6 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-
 from loopledger import quantities as q
 from loopledger.context import RunContext
 from loopledger.contracts import Section
@@ -143,7 +142,8 @@ def usage(ctx: RunContext) -> pd.DataFrame:
     long["status"] = np.select(
         [~known, due.isna(), on.isna(), early, late],
         ["not in instruments.yaml", "no calibration due date recorded", "due " + due_text,
-         "before the calibration on file (" + cal_text + "); the earlier certificate is not recorded", "OUT OF CALIBRATION: due " + due_text],
+         "before the calibration on file (" + cal_text + "); the earlier certificate is not recorded",
+         "OUT OF CALIBRATION: due " + due_text],
         default="in calibration until " + due_text)
     long["out_of_cal"] = (known & late & ~early).astype(bool)
     long["role_order"] = long["role"].map(ROLES.index)
@@ -350,7 +350,8 @@ def test_data(ctx: RunContext, test: pd.Series, points: pd.DataFrame, rig: pd.Da
     return {"test": {k: plain(v) for k, v in test.items()}, "asset": asset, "instruments": instruments,
             "points": records(pts, cols), "point_cols": cols, "burden": burden, "analysis": analysis,
             "findings": [{"severity": f.severity, "line": plain(f.line), "field": f.field, "point": f.point,
-                          "message": f.message, "stage": f.stage} for f in ctx.findings if f.file == test["source_file"]],
+                          "message": f.message, "stage": f.stage}
+                         for f in ctx.findings if f.file == test["source_file"]],
             "chart": latest_chart_data(pts) if len(pts) else None,
             "sections": section_dicts(ctx.pm.hook.ll_test_sections(ctx=ctx, test=tid)) if test["valid"] else []}
 
