@@ -23,6 +23,7 @@ import json
 import os
 import shutil
 import sys
+from collections.abc import Iterable
 from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -77,10 +78,14 @@ def environment() -> Any:
         )
         env.filters["num"] = _num
         env.filters["signed"] = lambda v, d=3: _num(v, d, sign=True)
-        env.filters["g"] = lambda v: "—" if v is None or v == "" else (f"{v:g}" if isinstance(v, float) else str(v))
+        env.filters["g"] = _g
         env.filters["phase"] = lambda v: {"as_found": "as found", "as_left": "as left"}.get(v, v or "")
         _ENV = env
     return _ENV
+
+
+def _g(value: Any) -> str:
+    return "—" if value is None or value == "" else (f"{value:g}" if isinstance(value, float) else str(value))
 
 
 def _num(value: Any, digits: int = 4, sign: bool = False) -> str:
@@ -241,12 +246,9 @@ def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: 
     workers = workers if workers is not None else (os.cpu_count() or 1)
     if workers > 1 and len(stale) >= PARALLEL_MIN:
         with ProcessPoolExecutor(max_workers=workers) as pool:
-            results = list(pool.map(render_job, stale, chunksize=max(1, len(stale) // (workers * 4))))
+            _write_all(folder, pool.map(render_job, stale, chunksize=max(1, len(stale) // (workers * 4))))
     else:
-        results = [render_job(job) for job in stale]
-    for made in results:  # in job order: the output never depends on which worker finished first
-        for rel, data in made.items():
-            _write(folder / rel, data)
+        _write_all(folder, (render_job(job) for job in stale))
     stats.rendered = len(stale)
     for test in ctx.tests.itertuples():
         raw = ctx.raw_files.get(test.source_file)
@@ -257,6 +259,13 @@ def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: 
         _write(folder / name, static.joinpath(name).read_bytes())
     _write(folder / MANIFEST, json.dumps(manifest, sort_keys=True, indent=1).encode("utf-8") + b"\n")
     return stats
+
+
+def _write_all(folder: Path, made: Iterable[dict[str, bytes]]) -> None:
+    """Write each page's files as it comes, in job order (never in the order workers finish)."""
+    for files in made:
+        for rel, data in files.items():
+            _write(folder / rel, data)
 
 
 def _write(path: Path, data: bytes) -> None:
@@ -335,19 +344,22 @@ def sheet_text(sheet: dict[str, Any]) -> str:
     a, plan = sheet["asset"], sheet["plan"]
     unit = sheet.get("unit", "")
     lines = [f"Test sheet for {a['asset']}: {a.get('description') or ''}",
-             f"  input {a.get('input_min')} … {a.get('input_max')} {a.get('input_unit')}, output "
-             f"{a.get('output_min')} … {a.get('output_max')} {unit}, accuracy {a.get('accuracy')}, "
+             f"  input {_g(a.get('input_min'))} … {_g(a.get('input_max'))} {a.get('input_unit')}, output "
+             f"{_g(a.get('output_min'))} … {_g(a.get('output_max'))} {unit}, accuracy {a.get('accuracy')}, "
              f"rule '{sheet.get('rule', '')}'",
              f"  planned rig: method {plan.get('method')}, meter {plan.get('meter') or '(not named)'}, "
              f"shunt {_num(plan.get('shunt_ohm'), 3) + ' Ω' if plan.get('shunt_ohm') else '(none)'}, "
              f"{plan.get('connection')}", ""]
     volts = any("v_expected" in r for r in sheet["rows"])
-    head = f"{'input %':>8} {'input':>12} {'expected':>10} {'pass from':>10} {'to':>10}"
+    primary = any("primary" in r for r in sheet["rows"])
+    head = f"{'input %':>8} {'input':>12}" + (f" {'primary':>10}" if primary else "")
+    head += f" {'expected':>10} {'pass from':>10} {'to':>10}"
     head += f" {'V expected':>11} {'V from':>9} {'V to':>9}" if volts else ""
     lines.append(head + f"   ({unit}{', volts across the shunt' if volts else ''})")
     for r in sheet["rows"]:
-        line = (f"{_num(r['input_pct'], 1):>8} {_num(r['input'], 4) + ' ' + (r['input_unit'] or ''):>12} "
-                f"{_num(r['expected']):>10} {_num(r['low']):>10} {_num(r['high']):>10}")
+        line = f"{_num(r['input_pct'], 1):>8} {_num(r['input'], 4) + ' ' + (r['input_unit'] or ''):>12}"
+        line += f" {r['primary']:>10g}" if primary and r.get("primary") is not None else (" " * 11 if primary else "")
+        line += f" {_num(r['expected']):>10} {_num(r['low']):>10} {_num(r['high']):>10}"
         if volts:
             line += f" {_num(r.get('v_expected')):>11} {_num(r.get('v_low')):>9} {_num(r.get('v_high')):>9}"
         lines.append(line)

@@ -44,6 +44,7 @@ BURDEN = [("loop_ohm", "Loop resistance", "Ω"), ("limit_ohm", "Largest load the
           ("margin_pct", "Margin", "%"), ("burden_status", "Burden check", ""),
           ("fault_signature", "Fault signature", "")]
 SOON_DAYS = 90  # "due soon" on the index: common practice for a planning look-ahead
+PREDICT_DAYS = 365  # a predicted exit from tolerance within a year (or before the next due date) is "soon"
 
 _UNSAFE = re.compile(r"[^A-Za-z0-9._-]+")
 
@@ -222,6 +223,11 @@ def asset_table(ctx: RunContext, tests: pd.DataFrame) -> pd.DataFrame:
     if isinstance(summary, pd.DataFrame) and "predicted_out_of_tolerance" in summary.columns:
         pred = summary["predicted_out_of_tolerance"].reindex(assets.index)
     assets["predicted"] = [_prediction(v) for v in pred]
+    when = _dates(assets["predicted"].where(assets["predicted"] != "yes"))
+    before_due = summary["predicted_before_due"].reindex(assets.index).fillna(False).astype(bool) \
+        if isinstance(summary, pd.DataFrame) and "predicted_before_due" in summary.columns else False
+    assets["predicted_soon"] = (assets["predicted"] == "yes") | before_due | (
+        when.notna() & (when <= as_of + pd.Timedelta(days=PREDICT_DAYS)))
     for col in ("drift_pct_span_per_year", "recommended_interval_months"):
         assets[col] = summary[col].reindex(assets.index) if isinstance(summary, pd.DataFrame) and \
             col in summary.columns else np.nan
@@ -251,7 +257,8 @@ def counts(assets: pd.DataFrame) -> dict[str, int]:
 
 
 ASSET_COLS = ["asset", "page", "description", "site", "area", "signal", "verdict", "last_date", "last_page",
-              "next_due", "overdue", "days_overdue", "due_soon", "predicted", "last_ref_out", "n_tests"]
+              "next_due", "overdue", "days_overdue", "due_soon", "predicted", "predicted_soon", "last_ref_out",
+              "n_tests"]
 TEST_COLS = ["test", "page", "asset", "asset_page", "date", "technician", "verdict", "as_found", "as_left",
              "source_file", "reference_out_of_cal", "reference_issues", "valid"]
 
@@ -264,7 +271,7 @@ def index_data(ctx: RunContext, assets: pd.DataFrame, tests: pd.DataFrame) -> di
         groups.append({"site": site, "area": area, "assets": records(rows.sort_values("asset"), ASSET_COLS)})
     failed = assets[assets["verdict"] == "fail"].sort_values("asset")
     overdue = assets[assets["overdue"]].sort_values(["days_overdue", "asset"], ascending=[False, True])
-    predicted = assets[assets["predicted"] != ""].sort_values("asset")
+    predicted = assets[assets["predicted_soon"]].sort_values("asset")
     ref = tests[tests["reference_out_of_cal"].astype(bool)].sort_values(["date", "test"], ascending=False) \
         if len(tests) else tests
     invalid = tests[~tests["valid"].astype(bool)] if len(tests) else tests
@@ -472,6 +479,13 @@ def sheet_data(ctx: RunContext, asset: str, plan: dict[str, Any], points: pd.Dat
             except (KeyError, ValueError, TypeError) as exc:  # a rule that cannot judge a planned point
                 notes.append(f"The rule '{rule_name}' could not give a window before the test ({exc}); "
                              "the window shown is the MPE.")
+    meter = plan.get("meter")
+    if meter and meter in ctx.instruments.index:
+        status = cal_status(ctx.instruments.at[meter, "calibrated"] if "calibrated" in ctx.instruments else None,
+                            ctx.instruments.at[meter, "due"] if "due" in ctx.instruments else None, ctx.as_of)
+        if status.startswith("OUT OF"):
+            notes.append(f"The planned meter {meter} is {status} on {ctx.as_of.isoformat()}: use an instrument in "
+                         "calibration, or the readings cannot be relied on.")
     unit = str(reg["output_unit"])
     ohm = plan.get("shunt_ohm") if plan.get("method") == "shunt" else None
     rows = []

@@ -14,11 +14,11 @@ from urllib.parse import unquote, urlsplit
 
 import pandas as pd
 import pytest
-
 from loopledger import runner
 from loopledger.cli import main
 from loopledger.plugins import handbook
 from loopledger.plugins import site_pages as sp
+
 from tests.evidence import CT_ASSET, INSTRUMENTS, good_points, result_yaml, write_evidence
 
 AS_OF = dt.date(2026, 11, 30)  # the fixtures' as_of (tests/evidence.py)
@@ -109,7 +109,7 @@ def test_columns_of_other_stages_are_shown_when_present(tmp_path, run_folder):
     ctx.tests["loop_ohm"] = 612.5
     ctx.extras["assets_summary"] = pd.DataFrame({
         "asset": ["T-CT1", "T-CT2", "T-CT3"], "next_due": ["2027-01-10", "2027-06-01", None],
-        "overdue": [False, False, False], "predicted_out_of_tolerance": [True, False, False]})
+        "overdue": [False, False, False], "predicted_out_of_tolerance": [True, False, "2030-01-01"]})
     ctx.extras["drift_fits"] = pd.DataFrame({
         "asset": ["T-CT2"], "input_pct": [50.0], "n": [2], "slope_pct_per_year": [0.4], "stderr": [0.1],
         "intercept_pct": [0.0], "ref_date": ["2025-01-01"]})
@@ -117,7 +117,9 @@ def test_columns_of_other_stages_are_shown_when_present(tmp_path, run_folder):
     assets = sp.asset_table(ctx, tests)
     assert sp.counts(assets)["overdue"] == 0  # the history stage's overdue wins over the fallback
     index = sp.index_data(ctx, assets, tests)
+    # a flag counts as soon; a date more than a year after as_of does not (but shows on the asset page)
     assert [a["asset"] for a in index["action"]["predicted"]] == ["T-CT1"]
+    assert assets.loc["T-CT3", "predicted"] == "2030-01-01" and not assets.loc["T-CT3", "predicted_soon"]
     chart = sp.latest_chart_data(ctx.points[ctx.points["asset"] == "T-CT2"])
     assert chart["points"][0]["U_pct"] == pytest.approx(0.016 / span * 100)
     drift = sp.drift_chart_data(ctx, "T-CT2", ctx.points[ctx.points["asset"] == "T-CT2"])
@@ -230,6 +232,7 @@ def test_two_builds_are_byte_identical_and_incremental_equals_cold(tmp_path, pm)
 
     first = build(tmp_path / "one")
     second = build(tmp_path / "two")
+    assert second.rendered == second.pages
     assert first.rendered == first.pages and first.reused == 0
     assert _tree(tmp_path / "one" / "handbook") == _tree(tmp_path / "two" / "handbook")
     again = build(tmp_path / "one")  # same folder, same as_of: every page reused, bytes unchanged
@@ -361,3 +364,50 @@ def test_in_headless_chromium(tmp_path):
         assert outside == []
     finally:
         browser.close()
+
+
+def test_parallel_rendering_gives_the_same_bytes(tmp_path, run_folder, monkeypatch):
+    ctx = run_folder(_fleet(tmp_path / "ev"))
+    serial = handbook.build(ctx, tmp_path / "serial", workers=1)
+    monkeypatch.setattr(handbook, "PARALLEL_MIN", 1)
+    parallel = handbook.build(ctx, tmp_path / "parallel", workers=2)
+    assert serial.rendered == parallel.rendered == serial.pages
+    assert _tree(tmp_path / "serial") == _tree(tmp_path / "parallel")
+
+
+# --- accessibility ---------------------------------------------------------------------------------
+
+def _luminance(hex_colour: str) -> float:
+    """Relative luminance, WCAG 2.1 §1.4.3 definition (sRGB linearisation)."""
+    rgb = [int(hex_colour.lstrip("#")[i:i + 2], 16) / 255 for i in (0, 2, 4)]
+    lin = [c / 12.92 if c <= 0.04045 else ((c + 0.055) / 1.055) ** 2.4 for c in rgb]
+    return 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2]
+
+
+def _contrast(a: str, b: str) -> float:
+    hi, lo = sorted((_luminance(a), _luminance(b)), reverse=True)
+    return (hi + 0.05) / (lo + 0.05)
+
+
+def test_text_colours_pass_wcag_aa():
+    import importlib.resources
+    import re
+
+    css = importlib.resources.files("loopledger.site").joinpath("static/style.css").read_text(encoding="utf-8")
+    colours = dict(re.findall(r"--([a-z-]+):\s*(#[0-9a-fA-F]{6})", css))
+    # WCAG 2.1 reference values: black on white is 21:1
+    assert _contrast("#000000", "#ffffff") == pytest.approx(21.0)
+    backgrounds = [colours["paper"], colours["panel"], colours["flag-bg"], "#ffffff", "#fbeeee"]
+    for text in ("ink", "muted", "link", "pass", "fail", "warn", "accent"):
+        for bg in backgrounds:
+            assert _contrast(colours[text], bg) >= 4.5, (text, bg)  # AA for normal-size text
+
+
+def test_verdicts_are_words_not_only_colour(tmp_path, run_folder):
+    ctx = run_folder(_fleet(tmp_path / "ev"))
+    handbook.build(ctx, tmp_path / "site")
+    index = (tmp_path / "site" / "index.html").read_text(encoding="utf-8")
+    for word in ("Pass", "Fail", "Not tested", "Overdue"):
+        assert f"{word}</span>" in index
+    test_page = (tmp_path / "site" / "tests" / "b_two.html").read_text(encoding="utf-8")
+    assert '<th scope="col">Decision</th>' in test_page and 'alt="Chart of error against input.' in test_page
