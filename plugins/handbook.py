@@ -48,18 +48,26 @@ ALLOWED_TAGS = {"p", "em", "strong", "ul", "ol", "li", "code", "pre", "br", "tab
                 "th", "td", "blockquote", "h3", "h4", "hr"}
 
 
-def render_markdown(text: Any) -> str:
-    """Markdown remarks rendered and sanitised: no script, handler or remote resource survives.
+#: inline Markdown that would make a link or fetch something: left as the text that was written
+LINKING = ("reference", "link", "image_link", "image_reference", "short_reference", "short_image_ref", "autolink",
+           "automail")
 
-    Any HTML the remark contains is escaped first, so it shows as the text that was
-    written; nh3 then keeps only plain formatting tags (no links, images or attributes).
+
+def render_markdown(text: Any) -> str:
+    """Markdown remarks rendered and sanitised: no script, handler, link or remote resource survives.
+
+    Any HTML the remark contains is escaped first and link/image syntax is not interpreted, so both
+    show as the text that was written; nh3 then keeps only plain formatting tags, without attributes.
     """
     if text is None or isinstance(text, float) or not str(text).strip():
         return ""
     import markdown
     import nh3
 
-    rendered = markdown.markdown(html.escape(str(text), quote=False), extensions=["tables"], output_format="html")
+    md = markdown.Markdown(extensions=["tables"], output_format="html")
+    for name in LINKING:
+        md.inlinePatterns.deregister(name, strict=False)
+    rendered = md.convert(html.escape(str(text), quote=False))
     return nh3.clean(rendered, tags=ALLOWED_TAGS, attributes={}, url_schemes=set(), link_rel=None)
 
 
@@ -98,7 +106,14 @@ def _num(value: Any, digits: int = 4, sign: bool = False) -> str:
 
 def _theme_digest() -> str:
     root = importlib.resources.files("loopledger.site")
-    h = hashlib.sha256(f"format {FORMAT}".encode())
+    import jinja2
+    import markdown
+    import matplotlib
+    import nh3
+
+    versions = [FORMAT, matplotlib.__version__, jinja2.__version__, markdown.__version__,
+                getattr(nh3, "__version__", "")]
+    h = hashlib.sha256(json.dumps(versions).encode())
     for folder in ("templates", "static"):
         for item in sorted(root.joinpath(folder).iterdir(), key=lambda p: p.name):
             if item.is_file():

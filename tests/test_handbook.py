@@ -181,9 +181,10 @@ def test_hostile_remark_renders_as_harmless_text(tmp_path):
     page = (tmp_path / "out" / "handbook" / "tests" / "r.html").read_text(encoding="utf-8")
     audit = _audit(page)
     assert audit.scripts == [] and audit.handlers == [] and audit.external == []
-    assert "example.invalid" not in page.replace("](https://example.invalid", "")  # only as escaped text
     shown = "".join(audit.text)
-    assert '<script>alert("x")</script>' in shown  # the remark is shown as the text that was written
+    # the remark is shown as the text that was written, tags, image and link syntax included
+    assert '<script>alert("x")</script>' in shown and "<img src=x onerror=alert(1)>" in shown
+    assert "![logo](https://example.invalid/t.png)" in shown and "[site](javascript:alert(2))" in shown
 
 
 def test_site_refers_to_nothing_outside_itself(tmp_path):
@@ -411,3 +412,14 @@ def test_verdicts_are_words_not_only_colour(tmp_path, run_folder):
         assert f"{word}</span>" in index
     test_page = (tmp_path / "site" / "tests" / "b_two.html").read_text(encoding="utf-8")
     assert '<th scope="col">Decision</th>' in test_page and 'alt="Chart of error against input.' in test_page
+
+
+def test_invalid_files_get_an_evidence_page_with_their_findings(tmp_path):
+    ev = _fleet(tmp_path / "ev", **{"c/bad.yaml": result_yaml(asset="T-CT3", as_found=[("50 %", "twelve mA")])})
+    assert main(["run", str(ev), "--out", str(tmp_path / "out")]) == 2
+    site = tmp_path / "out" / "handbook"
+    page = (site / "tests" / "c_bad.html").read_text(encoding="utf-8")
+    assert "Invalid file" in page and "twelve mA" in page and "line 12" in page
+    assert "could not be judged (1)" in (site / "index.html").read_text(encoding="utf-8")
+    assert "c_bad.html" in (site / "failures.html").read_text(encoding="utf-8")
+    assert (site / "files" / "results" / "c" / "bad.yaml").read_bytes() == (ev / "results/c/bad.yaml").read_bytes()
