@@ -143,10 +143,16 @@ def render_job(job: Job) -> dict[str, bytes]:
     from loopledger.plugins import charts
 
     out: dict[str, bytes] = {}
+    alts: dict[str, str] = {}
     for rel, (kind, data, title) in sorted(job.charts.items()):
         draw = charts.error_chart if kind == "error" else charts.drift_chart
         out[rel] = draw(data, title).encode("utf-8")
-    out[job.rel] = environment().get_template(job.template).render(**job.data).encode("utf-8")
+        alts[rel] = charts.error_alt(data) if kind == "error" else charts.drift_alt(data)
+    page = dict(job.data)
+    for key in ("latest_chart", "drift_chart", "chart"):  # text alternatives: made here, from the hashed data
+        if isinstance(page.get(key), dict):
+            page[key] = {**page[key], "alt": alts.get(page[key]["src"], "")}
+    out[job.rel] = environment().get_template(job.template).render(**page).encode("utf-8")
     return out
 
 
@@ -161,6 +167,9 @@ def jobs(ctx: RunContext) -> list[Job]:
     tests = sp.test_table(ctx, used)
     assets = sp.asset_table(ctx, tests)
     points = ctx.points
+    if len(points):  # the chart columns, computed once for every page
+        extra = sp.chart_columns(points)
+        points = points.assign(**{c: extra[c].to_numpy() for c in sp.CHART_COLS[2:]})
     common = {"as_of": ctx.as_of.isoformat(), "cautions": CAUTIONS, "rule": rule}
     out: list[Job] = []
 
@@ -192,11 +201,11 @@ def jobs(ctx: RunContext) -> list[Job]:
         if data["latest_chart"]:
             rel = f"charts/{name}-latest.svg"
             charts[rel] = ("error", data["latest_chart"], f"{row['asset']}: test of {row['last_date']}")
-            data["latest_chart"] = {"src": rel, "alt": _alt("error", data["latest_chart"])}
+            data["latest_chart"] = {"src": rel}
         if data["drift_chart"]:
             rel = f"charts/{name}-history.svg"
             charts[rel] = ("drift", data["drift_chart"], f"{row['asset']}: as-found error by year")
-            data["drift_chart"] = {"src": rel, "alt": _alt("drift", data["drift_chart"])}
+            data["drift_chart"] = {"src": rel}
         add(f"assets/{name}.html", "asset.html", data, charts)
         plan = sp.default_plan(ctx, str(row["asset"]), mine)
         sheet = sp.sheet_data(ctx, str(row["asset"]), plan, pts_by_asset.get(row["asset"], empty_pts))
@@ -209,17 +218,11 @@ def jobs(ctx: RunContext) -> list[Job]:
         if data["chart"]:
             rel = f"charts/test-{test['page']}.svg"
             charts[rel] = ("error", data["chart"], f"{test['asset']}: test of {test['date']}")
-            data["chart"] = {"src": rel, "alt": _alt("error", data["chart"])}
+            data["chart"] = {"src": rel}
         data["remarks_html"] = render_markdown(test.get("remarks"))
         data["has_asset"] = test.get("asset") in ctx.assets.index
         add(f"tests/{test['page']}.html", "test.html", data, charts)
     return out
-
-
-def _alt(kind: str, data: dict[str, Any]) -> str:
-    from loopledger.plugins import charts
-
-    return charts.error_alt(data) if kind == "error" else charts.drift_alt(data)
 
 
 def _read_manifest(folder: Path) -> dict[str, Any]:

@@ -285,16 +285,26 @@ def index_data(ctx: RunContext, assets: pd.DataFrame, tests: pd.DataFrame) -> di
 # ---------------------------------------------------------------------------------------------
 # charts' data
 
-def latest_chart_data(points: pd.DataFrame) -> dict[str, Any]:
-    """Points of one test for the error chart, all in % of span."""
+CHART_COLS = ["phase", "input_pct", "error_pct", "mpe_pct", "accept_pct", "U_pct"]
+
+
+def chart_columns(points: pd.DataFrame) -> pd.DataFrame:
+    """The error chart's columns for every point at once, all in % of span."""
+    if points.empty:
+        return pd.DataFrame(columns=CHART_COLS)
     span = points["span"].abs().replace(0, np.nan)
-    frame = pd.DataFrame({
+    return pd.DataFrame({
         "phase": points["phase"], "input_pct": points["input_pct"], "error_pct": points["error_pct_span"],
         "mpe_pct": points["mpe"] / span * 100.0,
         "accept_pct": _col(points, "acceptance_limit") / span * 100.0,
         "U_pct": _col(points, "U") / span * 100.0,
-    }).sort_values(["phase", "input_pct"])
-    return {"points": records(frame)}
+    }, index=points.index)
+
+
+def latest_chart_data(points: pd.DataFrame) -> dict[str, Any]:
+    """Points of one test for the error chart (columns of :func:`chart_columns`, made here if missing)."""
+    frame = points[CHART_COLS] if set(CHART_COLS) <= set(points.columns) else chart_columns(points)
+    return {"points": records(frame.sort_values(["phase", "input_pct"]))}
 
 
 def drift_chart_data(ctx: RunContext, asset: str, points: pd.DataFrame) -> dict[str, Any]:
