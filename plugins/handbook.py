@@ -351,7 +351,8 @@ def _sheet_run(args: argparse.Namespace) -> int:
 
         page = environment().get_template("sheet.html").render(
             sheet=sheet, root="", asset_page="", page_rel="sheet.html", as_of=ctx.as_of.isoformat(),
-            cautions=CAUTIONS, rule=sheet.get("rule", ""), standalone=True)
+            cautions=CAUTIONS, rule=sheet.get("rule", ""),
+            inline_css=importlib.resources.files("loopledger.site").joinpath("static/style.css").read_text("utf-8"))
         write_bytes(args.html, page.encode("utf-8"))
         sys.stdout.write(f"Printable sheet: {args.html}\n")
     return 0

@@ -320,6 +320,7 @@ def test_sheet_command(tmp_path, capsys):
     assert "12.0800" in out and "3.0200" in out and "Cautions" in out
     page = html.read_text(encoding="utf-8")
     assert "Pass from (V)" in page and "3.0200" in page and _audit(page).external == []
+    assert _links(html) == []  # a page on its own: the style sheet is inside it, no links to a site
     assert main(["sheet", "NOPE", "--evidence", str(ev)]) == 3
     assert "NOPE" in capsys.readouterr().err
     assert main(["sheet", "T-CT1", "--evidence", str(ev), "--meter", "NOPE"]) == 3
