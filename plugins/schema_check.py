@@ -187,7 +187,7 @@ def _parse_readings(pts: pd.DataFrame, where) -> list[Finding]:  # type: ignore[
         hi = q.parse_column(pts.loc[rows, "reading_max"].fillna(""))
         for idx in rows:
             for name, frame in (("reading_min", lo), ("reading_max", hi)):
-                if frame.at[idx, "problem"] is not None:
+                if pd.notna(frame.at[idx, "problem"]):
                     findings.append(error(f"{name}: {frame.at[idx, 'problem']}", field=name, **where(idx)))
         hi_v = q.convert(hi["value"], hi["unit"], lo["unit"])
         bad = hi_v < lo["value"]
