@@ -462,15 +462,23 @@ def sheet_data(ctx: RunContext, asset: str, plan: dict[str, Any], points: pd.Dat
     frame = frame.assign(test="sheet", source_file="(planned)", line=0, phase="as_found",
                          point=range(1, len(pcts) + 1), input=[f"{p:g} %" for p in pcts],
                          input_value=pcts, input_written_unit=q.PERCENT, injection="secondary",
-                         method=plan.get("method") or "direct", connection=plan.get("connection") or "standalone")
+                         method=plan.get("method") or "direct", connection=plan.get("connection") or "standalone",
+                         direction=None, reading=np.nan, reading_unit="", reading_text="", n_readings=0,
+                         date=ctx.as_of.isoformat())
     notes: list[str] = []
     handler = ctx.signal_types.get(str(reg.get("signal")))
+    empty = {"asset": {k: plain(v) for k, v in reg.items()}, "plan": plain(plan), "rows": [], "rule": "",
+             "unit": str(reg.get("output_unit") or ""), "ct_ratio": None, "sections": []}
     if handler is None:
-        return {"asset": {k: plain(v) for k, v in reg.items()}, "plan": plan, "rows": [],
-                "notes": [f"no plugin handles signal '{reg.get('signal')}', so no expected values can be given"]}
-    evaluated, _ = handler.evaluate(frame, ctx)
-    for col in evaluated.columns:
-        frame[col] = evaluated[col].to_numpy()
+        return {**empty, "notes": [f"no plugin handles signal '{reg.get('signal')}', so no expected values "
+                                   "can be given"]}
+    try:  # a signal type from a site plugin may not expect planned points: the rest of the site must still build
+        evaluated, _ = handler.evaluate(frame, ctx)
+        for col in evaluated.columns:
+            frame[col] = evaluated[col].to_numpy()
+    except Exception as exc:
+        return {**empty, "notes": [f"the signal type '{reg.get('signal')}' could not work out the planned points "
+                                   f"({type(exc).__name__}: {exc}); plan them by hand"]}
     frame["span"] = float(reg["output_max"]) - float(reg["output_min"])
     frame["mpe"], _ = tolerance.mpe(frame)
     frame["error"] = 0.0
@@ -502,7 +510,7 @@ def sheet_data(ctx: RunContext, asset: str, plan: dict[str, Any], points: pd.Dat
     to_amps = q.affine(unit, "A") if unit else None
     ratio = _ratio(reg.get("ct_ratio"))
     for r in frame.itertuples():
-        row = {"input_pct": plain(r.input_pct), "input": plain(getattr(r, "injected", None)),
+        row = {"input_pct": plain(r.input_value), "input": plain(getattr(r, "injected", None)),
                "input_unit": plain(getattr(r, "injected_unit", None)), "expected": plain(r.expected),
                "low": plain(r.expected - r.accept), "high": plain(r.expected + r.accept), "accept": plain(r.accept),
                "mpe": plain(r.mpe)}
