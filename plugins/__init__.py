@@ -31,7 +31,6 @@ BUILTIN: tuple[str, ...] = (
     "fault_signatures",
     "history",
     "drift",
-    "drift_chart",
     "intervals",
     "traceability",
     "export_csv",

@@ -93,15 +93,14 @@ def drift_chart(data: dict[str, Any], title: str) -> str:
         fig, ax = plt.subplots(figsize=(6.4, 3.4))
         for i, (pct, rows) in enumerate(pts.groupby("input_pct", sort=True)):
             marker, colour = MARKERS[i % len(MARKERS)], GREYS[i % len(GREYS)]
-            ax.plot(rows["when"], rows["error_pct"].astype(float), marker=marker, ls="none", color=colour,
-                    ms=5, label=f"{pct:g} % input")
+            ax.plot(rows["when"], pd.to_numeric(rows["error_pct"], errors="coerce"), marker=marker, ls="none",
+                    color=colour, ms=5, label=f"{pct:g} % input")
+            if "as_left_pct" in rows:
+                left = pd.to_numeric(rows["as_left_pct"], errors="coerce")
+                ax.plot(rows["when"], left, marker=marker, ls="none", color=colour, ms=5, mfc="none")
             fit = fits.get(round(float(pct), 3))
             if fit and fit.get("ref_date") and fit.get("slope_pct_per_year") is not None:
-                ref = pd.Timestamp(fit["ref_date"])
-                ends = pd.DatetimeIndex([min(rows["when"].min(), ref), rows["when"].max()])
-                years = (ends - ref).days / 365.25
-                ax.plot(ends, float(fit["intercept_pct"] or 0.0) + float(fit["slope_pct_per_year"]) * years,
-                        color=colour, ls=STYLES[i % len(STYLES)], lw=1.0)
+                _fit_line(ax, rows, fit, colour, STYLES[i % len(STYLES)], data.get("end"))
         mpe = data.get("mpe_pct")
         if mpe:
             ax.axhline(mpe, color="#999999", lw=0.9, ls=":", label="±MPE")
@@ -115,6 +114,26 @@ def drift_chart(data: dict[str, Any], title: str) -> str:
         ax.legend(loc="center left", bbox_to_anchor=(1.01, 0.5), fontsize=8, frameon=False)
         fig.tight_layout()
         return _svg(fig)
+
+
+def _fit_line(ax: Any, rows: pd.DataFrame, fit: dict[str, Any], colour: str, style: Any, end: Any) -> None:
+    """The fitted drift line; with the trims made at adjustments it restarts after each one, and the
+    last stretch runs on to ``end`` (the as-of date) when that is later."""
+    ref = pd.Timestamp(fit["ref_date"])
+    slope, intercept = float(fit["slope_pct_per_year"]), float(fit["intercept_pct"] or 0.0)
+    when = list(rows["when"])
+    if "trims_pct" in rows:
+        trims = pd.to_numeric(rows["trims_pct"], errors="coerce").fillna(0.0).tolist()
+        last = max(when[-1], pd.Timestamp(end)) if end else when[-1]
+        bounds = [*when, last]
+        for j in range(len(when)):
+            ends = pd.DatetimeIndex([bounds[j], bounds[j + 1]])
+            years = (ends - ref).days / 365.25
+            ax.plot(ends, intercept + slope * years - trims[j], color=colour, ls=style, lw=1.0)
+        return
+    ends = pd.DatetimeIndex([min(min(when), ref), max(when)])
+    years = (ends - ref).days / 365.25
+    ax.plot(ends, intercept + slope * years, color=colour, ls=style, lw=1.0)
 
 
 def error_alt(data: dict[str, Any]) -> str:

@@ -309,9 +309,18 @@ def latest_chart_data(points: pd.DataFrame) -> dict[str, Any]:
 
 def drift_chart_data(ctx: RunContext, asset: str, points: pd.DataFrame) -> dict[str, Any]:
     """As-found error per test point over the years, with issue 5's fitted drift lines when present."""
-    found = points[points["phase"] == "as_found"]
-    frame = pd.DataFrame({"date": found["date"], "input_pct": found["input_pct"].round(3),
-                          "error_pct": found["error_pct_span"]}).sort_values(["input_pct", "date"])
+    drift = ctx.extras.get("drift_points")
+    if isinstance(drift, pd.DataFrame) and {"asset", "input_pct", "date", "error_pct_span", "as_left_pct",
+                                            "trims_pct"} <= set(drift.columns):
+        # issue 5's drift points: as-found and as-left per test point, and the trims made before each
+        mine_pts = drift[drift["asset"] == asset]
+        frame = pd.DataFrame({"date": mine_pts["date"].astype(str), "input_pct": mine_pts["input_pct"].round(3),
+                              "error_pct": mine_pts["error_pct_span"], "as_left_pct": mine_pts["as_left_pct"],
+                              "trims_pct": mine_pts["trims_pct"]}).sort_values(["input_pct", "date"])
+    else:
+        found = points[points["phase"] == "as_found"]
+        frame = pd.DataFrame({"date": found["date"], "input_pct": found["input_pct"].round(3),
+                              "error_pct": found["error_pct_span"]}).sort_values(["input_pct", "date"])
     fits = ctx.extras.get("drift_fits")
     lines: list[dict[str, Any]] = []
     if isinstance(fits, pd.DataFrame) and {"asset", "input_pct", "slope_pct_per_year", "intercept_pct",
@@ -319,7 +328,7 @@ def drift_chart_data(ctx: RunContext, asset: str, points: pd.DataFrame) -> dict[
         mine = fits[fits["asset"] == asset].sort_values("input_pct")
         lines = records(mine, ["input_pct", "slope_pct_per_year", "intercept_pct", "ref_date", "n", "stderr"])
     mpe_pct = (points["mpe"] / points["span"].abs() * 100.0).max() if len(points) else None
-    return {"points": records(frame), "fits": lines, "mpe_pct": plain(mpe_pct)}
+    return {"points": records(frame), "fits": lines, "mpe_pct": plain(mpe_pct), "end": ctx.as_of.isoformat()}
 
 
 # ---------------------------------------------------------------------------------------------
