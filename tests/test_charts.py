@@ -3,8 +3,8 @@
 from __future__ import annotations
 
 import pandas as pd
-
 from loopledger.plugins import charts, site_pages
+
 from tests.evidence import good_points, result_yaml, write_evidence
 
 # as-found offsets in mA over four yearly tests; the third test was trimmed back to +0.005 mA
