@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 import hashlib
+import os
 from collections.abc import Callable, Iterable
+from pathlib import Path
 from typing import Any
 
 import pandas as pd
@@ -24,6 +26,17 @@ def test_id(rel: str) -> str:
     return stem.rsplit(".", 1)[0] if "." in stem.rsplit("/", 1)[-1] else stem
 
 
+def read_bounded(path: Path, limit: int) -> bytes:
+    """The file's bytes, refusing (ValueError) a file over ``limit`` bytes without reading it all."""
+    with open(path, "rb") as fh:
+        size = os.fstat(fh.fileno()).st_size
+        data = fh.read(limit + 1) if size <= limit else b""
+    if size > limit or len(data) > limit:
+        raise ValueError(f"file is {max(size, len(data)):,} bytes, over the limit of {limit:,} "
+                         "(limits.max_file_bytes in loopledger.toml)")
+    return data
+
+
 def read_files(ctx: Any, files: Iterable[SourceFile],
                progress: Callable[[int], None] | None = None) -> list[Finding]:
     """Fill ``ctx.tests`` and ``ctx.points`` from ``files``; return the findings met on the way."""
@@ -39,18 +52,20 @@ def read_files(ctx: Any, files: Iterable[SourceFile],
         if progress:
             progress(1)
         try:
-            size = source.path.stat().st_size
-            if size > limits["max_file_bytes"]:
-                raise ValueError(f"file is {size:,} bytes, over the limit of {limits['max_file_bytes']:,} "
-                                 "(limits.max_file_bytes in loopledger.toml)")
-            data = source.path.read_bytes()
+            data = read_bounded(source.path, int(limits["max_file_bytes"]))
         except (OSError, ValueError) as exc:
             findings.append(error(f"cannot read: {exc}", file=source.rel, code="unreadable"))
             row["valid"] = False
             continue
         row["sha256"] = hashlib.sha256(data).hexdigest()
         ctx.raw_files[source.rel] = data
-        read = ctx.pm.hook.ll_read_result(path=source.path, rel=source.rel, data=data)
+        try:
+            read = ctx.pm.hook.ll_read_result(path=source.path, rel=source.rel, data=data)
+        except Exception as exc:  # a reader plugin's bug must not stop the other files
+            findings.append(error(f"the reader failed on this file ({type(exc).__name__}: {exc}); this is a "
+                                  "bug in a reader plugin, please report it", file=source.rel, code="reader"))
+            row["valid"] = False
+            continue
         if read is None:
             findings.append(error("no plugin reads this kind of file", file=source.rel, code="format"))
             row["valid"] = False

@@ -92,6 +92,6 @@ def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None
     if other:
         console.print(f"[bold]{len(other)} warning(s) and registry finding(s):[/]")
         for f in other[: 40 if not verbose else None]:
-            console.print("  " + f.format(), markup=False, highlight=False)
+            console.print("  " + f.format(), markup=False, highlight=False, soft_wrap=True)
         if len(other) > 40 and not verbose:
             console.print(f"  … {len(other) - 40} more (use --verbose, or see data/tests.csv)")

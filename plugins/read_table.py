@@ -30,7 +30,27 @@ def _frame(path: Path, data: bytes) -> pd.DataFrame:
         frame = pd.read_excel(io.BytesIO(data), dtype=str, engine="openpyxl")
         return frame.fillna("")
     text = decode(data)
+    _check_ragged(text)
     return pd.read_csv(io.StringIO(text), dtype=str, keep_default_na=False, skipinitialspace=True)
+
+
+class RaggedRow(ValueError):
+    def __init__(self, line: int, cells: int, header: int) -> None:
+        super().__init__(f"row has {cells} cells but the header row has {header}")
+        self.line = line
+
+
+def _check_ragged(text: str) -> None:
+    """Refuse rows longer or shorter than the header (pandas would shift or drop cells silently)."""
+    import csv
+
+    rows = csv.reader(io.StringIO(text))
+    header = next(rows, None)
+    if header is None:
+        return
+    for number, row in enumerate(rows, start=2):
+        if row and len(row) != len(header):
+            raise RaggedRow(number, len(row), len(header))
 
 
 def parse(frame: pd.DataFrame, rel: str) -> ResultRead:
@@ -88,6 +108,8 @@ def ll_read_result(path: Path, rel: str, data: bytes) -> ResultRead | None:
         return None
     try:
         frame = _frame(path, data)
+    except RaggedRow as exc:
+        return ResultRead({}, [], findings=[error(str(exc), file=rel, line=exc.line, code="table")])
     except ValueError as exc:
         return ResultRead({}, [], findings=[error(str(exc), file=rel, code="encoding")])
     except Exception as exc:  # pandas and openpyxl raise many kinds for a damaged file

@@ -61,6 +61,8 @@ def check_tests(ctx: RunContext) -> list[Finding]:
     checked["date"] = dates.dt.strftime("%Y-%m-%d")
     findings += _check_references(ctx, checked, lines)
     findings += _check_duplicate_files(checked, lines)
+    mixed = {c: object for c in checked.columns if c in ctx.tests.columns and ctx.tests[c].dtype != checked[c].dtype}
+    ctx.tests = ctx.tests.astype(mixed)  # e.g. an all-missing column of files refused unread
     for col in checked.columns:
         ctx.tests.loc[checked.index, col] = checked[col]
     return findings

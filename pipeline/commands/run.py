@@ -46,7 +46,7 @@ def main(args: argparse.Namespace) -> int:
     if errors:
         console.print(f"[bold red]{len(errors)} error(s) in the evidence:[/]")
         for f in errors[: 60 if not args.verbose else None]:
-            console.print("  " + f.format(), markup=False, highlight=False)
+            console.print("  " + f.format(), markup=False, highlight=False, soft_wrap=True)
         if len(errors) > 60 and not args.verbose:
             console.print(f"  … {len(errors) - 60} more (use --verbose, or see data/tests.csv)")
     code = runner.exit_code(ctx)
