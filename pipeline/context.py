@@ -8,12 +8,10 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import pandas as pd
-
 from loopledger.findings import Finding
 
 if TYPE_CHECKING:
     import pluggy
-
     from loopledger.contracts import DecisionRule, ReadingMethod, SignalType
 
 

@@ -12,7 +12,6 @@ from typing import TYPE_CHECKING, Any, ClassVar
 
 if TYPE_CHECKING:
     import pandas as pd
-
     from loopledger.context import RunContext
     from loopledger.findings import Finding
 

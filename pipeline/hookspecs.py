@@ -19,7 +19,6 @@ import pluggy
 
 if TYPE_CHECKING:
     import pandas as pd
-
     from loopledger.context import RunContext
     from loopledger.contracts import Command, DecisionRule, ReadingMethod, ResultRead, Section, SignalType
     from loopledger.findings import Finding

@@ -5,7 +5,6 @@ from __future__ import annotations
 import importlib
 
 import pluggy
-
 from loopledger import hookspecs
 
 ENTRY_POINT_GROUP = "loopledger"

@@ -9,7 +9,6 @@ from pathlib import Path
 from typing import Any
 
 import pandas as pd
-
 from loopledger.contracts import SourceFile
 from loopledger.findings import Finding, error
 

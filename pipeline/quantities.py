@@ -30,8 +30,7 @@ PERCENT = "%"
 def registry() -> pint.UnitRegistry:
     import pint
 
-    ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
-    return ureg
+    return pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
 
 
 def normalise_unit(text: str) -> str:

@@ -8,7 +8,6 @@ from typing import Any
 
 import pandas as pd
 import yaml
-
 from loopledger.findings import Finding, error
 from loopledger.validation import validate
 

@@ -5,12 +5,11 @@ from __future__ import annotations
 from collections.abc import Callable
 from typing import TextIO
 
+from loopledger.context import RunContext
+from loopledger.findings import Finding
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
-
-from loopledger.context import RunContext
-from loopledger.findings import Finding
 
 
 def progress_factory(console: Console, threshold: int = 200) -> Callable[[int, int], Callable[[int], None]]:
@@ -82,7 +81,8 @@ def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None
             if row.verdict == "fail":
                 pts = ctx.points[(ctx.points["test"] == row.test) & (ctx.points["decision"] != "pass")]
                 last = pts[pts["phase"] == ("as_left" if row.as_left else "as_found")]
-                why = f"{len(last)} point(s) outside tolerance, worst {last['error_pct_span'].abs().max():.3g} % of span"
+                worst = last["error_pct_span"].abs().max()
+                why = f"{len(last)} point(s) outside tolerance, worst {worst:.3g} % of span"
             style = "red" if row.verdict == "fail" else "yellow"
             table.add_row(f"[{style}]{row.verdict}[/]", str(row.asset or ""), str(row.date or ""),
                           row.source_file, why)

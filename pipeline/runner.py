@@ -8,7 +8,6 @@ from pathlib import Path
 from typing import Any
 
 import pluggy
-
 from loopledger import discover as disc
 from loopledger.config import ConfigError, load_config
 from loopledger.context import RunContext

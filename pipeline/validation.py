@@ -7,7 +7,6 @@ from collections.abc import Callable
 from typing import Any
 
 import pandas as pd
-
 from loopledger.findings import Finding, error
 
 _ISIN = re.compile(r"^isin\((.*)\)$")

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-
 from loopledger.context import RunContext
 from loopledger.contracts import SignalType
 from loopledger.findings import Finding, error

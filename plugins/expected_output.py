@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import numpy as np
-
 from loopledger.context import RunContext
 from loopledger.findings import Finding, error
 from loopledger.hookspecs import hookimpl

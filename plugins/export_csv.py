@@ -7,19 +7,18 @@ Plugins add columns to the exports by appending their names to
 from __future__ import annotations
 
 import pandas as pd
-
 from loopledger.context import RunContext
 from loopledger.hookspecs import hookimpl
 from loopledger.schemas.points import POINT_COLUMNS, TEST_COLUMNS
 
 
-def _messages(ctx: RunContext, severity: str) -> pd.Series:
+def _messages(ctx: RunContext, severity: str) -> dict[str, str]:
     by_file: dict[str, list[str]] = {}
     for f in ctx.findings:
         if f.severity == severity and f.file:
             text = f"line {f.line}: {f.message}" if f.line else f.message
             by_file.setdefault(f.file, []).append(text)
-    return pd.Series({k: "; ".join(v) for k, v in by_file.items()}, dtype=object)
+    return {k: "; ".join(v) for k, v in by_file.items()}
 
 
 def points_table(ctx: RunContext) -> pd.DataFrame:
@@ -32,8 +31,9 @@ def points_table(ctx: RunContext) -> pd.DataFrame:
 def tests_table(ctx: RunContext) -> pd.DataFrame:
     extra = [c for c in ctx.extras.get("test_exports", []) if c in ctx.tests.columns]
     tests = ctx.tests.copy()
-    tests["warnings"] = tests["source_file"].map(_messages(ctx, "warning")).fillna("")
-    tests["errors"] = tests["source_file"].map(_messages(ctx, "error")).fillna("")
+    warnings, errors = _messages(ctx, "warning"), _messages(ctx, "error")
+    tests["warnings"] = [warnings.get(f, "") for f in tests["source_file"]]
+    tests["errors"] = [errors.get(f, "") for f in tests["source_file"]]
     cols = [*TEST_COLUMNS, "errors", "adjusted", "technician", "method", "connection", "decision_rule", *extra]
     return tests.reindex(columns=list(dict.fromkeys(cols))).sort_values(["source_file"], kind="stable")
 

@@ -16,7 +16,6 @@ from pathlib import Path
 from typing import Any
 
 import pandas as pd
-
 from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.findings import Finding

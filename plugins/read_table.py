@@ -14,7 +14,6 @@ from pathlib import Path
 from typing import Any
 
 import pandas as pd
-
 from loopledger.contracts import ResultRead
 from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl

@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-
 from loopledger import quantities as q
 from loopledger.context import RunContext
 from loopledger.contracts import ReadingMethod
@@ -79,7 +78,8 @@ class Display(ReadingMethod):
         value = q.convert(points["reading"], points["reading_unit"], unit.where(unit != "", "dimensionless"))
         frac = pd.Series(np.where(pct_given, points["reading"] / 100.0, (value - lo) / (hi - lo)), index=points.index)
         findings = [error("method 'display' needs display_min and display_max for the asset in assets.csv",
-                          field="display_min", **where(points, i)) for i in points.index[~pct_given & (lo.isna() | hi.isna())]]
+                          field="display_min", **where(points, i))
+                    for i in points.index[~pct_given & (lo.isna() | hi.isna())]]
         findings += _unit_error(points, ~pct_given & value.isna() & lo.notna() & hi.notna(),
                                 "in the display's unit (display_unit) or %")
         out_lo, out_hi = points["output_min"].astype(float), points["output_max"].astype(float)

@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-
 from loopledger import quantities as q
 from loopledger.findings import Finding, error
 

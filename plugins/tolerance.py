@@ -16,7 +16,6 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-
 from loopledger import quantities as q
 from loopledger.context import RunContext
 from loopledger.contracts import DecisionRule

@@ -5,7 +5,6 @@ from pathlib import Path
 
 import pluggy
 import pytest
-
 from loopledger import runner
 from loopledger.context import RunContext
 from loopledger.host import get_plugin_manager

@@ -6,10 +6,9 @@ import argparse
 import sys
 from pathlib import Path
 
-from rich.console import Console
-
 from loopledger import report, runner
 from loopledger.host import get_plugin_manager
+from rich.console import Console
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

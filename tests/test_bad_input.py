@@ -1,0 +1,144 @@
+"""Bad input: one clear message naming file, line/point and field; the good files are still judged."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import pytest
+from loopledger.cli import main
+
+from tests.evidence import good_points, result_yaml, write_evidence
+
+GOOD = result_yaml(as_found=good_points(0.01), date="2026-03-01")
+
+
+def _run(tmp_path, bad_name: str, bad_text: str | bytes, run_folder) -> Any:
+    ev = write_evidence(tmp_path / "ev", {"good.yaml": GOOD})
+    path = ev / "results" / bad_name
+    if isinstance(bad_text, bytes):
+        path.write_bytes(bad_text)
+    else:
+        path.write_text(bad_text, encoding="utf-8")
+    ctx = run_folder(ev)
+    good = ctx.tests.set_index("source_file").loc["results/good.yaml"]
+    assert good["verdict"] == "pass", "the good file must still be judged"
+    assert (ctx.points["source_file"] == "results/good.yaml").sum() == 5
+    bad = ctx.tests.set_index("source_file").loc[f"results/{bad_name}"]
+    assert bad["verdict"] == "invalid", "the bad file stays listed, as invalid"
+    errs = [f for f in ctx.findings if f.severity == "error" and f.file == f"results/{bad_name}"]
+    assert errs, ctx.findings
+    return errs
+
+
+def _one(errs, field: str):
+    hits = [f for f in errs if f.field == field]
+    assert hits, [f.format() for f in errs]
+    return hits[0]
+
+
+def test_missing_header_field(tmp_path, run_folder):
+    text = result_yaml(as_found=good_points()).replace("technician: T. Tester\n", "")
+    f = _one(_run(tmp_path, "bad.yaml", text, run_folder), "technician")
+    assert "missing" in f.message
+
+
+def test_wrong_value_of_a_header_field(tmp_path, run_folder):
+    text = result_yaml(as_found=good_points(), connection="sideways")
+    f = _one(_run(tmp_path, "bad.yaml", text, run_folder), "connection")
+    assert "sideways" in f.message and "standalone" in f.message and f.line == 4
+
+
+def test_unknown_asset(tmp_path, run_folder):
+    f = _one(_run(tmp_path, "bad.yaml", result_yaml(asset="NOPE-1", as_found=good_points()), run_folder), "asset")
+    assert "NOPE-1" in f.message and "assets.csv" in f.message and f.line == 1
+
+
+def test_unknown_instrument(tmp_path, run_folder):
+    text = result_yaml(as_found=good_points()).replace("meter: DMM-1", "meter: DMM-404")
+    f = _one(_run(tmp_path, "bad.yaml", text, run_folder), "instruments.meter")
+    assert "DMM-404" in f.message and f.line > 0
+
+
+def test_instrument_of_the_wrong_kind(tmp_path, run_folder):
+    text = result_yaml(as_found=good_points()).replace("meter: DMM-1", "meter: SH-100")
+    f = _one(_run(tmp_path, "bad.yaml", text, run_folder), "instruments.meter")
+    assert "is a shunt" in f.message
+
+
+def test_amps_where_volts_were_expected(tmp_path, run_folder):
+    pts = good_points(shunt=True)
+    pts[2] = ("50 %", "12 mA")
+    f = _one(_run(tmp_path, "bad.yaml", result_yaml(method="shunt", as_found=pts), run_folder), "reading")
+    assert f.point == "as_found #3" and "voltage" in f.message and f.line > 0
+
+
+def test_non_number_reading(tmp_path, run_folder):
+    pts = good_points()
+    pts[1] = ("25 %", "about eight mA")
+    f = _one(_run(tmp_path, "bad.yaml", result_yaml(as_found=pts), run_folder), "reading")
+    assert f.point == "as_found #2" and "not a number" in f.message
+
+
+def test_reading_without_unit(tmp_path, run_folder):
+    text = result_yaml(as_found=good_points()).replace("reading: 8.0000 mA", "reading: 8.0")
+    f = _one(_run(tmp_path, "bad.yaml", text, run_folder), "reading")
+    assert "has no unit" in f.message
+
+
+def test_decimal_comma_is_not_read_as_thousands(tmp_path, run_folder):
+    pts = good_points(shunt=True)
+    pts[0] = ("0 %", "0,4011 V")
+    f = _one(_run(tmp_path, "bad.yaml", result_yaml(method="shunt", as_found=pts), run_folder), "reading")
+    assert "decimal comma" in f.message
+
+
+def test_unknown_unit(tmp_path, run_folder):
+    pts = good_points()
+    pts[0] = ("0 %", "4 mQ")
+    f = _one(_run(tmp_path, "bad.yaml", result_yaml(as_found=pts), run_folder), "reading")
+    assert "not a unit" in f.message
+
+
+def test_empty_file(tmp_path, run_folder):
+    errs = _run(tmp_path, "empty.yaml", "", run_folder)
+    assert "empty" in errs[0].message
+
+
+def test_unreadable_yaml_names_the_line(tmp_path, run_folder):
+    text = "asset: T-CT1\ndate: 2026-01-01\nas_found:\n  - {input: 0 %, reading: 4 mA\n"
+    errs = _run(tmp_path, "broken.yaml", text, run_folder)
+    assert "YAML cannot be read" in errs[0].message and errs[0].line >= 4
+
+
+def test_impossible_date(tmp_path, run_folder):
+    errs = _run(tmp_path, "bad.yaml", result_yaml(as_found=good_points(), date="2026-02-30"), run_folder)
+    assert any("date" in f.field or "date" in f.message for f in errs)
+
+
+def test_binary_file(tmp_path, run_folder):
+    errs = _run(tmp_path, "junk.yaml", bytes(range(256)) * 4, run_folder)
+    assert "binary" in errs[0].message
+
+
+def test_missing_column_in_a_csv(tmp_path, run_folder):
+    text = "asset,date,technician,connection,method,input,reading\nT-CT1,2026-01-01,A,standalone,direct,0 %,4 mA\n"
+    f = _one(_run(tmp_path, "bad.csv", text, run_folder), "phase")
+    assert "missing column" in f.message
+
+
+def test_csv_row_error_names_its_line(tmp_path, run_folder):
+    text = ("asset,date,technician,connection,method,source,meter,phase,input,reading\n"
+            "T-CT1,2026-01-01,A,standalone,direct,SRC-1,DMM-1,as_found,0 %,4.001 mA\n"
+            "T-CT1,2026-01-01,A,standalone,direct,SRC-1,DMM-1,as_found,50 %,twelve\n")
+    f = _one(_run(tmp_path, "bad.csv", text, run_folder), "reading")
+    assert f.line == 3 and f.point == "as_found #2"
+
+
+@pytest.mark.parametrize("name", ["bad.yaml"])
+def test_inputs_are_never_modified(tmp_path, run_folder, name):
+    ev = write_evidence(tmp_path / "ev", {"good.yaml": GOOD, name: "asset: [unclosed\n"})
+    before = {p: p.read_bytes() for p in ev.rglob("*") if p.is_file()}
+    assert main(["run", str(ev), "--out", str(tmp_path / "out")]) == 2
+    after = {p: p.read_bytes() for p in ev.rglob("*") if p.is_file()}
+    assert before == after
+    assert (tmp_path / "out" / "handbook" / "index.html").is_file()

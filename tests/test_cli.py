@@ -1,0 +1,104 @@
+"""The CLI end to end: `loopledger run` and `loopledger check` on temporary evidence folders."""
+
+from __future__ import annotations
+
+import csv
+
+import pytest
+from loopledger.cli import main
+
+from tests.evidence import good_points, result_yaml, write_evidence
+
+
+def _rows(path):
+    with open(path, newline="", encoding="utf-8") as fh:
+        return list(csv.DictReader(fh))
+
+
+def test_run_exports_judged_numbers_and_exits_0(tmp_path, capsys):
+    # 100 ohm shunt (Ohm's law): 1.2008 V is 12.008 mA; expected at 50 % of 4-20 mA is 12 mA
+    # (common practice); error +0.008 mA = +0.05 % of the 16 mA span; MPE of class 0.5 = 0.08 mA.
+    pts = [("0 %", "0.4001 V"), ("50 %", "1.2008 V"), ("100 %", "2.0004 V")]
+    ev = write_evidence(tmp_path / "ev", {"2026/a.yaml": result_yaml(method="shunt", as_found=pts)})
+    out = tmp_path / "out"
+    assert main(["run", str(ev), "--out", str(out)]) == 0
+    points = _rows(out / "data" / "points.csv")
+    assert [p["point"] for p in points] == ["1", "2", "3"]
+    mid = points[1]
+    assert mid["asset"] == "T-CT1" and mid["test"] == "2026/a" and mid["phase"] == "as_found"
+    assert float(mid["input_pct"]) == pytest.approx(50)
+    assert float(mid["expected"]) == pytest.approx(12.0)
+    assert float(mid["measured"]) == pytest.approx(12.008)
+    assert float(mid["error"]) == pytest.approx(0.008)
+    assert float(mid["error_pct_span"]) == pytest.approx(0.05)
+    assert float(mid["mpe"]) == pytest.approx(0.08)
+    assert mid["decision"] == "pass" and mid["output_unit"] == "mA"
+    tests = _rows(out / "data" / "tests.csv")
+    assert len(tests) == 1
+    t = tests[0]
+    assert (t["verdict"], t["as_found"], t["as_left"], t["source_file"]) == ("pass", "pass", "", "results/2026/a.yaml")
+    import hashlib
+
+    assert t["sha256"] == hashlib.sha256((ev / "results/2026/a.yaml").read_bytes()).hexdigest()
+    assert (out / "handbook" / "index.html").is_file()
+    assert "Handbook:" in capsys.readouterr().out
+
+
+def test_run_exits_1_when_a_test_fails(tmp_path):
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(as_found=good_points(0.5))})
+    assert main(["run", str(ev), "--out", str(tmp_path / "out")]) == 1
+    assert _rows(tmp_path / "out" / "data" / "tests.csv")[0]["verdict"] == "fail"
+
+
+def test_run_exits_2_on_an_invalid_file_and_still_publishes_the_rest(tmp_path):
+    ev = write_evidence(tmp_path / "ev", {"good.yaml": result_yaml(as_found=good_points()),
+                                          "bad.yaml": result_yaml(asset="NOPE", as_found=good_points())})
+    out = tmp_path / "out"
+    assert main(["run", str(ev), "--out", str(out)]) == 2
+    verdicts = {r["source_file"]: (r["verdict"], r["errors"]) for r in _rows(out / "data" / "tests.csv")}
+    assert verdicts["results/good.yaml"][0] == "pass"
+    assert verdicts["results/bad.yaml"][0] == "invalid" and "NOPE" in verdicts["results/bad.yaml"][1]
+    assert {r["source_file"] for r in _rows(out / "data" / "points.csv")} == {"results/good.yaml"}
+    assert list((out / "handbook" / "tests").glob("*.html"))
+
+
+def test_usage_and_configuration_errors_exit_3(tmp_path, capsys):
+    assert main(["run", str(tmp_path / "missing")]) == 3
+    with pytest.raises(SystemExit) as exc:
+        main(["run"])
+    assert exc.value.code == 3
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(as_found=good_points())},
+                        config='[decision]\nrule = "coin-toss"\n')
+    assert main(["run", str(ev), "--out", str(tmp_path / "o")]) == 3
+    assert "coin-toss" in capsys.readouterr().err
+
+
+def test_out_inside_the_evidence_folder_is_refused(tmp_path):
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(as_found=good_points())})
+    assert main(["run", str(ev), "--out", str(ev / "build")]) == 3
+    assert not (ev / "build").exists()
+
+
+def test_check_prints_path_line_severity_and_exit_code(tmp_path, capsys):
+    pts = good_points()
+    pts[3] = ("75 %", "16.3 mA")
+    ev = write_evidence(tmp_path / "ev", {"ok.yaml": result_yaml(as_found=good_points()),
+                                          "fails.yaml": result_yaml(as_found=pts, date="2026-04-15"),
+                                          "bad.yaml": result_yaml(as_found=good_points(), method="telepathy",
+                                                                  date="2026-04-16")})
+    code = main(["check", str(ev / "results" / "fails.yaml"), str(ev / "results" / "ok.yaml")])
+    out = capsys.readouterr().out.splitlines()
+    assert code == 1
+    lines = [ln for ln in out if ln.startswith("results/")]
+    assert len(lines) == 1
+    path, line, severity, message = lines[0].split(":", 3)
+    assert (path, severity.strip()) == ("results/fails.yaml", "error")
+    text = (ev / "results" / "fails.yaml").read_text().splitlines()
+    assert text[int(line) - 1].strip() == "- input: 75 %"  # the line where the point starts
+    assert "fail" in message and "as_found #4" in message
+    assert not (tmp_path / "build").exists()
+
+    code = main(["check", str(ev / "results")])
+    out = capsys.readouterr().out
+    assert code == 2
+    assert "results/bad.yaml:" in out and "telepathy" in out
