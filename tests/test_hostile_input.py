@@ -24,8 +24,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import pytest
-
 from loopledger.cli import main
+
 from tests.evidence import CT_ASSET, good_points, result_yaml, write_evidence
 
 GOOD = result_yaml(date="2026-04-14", as_found=good_points(0.01))
@@ -124,7 +124,8 @@ CASES = [
          ["bad/dim.yaml:9", "as_found #1", "field 'reading'", "in units of the output"]),
     Case("wrong-dimension-input", "bad/dimi.yaml", _b(_yaml_points("{input: 0 V, reading: 4.01 mA}", *FIVE[1:])),
          ["bad/dimi.yaml:9", "as_found #1", "field 'input'", "not in units of A"]),
-    Case("alias-bomb", "bad/bomb.yaml", _b(ALIAS_BOMB), ["bad/bomb.yaml", "error", "alias bomb", "expand to more than"]),
+    Case("alias-bomb", "bad/bomb.yaml", _b(ALIAS_BOMB),
+         ["bad/bomb.yaml", "error", "alias bomb", "expand to more than"]),
     Case("oversized", "bad/big.yaml", _b(_yaml_points(*FIVE) + "remarks: '" + "x" * 2_100_000 + "'\n"),
          ["bad/big.yaml", "error", "over the limit", "limits.max_file_bytes"]),
     Case("too-many-points", "bad/many.yaml",
