@@ -37,8 +37,16 @@ def read_bounded(path: Path, limit: int) -> bytes:
 
 
 def read_files(ctx: Any, files: Iterable[SourceFile],
-               progress: Callable[[int], None] | None = None) -> list[Finding]:
-    """Fill ``ctx.tests`` and ``ctx.points`` from ``files``; return the findings met on the way."""
+               progress: Callable[[int], None] | None = None,
+               parsed: dict[tuple[str, str], Any] | None = None) -> list[Finding]:
+    """Fill ``ctx.tests`` and ``ctx.points`` from ``files``; return the findings met on the way.
+
+    ``parsed`` (the incremental cache) maps (path, sha256) to a file already
+    read; a file found there is not parsed again. On return it holds exactly
+    the files of this run.
+    """
+    previous = dict(parsed) if parsed is not None else {}
+    kept: dict[tuple[str, str], Any] = {}
     limits = ctx.config["limits"]
     findings: list[Finding] = []
     tests: list[dict[str, Any]] = []
@@ -58,8 +66,13 @@ def read_files(ctx: Any, files: Iterable[SourceFile],
             continue
         row["sha256"] = hashlib.sha256(data).hexdigest()
         ctx.raw_files[source.rel] = data
+        key = (source.rel, row["sha256"])
         try:
-            read = ctx.pm.hook.ll_read_result(path=source.path, rel=source.rel, data=data)
+            read = previous.get(key)
+            if read is None:
+                read = ctx.pm.hook.ll_read_result(path=source.path, rel=source.rel, data=data)
+            if read is not None:
+                kept[key] = read
         except Exception as exc:  # a reader plugin's bug must not stop the other files
             findings.append(error(f"the reader failed on this file ({type(exc).__name__}: {exc}); this is a "
                                   "bug in a reader plugin, please report it", file=source.rel, code="reader"))
@@ -83,6 +96,9 @@ def read_files(ctx: Any, files: Iterable[SourceFile],
         for point in read.points:
             points.append({"test": row["test"], "source_file": source.rel,
                            **{k: point.get(k) for k in ("line", "phase", "point", *POINT_FIELDS)}})
+    if parsed is not None:
+        parsed.clear()
+        parsed.update(kept)
     ctx.tests = pd.DataFrame(tests, columns=list(TEST_COLUMNS))
     ctx.points = pd.DataFrame(points, columns=list(POINT_COLUMNS))
     ctx.extras["header_lines"] = header_lines
