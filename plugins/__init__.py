@@ -15,4 +15,5 @@ BUILTIN: tuple[str, ...] = (
     "tolerance",
     "export_csv",
     "handbook",
+    "synth",
 )
