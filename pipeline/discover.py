@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import re
 from pathlib import Path
 
 from loopledger.contracts import SourceFile
@@ -12,8 +13,11 @@ RESULTS_DIR = "results"
 RESULT_SUFFIXES = (".yaml", ".yml", ".csv", ".xlsx")
 
 
+_CONTROL = re.compile(r"[\x00-\x1f\x7f]")
+
+
 def _bad_name(rel: str) -> bool:
-    return any(ord(ch) < 32 or ord(ch) == 127 for ch in rel)
+    return _CONTROL.search(rel) is not None
 
 
 def discover(evidence: Path) -> tuple[list[SourceFile], list[Finding]]:

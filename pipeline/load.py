@@ -93,6 +93,14 @@ def read_files(ctx: Any, files: Iterable[SourceFile],
                                   "(limits.max_points)", file=source.rel, code="too-many"))
             row["valid"] = False
             continue
+        repeats = [p for p in read.points if len(p.get("readings") or ()) > limits["max_repeats"]]
+        if repeats:
+            findings += [error(f"{len(p['readings'])} repeat readings is over the limit of {limits['max_repeats']} "
+                               "(limits.max_repeats)", file=source.rel, line=int(p.get("line") or 0),
+                               point=f"{p.get('phase')} #{p.get('point')}", field="readings", code="too-many")
+                         for p in repeats]
+            row["valid"] = False
+            continue
         for point in read.points:
             points.append({"test": row["test"], "source_file": source.rel,
                            **{k: point.get(k) for k in ("line", "phase", "point", *POINT_FIELDS)}})

@@ -79,8 +79,11 @@ def run_stages(ctx: RunContext) -> None:
             found = _stamp(list(found or []), stage)
             ctx.findings += found
             ctx.invalidate({f.file for f in found if f.severity == "error" and f.file})
-    if "verdict" not in ctx.tests.columns:
-        ctx.tests["verdict"] = "invalid"
+    # when no file reached the judgement (all invalid, or none at all) the columns it adds still exist
+    for col, empty in (("as_found", ""), ("as_left", ""), ("adjusted", False), ("verdict", "invalid"),
+                       ("decision_rule", str(ctx.section("decision").get("rule", "simple")))):
+        if col not in ctx.tests.columns:
+            ctx.tests[col] = empty
     ctx.tests.loc[~ctx.tests["valid"].astype(bool), "verdict"] = "invalid"
     ctx.findings = sort_findings(ctx.findings)
 

@@ -131,6 +131,9 @@ CASES = [
     Case("too-many-points", "bad/many.yaml",
          _b(_yaml_points(*[f"{{input: {i / 100:.2f} %, reading: {4 + i * 0.0016:.4f} mA}}" for i in range(600)])),
          ["bad/many.yaml", "error", "limits.max_points"]),
+    Case("too-many-repeats", "bad/reps.yaml",
+         _b(_yaml_points("{input: 0 %, readings: [" + ", ".join(["4.01 mA"] * 101) + "]}", *FIVE[1:])),
+         ["bad/reps.yaml:9", "as_found #1", "field 'readings'", "limits.max_repeats"]),
     Case("python-tag", "bad/tag.yaml",
          _b(_yaml_points(*FIVE).replace("technician: T. Tester", "technician: !!python/object/apply:os.system "
                                                                  "['echo pwned']")),
@@ -247,6 +250,27 @@ def test_page_names_never_leave_out(tmp_path: Path, capsys: pytest.CaptureFixtur
     for path in out.rglob("*"):
         assert out.resolve() in path.resolve().parents
         assert ".." not in path.relative_to(out).parts
+
+
+def test_limits_come_from_loopledger_toml(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    six = _yaml_points(*FIVE, FIVE[0].replace("0 %", "1 %"))
+    ev = write_evidence(tmp_path / "ev", {GOOD_NAME: GOOD, "six.yaml": six},
+                        config="as_of = 2026-11-30\n[limits]\nmax_points = 5\n")
+    code, text = _run(ev, tmp_path / "out", capsys)
+    assert code == 2
+    assert "results/six.yaml: error: 6 points is over the limit of 5 (limits.max_points)" in text
+    assert _tests_csv(tmp_path / "out")["results/" + GOOD_NAME]["verdict"] == "pass"
+    (ev / "loopledger.toml").write_text("[limits]\nmax_file_bytes = -1\n", encoding="utf-8")
+    assert main(["run", str(ev), "--out", str(tmp_path / "out")]) == 3
+    assert "limits.max_file_bytes must be a whole number" in capsys.readouterr().err
+
+
+def test_every_file_invalid_still_publishes(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": "asset: [", "b.csv": ""})
+    code, text = _run(ev, tmp_path / "out", capsys)
+    assert code == 2, text
+    assert {r["verdict"] for r in _tests_csv(tmp_path / "out").values()} == {"invalid"}
+    assert (tmp_path / "out" / "handbook" / "index.html").is_file()
 
 
 def test_out_inside_evidence_is_refused(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
