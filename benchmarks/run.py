@@ -114,8 +114,8 @@ def table(rows: list[dict[str, object]]) -> str:
             return f"{v:.1f} s ({v / floor:.2f}×)"
         rss = max(int(r.get(k, 0)) for k in ("check_rss", "cold_rss", "nochange_rss", "onechanged_rss"))  # type: ignore[call-overload]
         what = "" if r.get("handbook", True) else " (run --no-handbook)"
-        lines.append(f"| {r['assets']} assets × {r['years']} y{what} | {r['files']} | {floor:.1f} s | {cell('check')} | "
-                     f"{cell('cold')} | {cell('nochange')} | {cell('onechanged')} | {rss} MiB |")
+        lines.append(f"| {r['assets']} assets × {r['years']} y{what} | {r['files']} | {floor:.1f} s "
+                     f"| {cell('check')} | {cell('cold')} | {cell('nochange')} | {cell('onechanged')} | {rss} MiB |")
     text = head + "\n".join(lines) + "\n"
     if len(rows) >= 2:
         a, b = rows[0], rows[-1]
