@@ -5,6 +5,7 @@ from __future__ import annotations
 from collections.abc import Callable
 from typing import TextIO
 
+import pandas as pd
 from loopledger.context import RunContext
 from loopledger.findings import Finding
 from rich.console import Console
@@ -59,6 +60,25 @@ def print_lines(findings: list[Finding], stream: TextIO) -> None:
         stream.write(f.format() + "\n")
 
 
+#: rows of the "needing attention" table shown without --verbose
+TABLE_ROWS = 50
+
+
+def _worst_points(ctx: RunContext, problems: pd.DataFrame) -> pd.DataFrame:
+    """Per failing test: how many points of its final phase are outside tolerance, and the worst |error|.
+
+    One grouped pass over the point table (a mask per test was quadratic in a large fleet).
+    """
+    pts = ctx.points
+    if pts.empty or "decision" not in pts:
+        return pd.DataFrame(columns=["n", "worst"])
+    final = problems.set_index("test")["as_left"].map(lambda v: "as_left" if v else "as_found")
+    outside = pts[(pts["decision"] != "pass") & pts["test"].isin(final.index)]
+    outside = outside[outside["phase"].to_numpy() == outside["test"].map(final).to_numpy()]
+    return outside.groupby("test").agg(n=("error_pct_span", "size"),
+                                       worst=("error_pct_span", lambda v: v.abs().max()))
+
+
 def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None:
     tests = ctx.tests
     counts = tests["verdict"].value_counts().to_dict() if not tests.empty else {}
@@ -76,17 +96,20 @@ def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None
         for f in ctx.findings:
             if f.severity == "error" and f.file and f.file not in errors:
                 errors[f.file] = f.message + (f" [{f.field}]" if f.field else "")
-        for row in problems.itertuples():
+        shown_rows = problems if verbose else problems.head(TABLE_ROWS)
+        worst = _worst_points(ctx, shown_rows)
+        for row in shown_rows.itertuples():
             why = errors.get(row.source_file, "")
-            if row.verdict == "fail":
-                pts = ctx.points[(ctx.points["test"] == row.test) & (ctx.points["decision"] != "pass")]
-                last = pts[pts["phase"] == ("as_left" if row.as_left else "as_found")]
-                worst = last["error_pct_span"].abs().max()
-                why = f"{len(last)} point(s) outside tolerance, worst {worst:.3g} % of span"
+            if row.verdict == "fail" and row.test in worst.index:
+                n, pct = worst.loc[row.test, "n"], worst.loc[row.test, "worst"]
+                why = f"{int(n)} point(s) outside tolerance, worst {pct:.3g} % of span"
             style = "red" if row.verdict == "fail" else "yellow"
             table.add_row(f"[{style}]{row.verdict}[/]", str(row.asset or ""), str(row.date or ""),
                           row.source_file, why)
         console.print(table)
+        if len(problems) > len(shown_rows):
+            console.print(f"  … {len(problems) - len(shown_rows)} more tests needing attention (use --verbose, "
+                          "or see data/tests.csv)")
     shown = [f for f in ctx.findings if verbose or f.severity != "note"]
     other = [f for f in shown if f.severity == "warning" or not f.file]
     if other:
