@@ -7,10 +7,14 @@ STAMP := $(VENV)/.installed
 
 .PHONY: install demo test lint bench clean
 
-$(STAMP): pyproject.toml
+# the example site plugin (DEVELOPERS.md) goes into the same venv, so the tests can run it through the CLI
+EXAMPLE_PLUGIN := plugins/examples/valve_feedback
+
+$(STAMP): pyproject.toml $(EXAMPLE_PLUGIN)/pyproject.toml
 	test -x $(PY) || $(PYTHON) -m venv $(VENV)
 	$(PY) -m pip install --quiet --upgrade pip
 	$(PY) -m pip install --quiet -e '.[dev]'
+	$(PY) -m pip install --quiet --no-deps -e $(EXAMPLE_PLUGIN)
 	touch $(STAMP)
 
 install: $(STAMP)

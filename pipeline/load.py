@@ -13,7 +13,7 @@ from loopledger.contracts import SourceFile
 from loopledger.findings import Finding, error
 
 HEADER_FIELDS = ("asset", "date", "technician", "connection", "method", "injection", "ambient_c",
-                 "source", "meter", "shunt", "remarks")
+                 "source", "meter", "shunt", "remarks", "cjc_c")
 POINT_FIELDS = ("input", "reading", "readings", "reading_min", "reading_max", "direction")
 TEST_COLUMNS = ("test", "source_file", "sha256", "valid", *HEADER_FIELDS)
 POINT_COLUMNS = ("test", "source_file", "line", "phase", "point", *POINT_FIELDS)

@@ -125,14 +125,16 @@ def convert(values: pd.Series, units: pd.Series, target: str | pd.Series) -> pd.
 
     Rows whose unit cannot be converted come back as NaN; callers report them.
     """
-    out = pd.Series(np.nan, index=values.index, dtype=float)
-    targets = target if isinstance(target, pd.Series) else pd.Series(target, index=values.index)
-    pairs = pd.DataFrame({"u": units.astype(str), "t": targets.astype(str)})
-    for (unit, tgt), idx in pairs.groupby(["u", "t"], sort=False).groups.items():
+    # positions, not labels: the index may repeat (one row per repeat reading of a point)
+    out = np.full(len(values), np.nan)
+    raw = values.to_numpy(dtype=float, na_value=np.nan)
+    targets = target.to_numpy() if isinstance(target, pd.Series) else np.full(len(values), target, dtype=object)
+    pairs = pd.DataFrame({"u": units.astype(str).to_numpy(), "t": pd.Series(targets).astype(str).to_numpy()})
+    for (unit, tgt), pos in pairs.groupby(["u", "t"], sort=False).indices.items():
         ab = affine(str(unit), str(tgt))
         if ab is not None:
-            out[idx] = ab[0] * values[idx].astype(float) + ab[1]
-    return out
+            out[pos] = ab[0] * raw[pos] + ab[1]
+    return pd.Series(out, index=values.index, dtype=float)
 
 
 def to_float(text: Any, target: str) -> float:

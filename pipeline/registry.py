@@ -18,17 +18,18 @@ INSTRUMENTS = "instruments.yaml"
 def load_assets(evidence: Path) -> tuple[pd.DataFrame, list[Finding]]:
     """assets.csv validated against :class:`AssetsFile`; bad rows are dropped and reported."""
     from loopledger.plugins._text import decode
-    from loopledger.schemas.assets import OPTIONAL, AssetsFile
+    from loopledger.schemas.assets import OPTIONAL, REQUIRED, AssetsFile
 
     path = evidence / ASSETS
+    empty = pd.DataFrame(columns=REQUIRED + OPTIONAL).set_index("asset", drop=False).rename_axis(None)
     if not path.is_file():
-        return pd.DataFrame(columns=["asset"]).set_index("asset"), [
+        return empty, [
             error(f"no {ASSETS} in the evidence folder", file=ASSETS)]
     try:
         frame = pd.read_csv(io.StringIO(decode(path.read_bytes())), dtype=str, keep_default_na=False,
                             skipinitialspace=True)
     except (ValueError, pd.errors.ParserError) as exc:
-        return pd.DataFrame(columns=["asset"]).set_index("asset"), [error(f"cannot read: {exc}", file=ASSETS)]
+        return empty, [error(f"cannot read: {exc}", file=ASSETS)]
     frame.columns = [str(c).strip() for c in frame.columns]
     frame = frame.apply(lambda col: col.str.strip()).replace("", pd.NA)
     for name in OPTIONAL:

@@ -79,6 +79,11 @@ def _worst_points(ctx: RunContext, problems: pd.DataFrame) -> pd.DataFrame:
                                        worst=("error_pct_span", lambda v: v.abs().max()))
 
 
+def _more(console: Console, hidden: int, what: str) -> None:
+    if hidden > 0:
+        console.print(f"  … {hidden} more {what} (use --verbose, or see data/tests.csv)")
+
+
 def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None:
     tests = ctx.tests
     counts = tests["verdict"].value_counts().to_dict() if not tests.empty else {}
@@ -87,29 +92,39 @@ def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None
                   f"(judged on {ctx.as_of.isoformat()}, rule '{ctx.section('decision').get('rule', 'simple')}')")
     line = ", ".join(f"{counts.get(v, 0)} {v}" for v in ("pass", "adjusted", "fail", "invalid"))
     console.print(f"  tests: {line}")
-    problems = tests[tests["verdict"].isin(["fail", "invalid"])]
-    if not problems.empty:
-        table = Table(title="Tests needing attention", title_justify="left", show_lines=False)
-        for col in ("verdict", "asset", "date", "file", "why"):
-            table.add_column(col)
-        errors: dict[str, str] = {}
-        for f in ctx.findings:
-            if f.severity == "error" and f.file and f.file not in errors:
-                errors[f.file] = f.message + (f" [{f.field}]" if f.field else "")
-        shown_rows = problems if verbose else problems.head(TABLE_ROWS)
+    valid = tests[tests["valid"].astype(bool)] if not tests.empty else tests
+    latest = valid.sort_values(["date", "test"]).groupby("asset").tail(1) if not valid.empty else valid
+    failing = latest[latest["verdict"] == "fail"] if not latest.empty else latest
+    earlier = int((valid["verdict"] == "fail").sum()) - len(failing) if not valid.empty else 0
+    if len(failing):
+        table = Table(title="Assets whose latest test failed", title_justify="left")
+        for col in ("asset", "date", "test", "why"):
+            table.add_column(col, overflow="fold")
+        shown_rows = failing if verbose else failing.head(TABLE_ROWS)
         worst = _worst_points(ctx, shown_rows)
         for row in shown_rows.itertuples():
-            why = errors.get(row.source_file, "")
-            if row.verdict == "fail" and row.test in worst.index:
-                n, pct = worst.loc[row.test, "n"], worst.loc[row.test, "worst"]
-                why = f"{int(n)} point(s) outside tolerance, worst {pct:.3g} % of span"
-            style = "red" if row.verdict == "fail" else "yellow"
-            table.add_row(f"[{style}]{row.verdict}[/]", str(row.asset or ""), str(row.date or ""),
-                          row.source_file, why)
+            n, pct = (worst.loc[row.test, "n"], worst.loc[row.test, "worst"]) if row.test in worst.index \
+                else (0, float("nan"))
+            table.add_row(str(row.asset), str(row.date), str(row.test),
+                          f"{int(n)} point(s) outside ±MPE, worst {pct:.3g} % of span")
         console.print(table)
-        if len(problems) > len(shown_rows):
-            console.print(f"  … {len(problems) - len(shown_rows)} more tests needing attention (use --verbose, "
-                          "or see data/tests.csv)")
+        _more(console, len(failing) - len(shown_rows), "assets whose latest test failed")
+    if earlier > 0:
+        console.print(f"  {earlier} earlier test(s) failed and were followed by later tests (see the handbook)")
+    errors: dict[str, str] = {}
+    for f in ctx.findings:
+        if f.severity == "error" and f.file and f.file not in errors:
+            errors[f.file] = f.message + (f" [{f.field}]" if f.field else "")
+    invalid = tests[tests["verdict"] == "invalid"] if not tests.empty else tests
+    if len(invalid):
+        table = Table(title="Result files that could not be judged", title_justify="left")
+        table.add_column("file", overflow="fold")
+        table.add_column("first problem", overflow="fold")
+        shown_invalid = invalid if verbose else invalid.head(TABLE_ROWS)
+        for row in shown_invalid.itertuples():
+            table.add_row(row.source_file, errors.get(row.source_file, ""))
+        console.print(table)
+        _more(console, len(invalid) - len(shown_invalid), "files that could not be judged")
     shown = [f for f in ctx.findings if verbose or f.severity != "note"]
     other = [f for f in shown if f.severity == "warning" or not f.file]
     if other:

@@ -79,11 +79,12 @@ def run_stages(ctx: RunContext) -> None:
             found = _stamp(list(found or []), stage)
             ctx.findings += found
             ctx.invalidate({f.file for f in found if f.severity == "error" and f.file})
-    # when no file reached the judgement (all invalid, or none at all) the columns it adds still exist
-    for col, empty in (("as_found", ""), ("as_left", ""), ("adjusted", False), ("verdict", "invalid"),
-                       ("decision_rule", str(ctx.section("decision").get("rule", "simple")))):
-        if col not in ctx.tests.columns:
-            ctx.tests[col] = empty
+    # with no valid point left the judging stages were skipped: give every test the judged columns
+    defaults = {"as_found": "", "as_left": "", "adjusted": False, "verdict": "invalid",
+                "decision_rule": str(ctx.section("decision").get("rule", "simple"))}
+    for column, value in defaults.items():
+        if column not in ctx.tests.columns:
+            ctx.tests[column] = value
     ctx.tests.loc[~ctx.tests["valid"].astype(bool), "verdict"] = "invalid"
     ctx.findings = sort_findings(ctx.findings)
 

@@ -15,11 +15,8 @@ from loopledger.findings import Finding, error
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import scaling
 
-
-def ct_ratio(text: pd.Series) -> pd.Series:
-    """``2000/1`` -> 2000.0; NaN where blank."""
-    parts = text.astype("string").str.extract(r"^\s*([\d.]+)\s*/\s*([\d.]+)\s*$")
-    return pd.to_numeric(parts[0], errors="coerce") / pd.to_numeric(parts[1], errors="coerce")
+#: ``2000/1`` -> 2000.0 (kept under its old name; the parser lives in :mod:`scaling`)
+ct_ratio = scaling.ratio
 
 
 class CurrentTransducer(SignalType):

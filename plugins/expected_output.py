@@ -25,7 +25,9 @@ def evaluate_all(ctx: RunContext) -> list[Finding]:
         handler = ctx.signal_types.get(str(signal))
         if handler is None:
             first = pts.loc[idx].drop_duplicates("source_file")
-            findings += [error(f"asset {r.asset} has signal '{signal}', which no plugin handles (known: {known})",
+            findings += [error(f"asset {r.asset} has signal '{signal}', which no loaded plugin handles "
+                               f"(known: {known}); check the spelling in assets.csv, or install the site "
+                               "plugin that provides it (`loopledger plugins` lists what is loaded)",
                                file=r.source_file, field="signal") for r in first.itertuples()]
             continue
         frame, more = handler.evaluate(pts.loc[idx], ctx)

@@ -14,18 +14,25 @@ from loopledger.findings import Finding, error
 PERCENT = q.PERCENT
 
 
+def ratio(text: pd.Series) -> pd.Series:
+    """An instrument-transformer ratio such as ``2000/1`` -> 2000.0; NaN where blank."""
+    parts = text.astype("string").str.extract(r"^\s*([\d.]+)\s*/\s*([\d.]+)\s*$")
+    return pd.to_numeric(parts[0], errors="coerce") / pd.to_numeric(parts[1], errors="coerce")
+
+
 def where(points: pd.DataFrame, idx: object) -> dict[str, object]:
     return {"file": points.at[idx, "source_file"], "line": int(points.at[idx, "line"]),
             "point": f"{points.at[idx, 'phase']} #{points.at[idx, 'point']}"}
 
 
-def input_in_range_unit(points: pd.DataFrame, scale: pd.Series | float = 1.0,
+def input_in_range_unit(points: pd.DataFrame, scale: pd.Series | float = 1.0, also: str = "",
                         ) -> tuple[pd.Series, pd.Series, list[Finding]]:
     """(input_pct, injected value in the asset's input_unit × scale, findings).
 
     ``scale`` divides a written quantity before it is placed on the input range
     (a current transformer's ratio for primary injection) and multiplies the
-    injected value computed from a percentage.
+    injected value computed from a percentage. ``also`` names another unit the
+    signal type accepts, for the message about an input in neither.
     """
     findings: list[Finding] = []
     lo, hi = points["input_min"].astype(float), points["input_max"].astype(float)
@@ -36,8 +43,9 @@ def input_in_range_unit(points: pd.DataFrame, scale: pd.Series | float = 1.0,
     pct = pd.Series(np.where(is_pct, value, (native - lo) / (hi - lo) * 100.0), index=points.index)
     injected = pd.Series(np.where(is_pct, (lo + value / 100.0 * (hi - lo)) * scale, converted), index=points.index)
     for idx in points.index[~is_pct & converted.isna()]:
-        findings.append(error(f"input '{points.at[idx, 'input']}' is not in units of {points.at[idx, 'input_unit']} "
-                              "or %", field="input", **where(points, idx)))
+        units = f"{points.at[idx, 'input_unit']}, {also} or %" if also else f"{points.at[idx, 'input_unit']} or %"
+        findings.append(error(f"input '{points.at[idx, 'input']}' is not in units of {units}", field="input",
+                              **where(points, idx)))
     return pct, injected, findings
 
 
@@ -57,9 +65,10 @@ def expected_output(points: pd.DataFrame, out_frac: pd.Series) -> pd.Series:
     return lo + out_frac * (hi - lo)
 
 
-def linear_evaluate(points: pd.DataFrame, scale: pd.Series | float = 1.0) -> tuple[pd.DataFrame, list[Finding]]:
+def linear_evaluate(points: pd.DataFrame, scale: pd.Series | float = 1.0, also: str = "",
+                    ) -> tuple[pd.DataFrame, list[Finding]]:
     """The whole evaluation for a device whose output follows its input range directly."""
-    pct, injected, findings = input_in_range_unit(points, scale)
+    pct, injected, findings = input_in_range_unit(points, scale, also)
     frac, slope = characteristic(pct, points["characteristic"])
     expected = expected_output(points, frac)
     in_span = (points["input_max"].astype(float) - points["input_min"].astype(float)) * scale
@@ -68,3 +77,39 @@ def linear_evaluate(points: pd.DataFrame, scale: pd.Series | float = 1.0) -> tup
                           "injected_unit": points["input_unit"], "sensitivity": slope * out_span / in_span},
                          index=points.index)
     return frame, findings
+
+
+def evaluate_via(points: pd.DataFrame, via: pd.Series, measurand: pd.Series, measurand_unit: str,
+                 injected: pd.Series, injected_unit: str, slope: pd.Series,
+                 ) -> tuple[pd.DataFrame, list[Finding]]:
+    """Like :func:`linear_evaluate`, but rows ``via`` were written as an electrical quantity.
+
+    For those rows the plugin has already converted the injected quantity
+    (``injected`` in ``injected_unit``, e.g. ohms from a decade box) into the
+    measurand (``measurand`` in ``measurand_unit``, e.g. °C) and gives
+    ``slope`` = d measurand / d injected; the rest go through the plain path.
+    """
+    frame, findings = linear_evaluate(points.loc[~via], also=injected_unit)
+    rows = points.loc[via]
+    if rows.empty:
+        return frame.reindex(points.index), findings
+    lo, hi = rows["input_min"].astype(float), rows["input_max"].astype(float)
+    native = q.convert(measurand.loc[via], pd.Series(measurand_unit, index=rows.index), rows["input_unit"])
+    scale = pd.Series([(q.affine(measurand_unit, str(u)) or (np.nan, 0.0))[0] for u in rows["input_unit"]],
+                      index=rows.index, dtype=float)
+    pct = (native - lo) / (hi - lo) * 100.0
+    frac, dfrac = characteristic(pct, rows["characteristic"])
+    out_span = rows["output_max"].astype(float) - rows["output_min"].astype(float)
+    extra = pd.DataFrame({"input_pct": pct, "expected": expected_output(rows, frac),
+                          "injected": injected.loc[via].astype(float), "injected_unit": injected_unit,
+                          "sensitivity": dfrac * out_span / (hi - lo) * scale * slope.loc[via]},
+                         index=rows.index)
+    parts = [f for f in (frame, extra) if not f.empty]
+    return pd.concat(parts).reindex(points.index), findings
+
+
+def written_as(points: pd.DataFrame, unit: str) -> tuple[pd.Series, pd.Series]:
+    """(mask of rows whose input was written in a unit of ``unit``'s dimension, value in ``unit``)."""
+    value = q.convert(points["input_value"].astype(float), points["input_written_unit"].astype(str), unit)
+    mask = value.notna() & (points["input_written_unit"] != PERCENT)
+    return mask, value

@@ -60,10 +60,10 @@ def check_tests(ctx: RunContext) -> list[Finding]:
     checked["date"] = dates.dt.strftime("%Y-%m-%d")
     findings += _check_references(ctx, checked, lines)
     findings += _check_duplicate_files(checked, lines)
-    mixed = {c: object for c in checked.columns if c in ctx.tests.columns and ctx.tests[c].dtype != checked[c].dtype}
-    ctx.tests = ctx.tests.astype(mixed)  # e.g. an all-missing column of files refused unread
+    tests = ctx.tests.astype({c: object for c in checked.columns if c in ctx.tests.columns and c != "valid"})
     for col in checked.columns:
-        ctx.tests.loc[checked.index, col] = checked[col]
+        tests.loc[checked.index, col] = checked[col]
+    ctx.tests = tests
     return findings
 
 
@@ -187,7 +187,7 @@ def _parse_readings(pts: pd.DataFrame, where) -> list[Finding]:  # type: ignore[
         hi = q.parse_column(pts.loc[rows, "reading_max"].fillna(""))
         for idx in rows:
             for name, frame in (("reading_min", lo), ("reading_max", hi)):
-                if frame.at[idx, "problem"] is not None:
+                if pd.notna(frame.at[idx, "problem"]):
                     findings.append(error(f"{name}: {frame.at[idx, 'problem']}", field=name, **where(idx)))
         hi_v = q.convert(hi["value"], hi["unit"], lo["unit"])
         bad = hi_v < lo["value"]

@@ -6,7 +6,8 @@ A result file is YAML, CSV or .xlsx; README shows each. Fields:
   (standalone | in-loop), ``method`` (a reading method: direct | shunt |
   display, or one a plugin adds), ``injection`` (secondary | primary),
   ``ambient_c``, instruments ``source`` / ``meter`` / ``shunt``, ``remarks``
-  (Markdown);
+  (Markdown), ``cjc_c`` (the reference-junction temperature at a thermocouple
+  transmitter's terminals, °C, for inputs written in mV);
 - points, under ``as_found`` / ``as_left``: ``input`` (``25 %`` of range or a
   quantity such as ``0.5 A``), ``reading`` (a quantity such as ``0.4011 V``),
   or ``readings`` (repeats), or ``reading_min`` + ``reading_max`` (an unsteady
@@ -42,6 +43,7 @@ class TestHeader(pa.DataFrameModel):
     meter: Series[str] = pa.Field(nullable=True)
     shunt: Series[str] = pa.Field(nullable=True)
     remarks: Series[str] = pa.Field(nullable=True)
+    cjc_c: Series[float] = pa.Field(nullable=True, ge=-60, le=150)
 
     @pa.check("date", error="a real date written YYYY-MM-DD")
     def date_is_iso(cls, series):  # type: ignore[no-untyped-def]

@@ -56,9 +56,10 @@ def write_evidence(root: Path, results: dict[str, str], assets: list[dict[str, A
     """Write an evidence folder under ``root`` and return it."""
     root.mkdir(parents=True, exist_ok=True)
     rows = assets if assets is not None else [CT_ASSET]
-    lines = [",".join(ASSET_COLUMNS)]
+    columns = ASSET_COLUMNS + [c for c in dict.fromkeys(k for row in rows for k in row) if c not in ASSET_COLUMNS]
+    lines = [",".join(columns)]
     for row in rows:
-        lines.append(",".join("" if row.get(c) is None else str(row.get(c)) for c in ASSET_COLUMNS))
+        lines.append(",".join("" if row.get(c) is None else str(row.get(c)) for c in columns))
     (root / "assets.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
     (root / "instruments.yaml").write_text(yaml.safe_dump(instruments or INSTRUMENTS, sort_keys=False),
                                            encoding="utf-8")

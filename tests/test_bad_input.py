@@ -142,3 +142,13 @@ def test_inputs_are_never_modified(tmp_path, run_folder, name):
     after = {p: p.read_bytes() for p in ev.rglob("*") if p.is_file()}
     assert before == after
     assert (tmp_path / "out" / "handbook" / "index.html").is_file()
+
+
+def test_unparseable_assets_csv_is_reported_not_a_crash(tmp_path):
+    ev = write_evidence(tmp_path / "ev", {"good.yaml": GOOD})
+    (ev / "assets.csv").write_text('asset,description\n"T-CT1,unclosed quote\n', encoding="utf-8")
+    assert main(["run", str(ev), "--out", str(tmp_path / "out")]) == 2
+    import csv
+
+    rows = list(csv.DictReader(open(tmp_path / "out" / "data" / "tests.csv", encoding="utf-8")))
+    assert rows[0]["verdict"] == "invalid" and "T-CT1" in rows[0]["errors"]

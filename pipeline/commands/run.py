@@ -112,7 +112,7 @@ def _full(args: argparse.Namespace, cache: incremental.Cache | None) -> tuple[in
     from loopledger.host import get_plugin_manager
     from rich.console import Console
 
-    console = Console(stderr=False)
+    console = Console(stderr=False, width=None if sys.stdout.isatty() else 120)
     pm = get_plugin_manager()
     out = outside_evidence(args.evidence, args.out, "--out")
     parsed = cache.load_parsed() if cache is not None else None

@@ -1,0 +1,1 @@
+"""Example loopledger site plugin: valve-position feedback with a positioner dead band."""

@@ -1,0 +1,70 @@
+"""The extra assets.csv columns each built-in signal type (and the ``counts`` reading method) reads.
+
+assets.csv keeps one header for every asset; a column that a signal type does
+not use is left blank. Each model below is checked, by the plugin that owns
+it, on the rows of the assets that use that plugin (so a blank ``tc_type``
+is an error only for a thermocouple transmitter). Columns are optional
+unless the model says otherwise.
+"""
+
+from __future__ import annotations
+
+import pandera.pandas as pa
+from pandera.typing import Series
+
+#: an instrument-transformer ratio such as ``11000/110``
+RATIO = r"^\s*\d+(\.\d+)?\s*/\s*\d+(\.\d+)?\s*$"
+#: thermocouple types with IEC 60584-1 reference functions
+TC_TYPES = ["B", "E", "J", "K", "N", "R", "S", "T"]
+
+
+class _Columns(pa.DataFrameModel):
+    asset: Series[str]
+
+    class Config:
+        strict = False
+        coerce = True
+
+
+class VoltageTransducerColumns(_Columns):
+    """``voltage-transducer``: ``vt_ratio`` (e.g. ``11000/110``) for primary injection."""
+
+    vt_ratio: Series[str] = pa.Field(nullable=True, str_matches=RATIO)
+
+
+class PowerTransducerColumns(_Columns):
+    """``power-transducer``: ``ct_ratio`` and ``vt_ratio``; primary power = secondary × both."""
+
+    ct_ratio: Series[str] = pa.Field(nullable=True, str_matches=RATIO)
+    vt_ratio: Series[str] = pa.Field(nullable=True, str_matches=RATIO)
+
+
+class ProcessTransmitterColumns(_Columns):
+    """``process-transmitter``: ``low_flow_cutoff_pct``, % of output (flow) below which the output
+    is held at zero flow (``output_min``); blank or 0 means no cut-off."""
+
+    low_flow_cutoff_pct: Series[float] = pa.Field(nullable=True, ge=0, lt=100)
+
+
+class RtdTransmitterColumns(_Columns):
+    """``rtd-transmitter``: ``r0_ohm``, the sensor's resistance at 0 °C (blank = 100 Ω, a Pt100)."""
+
+    r0_ohm: Series[float] = pa.Field(nullable=True, gt=0, le=100_000)
+
+
+class ThermocoupleTransmitterColumns(_Columns):
+    """``thermocouple-transmitter``: ``tc_type`` (required), one of B E J K N R S T."""
+
+    tc_type: Series[str] = pa.Field(isin=TC_TYPES)
+
+
+class CountsColumns(_Columns):
+    """Reading method ``counts``: the raw counts the input card reports at ``output_min`` and at
+    ``output_max`` (e.g. 0 and 4095 for a 12-bit card scaled over 4-20 mA)."""
+
+    counts_min: Series[float]
+    counts_max: Series[float]
+
+    @pa.dataframe_check(error="counts_max must differ from counts_min")
+    def count_range(cls, df):  # type: ignore[no-untyped-def]
+        return df["counts_max"] != df["counts_min"]

@@ -1,0 +1,145 @@
+"""The burden stage: loop resistance of the rig against the output's drive limit (plugins/burden.py)."""
+
+from __future__ import annotations
+
+import pandas as pd
+import pytest
+from loopledger.cli import main
+from loopledger.plugins import burden
+
+from tests.evidence import CT_ASSET, INSTRUMENTS, good_points, result_yaml, write_evidence
+
+
+def _rig(**kw):
+    row = {"asset": "T-CT1", "method": "shunt", "connection": "standalone", "ambient_c": 20.0, "meter": None,
+           "shunt": "SH-100"}
+    row.update(kw)
+    return pd.DataFrame([row])
+
+
+def _ctx(tmp_path, run_folder, assets=None, instruments=None, results=None):
+    ev = write_evidence(tmp_path / "ev", results or {"a.yaml": result_yaml(as_found=good_points())},
+                        assets=assets, instruments=instruments)
+    return run_folder(ev)
+
+
+def test_a_100_ohm_shunt_drops_2_volts_at_20_ma(tmp_path, run_folder):
+    # common practice: a 100 Ω shunt reads 0.4 V at 4 mA and 2.0 V at 20 mA
+    ctx = _ctx(tmp_path, run_folder)
+    row = burden.analyse(ctx, _rig()).iloc[0]
+    assert row["loop_ohm"] == pytest.approx(100.0)
+    assert row["loop_ohm"] * row["top_a"] == pytest.approx(2.0)
+
+
+@pytest.mark.parametrize("max_load", [500, 750])
+def test_self_powered_limit_is_the_drive_limit_at_20_ma(tmp_path, run_folder, max_load):
+    # common practice: a transducer drives 500-750 Ω; with the 100 Ω shunt standalone there is room to spare
+    ctx = _ctx(tmp_path, run_folder, assets=[{**CT_ASSET, "max_load_ohm": max_load}])
+    row = burden.analyse(ctx, _rig()).iloc[0]
+    assert row["limit_ohm"] == pytest.approx(max_load)
+    # the same drive voltage spread over 20.5 mA (NE 43 upper measuring limit)
+    assert row["upper_limit_ohm"] == pytest.approx(max_load * 20 / 20.5)
+    assert row["margin_pct"] == pytest.approx((max_load - 100) / max_load * 100)
+    assert row["burden_status"] == "ok"
+
+
+def test_loop_powered_transmitter_load_line(tmp_path, run_folder):
+    # common practice (load line): R_max = (24 V − 12 V) / 20 mA = 600 Ω; at 20.5 mA 12 / 0.0205 = 585.4 Ω
+    asset = {**CT_ASSET, "power": "loop", "max_load_ohm": None, "supply_v": 24, "min_terminal_v": 12}
+    ctx = _ctx(tmp_path, run_folder, assets=[asset])
+    row = burden.analyse(ctx, _rig()).iloc[0]
+    assert row["limit_ohm"] == pytest.approx(600.0)
+    assert row["upper_limit_ohm"] == pytest.approx(585.366, abs=1e-3)
+
+
+def test_in_loop_adds_receiver_and_cable_at_ambient(tmp_path, run_folder):
+    # 100 Ω shunt + 250 Ω receiver + 2 × 50 m of 1.5 mm² (IEC 60228: 12.1 Ω/km) at 30 °C (α = 0.00393 /K)
+    ctx = _ctx(tmp_path, run_folder)
+    row = burden.analyse(ctx, _rig(connection="in-loop", ambient_c=30.0)).iloc[0]
+    cable = 2 * 0.05 * 12.1 * (1 + 0.00393 * 10)
+    assert row["cable_ohm"] == pytest.approx(cable)
+    assert row["loop_ohm"] == pytest.approx(100 + 250 + cable)
+
+
+def test_meter_burden_from_its_milliamp_range_spec(tmp_path, run_folder):
+    # "15 mV/mA" is 15 Ω by Ohm's law; a spec given as the drop at full range, 0.3 V on 20 mA, is the same
+    instruments = {**INSTRUMENTS, "DMM-2": {"kind": "meter", "ranges": [
+        {"range": "200 mA", "burden": "1 mV/mA"}, {"range": "20 mA", "burden": "0.3 V"}]}}
+    ctx = _ctx(tmp_path, run_folder, instruments=instruments)
+    assert burden.analyse(ctx, _rig(method="direct", meter="DMM-2")).iloc[0]["rig_ohm"] == pytest.approx(15.0)
+    assert burden.analyse(ctx, _rig(method="display")).iloc[0]["rig_ohm"] == 0.0
+
+
+def test_status_bands_and_unknown(tmp_path, run_folder):
+    ctx = _ctx(tmp_path, run_folder, assets=[{**CT_ASSET, "max_load_ohm": 600}, {
+        **CT_ASSET, "asset": "T-CT2", "max_load_ohm": None, "power": None}])
+    rows = burden.analyse(ctx, pd.concat([
+        _rig(shunt=None, shunt_ohm=530.0),  # margin 11.7 %
+        _rig(shunt=None, shunt_ohm=560.0),  # margin 6.7 %
+        _rig(shunt=None, shunt_ohm=610.0),  # over by 10 Ω
+        _rig(asset="T-CT2"),                # no drive limit in the registry
+        _rig(connection="in-loop", asset="T-CT1", ambient_c=None),
+    ], ignore_index=True))
+    assert list(rows["burden_status"]) == ["ok", "low-margin", "exceeds", "unknown", "ok"]
+    assert "max_load_ohm" in rows.iloc[3]["burden_reason"] or "power" in rows.iloc[3]["burden_reason"]
+    assert "20 °C assumed" in rows.iloc[4]["cable_desc"]
+
+
+def test_exceeding_test_warns_with_each_fix_and_its_loop(tmp_path, run_folder):
+    # a 250 Ω shunt in series with a 250 Ω receiver and 2 × 50 m of 1.5 mm² (1.21 Ω) against 500 Ω
+    instruments = {**INSTRUMENTS, "SH-250": {"kind": "shunt", "resistance": "250 ohm"}}
+    shunted = [(i, r.replace(" V", "")) for i, r in good_points(shunt=True)]
+    text = result_yaml(method="shunt", connection="in-loop", ambient_c=20.0,
+                       as_found=[(i, f"{float(r) * 2.5:.5f} V") for i, r in shunted])
+    text = text.replace("shunt: SH-100", "shunt: SH-250")
+    ctx = _ctx(tmp_path, run_folder, assets=[{**CT_ASSET, "max_load_ohm": 500}], instruments=instruments,
+               results={"a.yaml": text})
+    t = ctx.tests.iloc[0]
+    assert t["burden_status"] == "exceeds"
+    assert t["loop_ohm"] == pytest.approx(501.21)
+    [found] = [f for f in ctx.findings if f.code == "burden"]
+    assert found.severity == "warning"
+    assert "over by 1.2 Ω" in found.message
+    assert "10 Ω shunt (0.2 V at 20 mA): loop 261.2 Ω" in found.message      # 10 + 250 + 1.21
+    assert "DMM-1 on its 20 mA range (1.8 mV/mA): loop 253.0 Ω" in found.message  # 1.8 + 250 + 1.21
+    assert "test standalone (receiver and cable out of the loop): loop 250.0 Ω" in found.message
+
+
+def test_test_page_and_site_sheet_show_each_term(tmp_path, run_folder, pm):
+    ctx = _ctx(tmp_path, run_folder)
+    test = ctx.tests.iloc[0]["test"]
+    [section] = [s for group in pm.hook.ll_test_sections(ctx=ctx, test=test) for s in group or []
+                 if s.title == "Loop burden"]
+    labels = [label for label, _ in section.rows]
+    assert labels[:2] == ["Rig inserts", "Receiver and cable"]
+    assert "Drive limit" in labels and "Margin" in labels
+    plan = {"method": "shunt", "shunt_ohm": 100.0, "meter": None, "connection": "in-loop"}
+    sheet = [s for group in pm.hook.ll_sheet_sections(ctx=ctx, asset="T-CT1", plan=plan) for s in group or []]
+    rows = dict(sheet[0].rows)
+    assert rows["Receiver input (in-loop)"] == "250.0 Ω"
+    assert rows["Loop resistance"].startswith("351.2 Ω")  # 100 + 250 + 2 × 0.05 km × 12.1 Ω/km at 20 °C
+
+
+def test_cli_run_exports_the_burden_columns(tmp_path):
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(as_found=good_points())})
+    assert main(["run", str(ev), "--out", str(tmp_path / "out"), "--no-handbook"]) == 0
+    tests = pd.read_csv(tmp_path / "out" / "data" / "tests.csv")
+    for col in ("loop_ohm", "limit_ohm", "margin_pct", "burden_status", "fault_signature"):
+        assert col in tests.columns
+    # direct on DMM-1's 20 mA range: 1.8 mV/mA = 1.8 Ω against 750 Ω
+    assert tests.loc[0, "loop_ohm"] == pytest.approx(1.8)
+    assert tests.loc[0, "burden_status"] == "ok"
+
+
+def test_cli_loop_checks_a_planned_rig(tmp_path, capsys):
+    ev = write_evidence(tmp_path / "ev", {}, assets=[{**CT_ASSET, "max_load_ohm": 300}])
+    assert main(["loop", "T-CT1", "--shunt", "100", "--evidence", str(ev)]) == 0
+    out = capsys.readouterr().out
+    assert "2.00 V at 20 mA" in out and "ok" in out
+    # in-loop: 100 + 250 + 1.21 = 351.2 Ω > 300 Ω: exit 1 and the fixes
+    assert main(["loop", "T-CT1", "--shunt", "SH-100", "--in-loop", "--evidence", str(ev)]) == 1
+    out = capsys.readouterr().out
+    assert "exceeds" in out and "351.2 Ω" in out and "loop 261.2 Ω" in out
+    assert main(["loop", "T-CT1", "--meter", "DMM-1", "--in-loop", "--evidence", str(ev)]) == 0
+    assert main(["loop", "NOPE", "--evidence", str(ev)]) == 3
+    assert main(["loop", "T-CT1", "--shunt", "banana", "--evidence", str(ev)]) == 3

@@ -1,0 +1,161 @@
+"""Intervals: due dates, overdue, the staircase method, drift-limited intervals, EOPR, global false accept."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+from loopledger.cli import main
+from loopledger.hookspecs import hookimpl
+from loopledger.plugins import intervals
+from scipy import stats
+
+from tests.evidence import CT_ASSET, good_points, result_yaml, write_evidence
+
+RULE = {"extend_within": 0.8, "extend_factor": 1.5, "shorten_factor": 0.5, "min_months": 1, "max_months": 100}
+
+
+def test_staircase_follows_the_simple_reaction_rule():
+    """ILAC-G24:2022 / OIML D 10:2022, method "automatic adjustment or staircase" (wording from memory):
+    the next interval is extended when the instrument is found within e.g. 80 % of the MPE, and
+    reduced when it is found outside the MPE. The factors are not given there; they are ours and
+    configurable, so the test states them (1.5 and 0.5)."""
+    ratio = np.array([0.5, 0.8, 0.81, 1.0, 1.01, 3.0])  # worst as-found |error| / MPE
+    got = intervals.staircase(np.full(6, 12.0), ratio, RULE)
+    assert list(got) == [18, 18, 12, 12, 6, 6]
+
+
+def test_staircase_stays_within_the_configured_bounds():
+    cfg = {**RULE, "min_months": 3, "max_months": 24}
+    assert list(intervals.staircase([20.0, 4.0, 12.0], [0.1, 2.0, np.nan], cfg)) == [24, 3, 12]
+
+
+def _two_assets() -> list[dict]:
+    other = {**CT_ASSET, "asset": "T-CT2", "description": "Other transducer"}
+    untested = {**CT_ASSET, "asset": "T-CT3", "description": "Never tested"}
+    return [CT_ASSET, other, untested]
+
+
+def test_overdue_is_judged_on_as_of(tmp_path, run_folder):
+    """Next due = last test + interval_months (calendar months, common practice); overdue after that day."""
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(date="2025-06-01", as_found=good_points(0.01)),
+                                          "b.yaml": result_yaml(asset="T-CT2", date="2025-01-31",
+                                                                as_found=good_points(0.01))},
+                        assets=_two_assets())
+    on_the_day = run_folder(ev, as_of="2026-06-01").extras["assets_summary"]
+    assert on_the_day.at["T-CT1", "next_due"] == "2026-06-01"
+    assert not on_the_day.at["T-CT1", "overdue"]
+    assert on_the_day.at["T-CT2", "next_due"] == "2026-01-31"
+    assert on_the_day.at["T-CT2", "overdue"]
+    assert on_the_day.at["T-CT3", "overdue"] and on_the_day.at["T-CT3", "verdict"] == "untested"
+    day_after = run_folder(ev, as_of="2026-06-02").extras["assets_summary"]
+    assert day_after.at["T-CT1", "overdue"]
+
+
+def test_drift_shortens_the_recommended_interval(tmp_path, run_folder):
+    offsets = [("2023-05-02", 0.010), ("2024-05-06", 0.040), ("2025-05-05", 0.065)]
+    ev = write_evidence(tmp_path / "ev", {f"{d}.yaml": result_yaml(date=d, as_found=good_points(o))
+                                          for d, o in offsets})
+    ctx = run_folder(ev, as_of="2025-06-01")
+    row = ctx.extras["assets_summary"].loc["T-CT1"]
+    # last as-found 0.065 of 0.08 mA = 81 % of the MPE: the staircase keeps 12 months
+    assert row["staircase_months"] == 12
+    # the drift line from numpy.polyfit reaches the 0.08 mA limit (0.5 % of span) months later
+    days = pd.to_datetime([d for d, _ in offsets])
+    x = np.asarray((days - days[0]).days / 365.25)
+    slope, intercept = np.polyfit(x, [o / 16 * 100 for _, o in offsets], 1)
+    months = np.floor(((0.5 - intercept) / slope - x[-1]) * 12)
+    assert row["drift_months"] == months
+    assert row["recommended_interval_months"] == months < 12
+    assert row["interval_basis"] == "drift"
+    assert row["predicted_before_due"]
+
+
+def test_eopr_counts_per_signal_and_description(tmp_path, run_folder):
+    """EOPR = in-tolerance as-found results / all as-found results (NCSL RP-1 definition, from memory)."""
+    ev = write_evidence(tmp_path / "ev", {
+        "a.yaml": result_yaml(date="2024-01-10", as_found=good_points(0.01)),
+        "b.yaml": result_yaml(date="2025-01-10", as_found=good_points(0.10), as_left=good_points(0.0)),
+        "c.yaml": result_yaml(date="2026-01-10", as_found=good_points(0.02)),
+        "d.yaml": result_yaml(asset="T-CT2", date="2026-02-10", as_found=good_points(0.02)),
+    }, assets=_two_assets())
+    e = run_folder(ev).extras["eopr"].set_index(["group_by", "group"])
+    assert tuple(e.loc[("signal", "current-transducer"), ["n", "in_tolerance"]]) == (4, 3)
+    assert e.loc[("signal", "current-transducer"), "eopr"] == pytest.approx(0.75)
+    assert tuple(e.loc[("description", "Test current transducer"), ["n", "in_tolerance"]]) == (3, 2)
+    assert tuple(e.loc[("description", "Other transducer"), ["n", "in_tolerance"]]) == (1, 1)
+
+
+@pytest.mark.parametrize("tur, eopr, expected", [(4, 0.95, 0.0086), (4, 0.89, 0.0146), (4, 0.80, 0.0197),
+                                                 (1, 0.95, 0.0180)])
+def test_global_false_accept_matches_the_check_values(tur, eopr, expected):
+    """Check values from /work/shared/domain.md (calc: bivariate normal model, TUR = MPE / U, U = 2u,
+    acceptance limit = MPE): 0.86 %, 1.46 %, 1.97 %, 1.80 %."""
+    mpe = 1.0
+    u = mpe / tur / 2.0
+    got = intervals.global_false_accept(mpe, mpe, u, eopr)
+    assert float(got) == pytest.approx(expected, abs=0.00005)
+
+
+@pytest.mark.parametrize("accept, u, eopr", [(0.8, 0.25, 0.9), (1.0, 0.5, 0.7), (0.6, 0.1, 0.99)])
+def test_global_false_accept_against_scipy_multivariate_normal(accept, u, eopr):
+    """The Owen's-T evaluation against scipy.stats.multivariate_normal (calc), guard-banded cases too."""
+    mpe = 1.0
+    sp = mpe / stats.norm.ppf((1 + eopr) / 2)
+    mvn = stats.multivariate_normal(mean=[0, 0], cov=[[sp**2, sp**2], [sp**2, sp**2 + u**2]])
+    big = 60.0 * sp
+    # P(true > mpe, -accept <= measured <= accept), doubled by symmetry
+    one_side = (mvn.cdf([big, accept]) - mvn.cdf([mpe, accept])) - (mvn.cdf([big, -accept]) - mvn.cdf([mpe, -accept]))
+    assert float(intervals.global_false_accept(mpe, accept, u, eopr)) == pytest.approx(2 * one_side, abs=2e-6)
+
+
+class _FixedU:
+    """Plumbing: an uncertainty stage giving every point U = 0.08 mA (k = 2), i.e. TUR 1 on class 0.5."""
+
+    @hookimpl
+    def ll_uncertainty(self, ctx):
+        ctx.points["U"] = 0.08
+        ctx.points["k"] = 2.0
+        return []
+
+
+def test_false_accept_per_test_where_u_exists_and_flag_above_2_percent(tmp_path, pm, run_folder):
+    ev = write_evidence(tmp_path / "ev", {
+        "a.yaml": result_yaml(date="2025-01-10", as_found=good_points(0.10), as_left=good_points(0.0)),
+        "b.yaml": result_yaml(date="2026-01-10", as_found=good_points(0.02)),
+    })
+    plain = run_folder(ev)
+    assert "global_false_accept" not in plain.tests.columns  # no U: the column is simply absent
+    pm.register(_FixedU())
+    ctx = run_folder(ev)
+    by_file = ctx.tests.set_index("source_file")["global_false_accept"]
+    expected = float(intervals.global_false_accept(0.08, 0.08, 0.04, 0.5))  # EOPR 1 of 2 as found
+    assert by_file["results/b.yaml"] == pytest.approx(expected)
+    assert expected > 0.02
+    flagged = [f.file for f in ctx.findings if f.code == "false-accept"]
+    assert sorted(flagged) == ["results/a.yaml", "results/b.yaml"]
+    test_b = ctx.tests.set_index("source_file").at["results/b.yaml", "test"]
+    (section,) = intervals.ll_test_sections(ctx=ctx, test=test_b)
+    assert section.rows[1] == ("Target", "≤ 2% — exceeded")
+
+
+def test_bad_interval_settings_are_a_configuration_error(tmp_path):
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(as_found=good_points(0.01))},
+                        config='as_of = 2026-11-30\n[intervals]\nextend_factor = 0.5\n')
+    assert main(["run", str(ev), "--out", str(tmp_path / "out")]) == 3
+
+
+def test_cli_writes_assets_csv(tmp_path):
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(date="2025-06-01", as_found=good_points(0.01))},
+                        config='as_of = 2026-11-30\n[intervals]\nextend_factor = 1.5\n')
+    assert main(["run", str(ev), "--out", str(tmp_path / "out"), "--as-of", "2026-01-01"]) == 0
+    assets = pd.read_csv(tmp_path / "out" / "data" / "assets.csv", keep_default_na=False).set_index("asset")
+    for col in ("last_test", "verdict", "next_due", "overdue", "drift_pct_span_per_year", "drift_stderr",
+                "predicted_out_of_tolerance", "recommended_interval_months"):
+        assert col in assets.columns
+    row = assets.loc["T-CT1"]
+    assert (row["last_test"], row["verdict"], row["next_due"], row["overdue"]) == (
+        "2025-06-01", "pass", "2026-06-01", False)
+    assert float(row["recommended_interval_months"]) == 18  # 0.01 of 0.08 mA found: 12 × 1.5
+    page = (tmp_path / "out" / "handbook" / "assets" / "T-CT1.html").read_text(encoding="utf-8")
+    assert "Recommended interval" in page and "18 months (staircase)" in page
