@@ -118,7 +118,7 @@ CASES = [
     Case("unknown-instrument", "bad/ui.yaml", _b(_yaml_points(*FIVE).replace("meter: DMM-1", "meter: DMM-404")),
          ["bad/ui.yaml", "field 'instruments.meter'", "'DMM-404' is not in instruments.yaml"]),
     Case("unknown-signal", "bad/us.yaml", _b(_yaml_points(*FIVE).replace("T-CT1", "T-ODD")),
-         ["bad/us.yaml", "field 'signal'", "no plugin handles"],
+         ["bad/us.yaml", "field 'signal'", "no loaded plugin handles"],
          assets=[{**CT_ASSET, "asset": "T-ODD", "signal": "warp-drive"}]),
     Case("wrong-dimension", "bad/dim.yaml", _b(_yaml_points("{input: 0 %, reading: 4.01 degC}", *FIVE[1:])),
          ["bad/dim.yaml:9", "as_found #1", "field 'reading'", "in units of the output"]),
