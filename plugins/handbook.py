@@ -1,130 +1,404 @@
-"""Publish: the static HTML handbook of every asset's test history.
+"""Publish: the static HTML handbook of every asset's test history, and the ``sheet`` command.
 
-Pages: ``index.html`` (fleet status), ``assets/<asset>.html`` (one per
-asset), ``tests/<test>.html`` (one evidence sheet per test) and a copy of each
-original result file under ``files/``. Templates live in the site/ theme; page
-data is computed here and by the plugins' ``ll_test_sections`` /
-``ll_asset_sections``. The site is built in a staging folder and swapped into
-place whole.
+Pages: ``index.html`` (fleet status at ``as_of``), ``assets/<asset>.html``,
+``tests/<test>.html`` (one evidence sheet per test), ``sheets/<asset>.html``
+(printable test sheet to take to site), ``overdue.html``, ``failures.html``,
+``instruments.html``, SVG charts under ``charts/`` and a copy of each original
+result file under ``files/``. Page data comes from :mod:`site_pages`, charts from
+:mod:`charts`; templates and CSS live in the site/ theme.
+
+The site is built in a staging folder and swapped into place whole. A manifest
+(``.manifest.json`` in the site) keeps a hash of each page's inputs; a page whose
+hash is unchanged is copied from the previous site instead of being rendered.
+Pages to render are spread over the machine's cores when there are many.
 """
 
 from __future__ import annotations
 
+import argparse
+import hashlib
+import html
 import importlib.resources
-import re
+import json
+import os
+import shutil
+import sys
+from collections.abc import Iterable
+from concurrent.futures import ProcessPoolExecutor
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-import pandas as pd
 from loopledger.context import RunContext
-from loopledger.contracts import Section
+from loopledger.contracts import Command
 from loopledger.findings import Finding
 from loopledger.hookspecs import hookimpl
+from loopledger.plugins import site_pages as sp
+from loopledger.plugins.site_pages import CAUTIONS, page_name
 
-CAUTIONS = [
-    "Never open-circuit the secondary of a current transformer that may carry primary current: "
-    "short it at the test block before disconnecting anything.",
-    "Isolate, lock out and prove dead before touching terminals; work under the site's permit-to-work "
-    "and test-block procedures.",
-    "Use instruments, leads and probes rated for the measurement category of the circuit.",
-    "Injection testing is for competent, authorised people only. Local codes, the site's rules and licensed "
-    "practice take precedence over anything in this handbook.",
-]
+__all__ = ["CAUTIONS", "page_name", "render_markdown", "build", "environment"]
 
-_UNSAFE = re.compile(r"[^A-Za-z0-9._-]+")
-
-
-def page_name(ident: str) -> str:
-    """A file name that is safe on any file system and cannot leave its folder."""
-    name = _UNSAFE.sub("_", ident).strip("._") or "_"
-    return name[:150]
+MANIFEST = ".manifest.json"
+#: bump when the page-making code changes in a way the template digest would not show
+FORMAT = 1
+#: render in worker processes only when at least this many pages changed (process start-up costs)
+PARALLEL_MIN = 48
+STATIC = ("style.css", "filter.js")
+ALLOWED_TAGS = {"p", "em", "strong", "ul", "ol", "li", "code", "pre", "br", "table", "thead", "tbody", "tr",
+                "th", "td", "blockquote", "h3", "h4", "hr"}
 
 
-def render_markdown(text: str | None) -> str:
-    """Markdown remarks rendered and sanitised: no script, handler or remote resource survives."""
-    if not text or (isinstance(text, float)):
+#: inline Markdown that would make a link or fetch something: left as the text that was written
+LINKING = ("reference", "link", "image_link", "image_reference", "short_reference", "short_image_ref", "autolink",
+           "automail")
+
+
+def render_markdown(text: Any) -> str:
+    """Markdown remarks rendered and sanitised: no script, handler, link or remote resource survives.
+
+    Any HTML the remark contains is escaped first and link/image syntax is not interpreted, so both
+    show as the text that was written; nh3 then keeps only plain formatting tags, without attributes.
+    """
+    if text is None or isinstance(text, float) or not str(text).strip():
         return ""
     import markdown
     import nh3
 
-    html = markdown.markdown(str(text), extensions=["tables"], output_format="html")
-    return nh3.clean(html, tags={"p", "em", "strong", "ul", "ol", "li", "code", "pre", "br", "table",
-                                  "thead", "tbody", "tr", "th", "td", "blockquote", "h3", "h4"},
-                     attributes={}, url_schemes=set(), link_rel=None)
+    md = markdown.Markdown(extensions=["tables"], output_format="html")
+    for name in LINKING:
+        md.inlinePatterns.deregister(name, strict=False)
+    rendered = md.convert(html.escape(str(text), quote=False))
+    return nh3.clean(rendered, tags=ALLOWED_TAGS, attributes={}, url_schemes=set(), link_rel=None)
+
+
+_ENV: Any = None
 
 
 def environment() -> Any:
+    global _ENV
+    if _ENV is None:
+        import jinja2
+
+        env = jinja2.Environment(
+            loader=jinja2.PackageLoader("loopledger.site", "templates"),
+            autoescape=True, undefined=jinja2.ChainableUndefined, trim_blocks=True, lstrip_blocks=True,
+            keep_trailing_newline=True,
+        )
+        env.filters["num"] = _num
+        env.filters["signed"] = lambda v, d=3: _num(v, d, sign=True)
+        env.filters["g"] = _g
+        env.filters["phase"] = lambda v: {"as_found": "as found", "as_left": "as left"}.get(v, v or "")
+        _ENV = env
+    return _ENV
+
+
+def _g(value: Any) -> str:
+    return "—" if value is None or value == "" else (f"{value:g}" if isinstance(value, float) else str(value))
+
+
+def _num(value: Any, digits: int = 4, sign: bool = False) -> str:
+    if value is None or value == "":
+        return "—"
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        return str(value)
+    return f"{value:+.{digits}f}" if sign else f"{value:.{digits}f}"
+
+
+def _theme_digest() -> str:
+    root = importlib.resources.files("loopledger.site")
     import jinja2
+    import markdown
+    import matplotlib
+    import nh3
 
-    return jinja2.Environment(
-        loader=jinja2.PackageLoader("loopledger.site", "templates"),
-        autoescape=True, undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
-        keep_trailing_newline=True,
-    )
+    versions = [FORMAT, matplotlib.__version__, jinja2.__version__, markdown.__version__,
+                getattr(nh3, "__version__", "")]
+    h = hashlib.sha256(json.dumps(versions).encode())
+    for folder in ("templates", "static"):
+        for item in sorted(root.joinpath(folder).iterdir(), key=lambda p: p.name):
+            if item.is_file():
+                h.update(item.name.encode() + b"\0" + item.read_bytes())
+    for module in ("charts.py", "handbook.py"):
+        h.update(importlib.resources.files("loopledger.plugins").joinpath(module).read_bytes())
+    return h.hexdigest()
 
 
-def _sections(results: list[list[Section] | None]) -> list[Section]:
-    return sorted((s for group in results for s in group or []), key=lambda s: (s.order, s.title))
+@dataclass
+class Job:
+    """One page to write: its template and data, and the charts it shows (``rel`` -> kind, data, title)."""
+
+    rel: str
+    template: str
+    data: dict[str, Any]
+    charts: dict[str, tuple[str, dict[str, Any], str]] = field(default_factory=dict)
+
+    def digest(self, theme: str) -> str:
+        blob = json.dumps([theme, self.rel, self.template, self.data, self.charts], sort_keys=True,
+                          ensure_ascii=False, default=str, allow_nan=False)
+        return hashlib.sha256(blob.encode("utf-8")).hexdigest()
 
 
-def _records(frame: pd.DataFrame) -> list[dict[str, Any]]:
-    return frame.astype(object).where(frame.notna(), None).to_dict("records")
+def render_job(job: Job) -> dict[str, bytes]:
+    """The files of one page: the HTML and its SVG charts (run in a worker process when parallel)."""
+    from loopledger.plugins import charts
+
+    out: dict[str, bytes] = {}
+    alts: dict[str, str] = {}
+    for rel, (kind, data, title) in sorted(job.charts.items()):
+        draw = charts.error_chart if kind == "error" else charts.drift_chart
+        out[rel] = draw(data, title).encode("utf-8")
+        alts[rel] = charts.error_alt(data) if kind == "error" else charts.drift_alt(data)
+    page = dict(job.data)
+    for key in ("latest_chart", "drift_chart", "chart"):  # text alternatives: made here, from the hashed data
+        if isinstance(page.get(key), dict):
+            page[key] = {**page[key], "alt": alts.get(page[key]["src"], "")}
+    out[job.rel] = environment().get_template(job.template).render(**page).encode("utf-8")
+    return out
 
 
-def build(ctx: RunContext, folder: Path) -> None:
-    env = environment()
+def _depth(rel: str) -> str:
+    return "../" * rel.count("/")
+
+
+def jobs(ctx: RunContext) -> list[Job]:
+    """Every page of the site with the data it is made from."""
     rule = str(ctx.section("decision").get("rule", "simple"))
-    tests = ctx.tests.copy()
-    tests["page"] = tests["test"].map(page_name)
-    tests["asset_page"] = tests["asset"].fillna("").astype(str).map(page_name)
-    tests["file_copy"] = tests["source_file"].map(lambda rel: "files/" + "/".join(page_name(p) for p in rel.split("/")))
-    assets = ctx.assets.copy()
-    assets["page"] = assets["asset"].map(page_name)
+    used = sp.usage(ctx)
+    tests = sp.test_table(ctx, used)
+    assets = sp.asset_table(ctx, tests)
+    points = ctx.points
+    if len(points):  # the chart columns, computed once for every page
+        extra = sp.chart_columns(points)
+        points = points.assign(**{c: extra[c].to_numpy() for c in sp.CHART_COLS[2:]})
     common = {"as_of": ctx.as_of.isoformat(), "cautions": CAUTIONS, "rule": rule}
-    latest = (tests[tests["valid"].astype(bool)].sort_values(["date", "test"]).groupby("asset").tail(1)
-              .set_index("asset"))
-    assets["latest_verdict"] = latest["verdict"].reindex(assets.index).fillna("untested")
-    assets["latest_date"] = latest["date"].reindex(assets.index).fillna("")
-    pages: dict[str, str] = {}
-    groups = []
-    for (site, area), rows in assets.fillna({"site": "", "area": ""}).groupby(["site", "area"], sort=True):
-        groups.append({"site": site, "area": area, "assets": _records(rows.sort_values("asset"))})
-    counts = assets["latest_verdict"].value_counts().to_dict()
-    invalid = tests[~tests["valid"].astype(bool)]
-    pages["index.html"] = env.get_template("index.html").render(
-        root="", groups=groups, counts=counts, invalid=_records(invalid), **common)
-    for asset in assets.itertuples():
-        rows = tests[tests["asset"] == asset.asset].sort_values(["date", "test"], ascending=False)
-        pages[f"assets/{asset.page}.html"] = env.get_template("asset.html").render(
-            root="../", asset=asset._asdict(), tests=_records(rows),
-            sections=_sections(ctx.pm.hook.ll_asset_sections(ctx=ctx, asset=asset.asset)), **common)
-    by_test = {t: g for t, g in ctx.points.groupby("test")} if not ctx.points.empty else {}
-    for test in tests.itertuples():
-        pts = by_test.get(test.test, pd.DataFrame())
-        pages[f"tests/{test.page}.html"] = env.get_template("test.html").render(
-            root="../", test=test._asdict(), points=_records(pts.sort_values(["phase", "point"])) if len(pts) else [],
-            asset=ctx.assets.loc[test.asset].to_dict() if test.asset in ctx.assets.index else {},
-            remarks=render_markdown(test.remarks), findings=[f for f in ctx.findings if f.file == test.source_file],
-            sections=_sections(ctx.pm.hook.ll_test_sections(ctx=ctx, test=test.test)) if test.valid else [],
-            **common)
-    for rel, text in pages.items():
-        path = folder / rel
-        path.parent.mkdir(parents=True, exist_ok=True)
-        path.write_text(text, encoding="utf-8")
-    for test in tests.itertuples():
-        data = ctx.raw_files.get(test.source_file)
-        if data is not None:
-            path = folder / test.file_copy
-            path.parent.mkdir(parents=True, exist_ok=True)
-            path.write_bytes(data)
-    css = importlib.resources.files("loopledger.site").joinpath("static/style.css").read_text(encoding="utf-8")
-    (folder / "style.css").write_text(css, encoding="utf-8")
+    out: list[Job] = []
+
+    def add(rel: str, template: str, data: dict[str, Any], charts: dict[str, Any] | None = None) -> None:
+        out.append(Job(rel, template, {**common, **data, "root": _depth(rel), "page_rel": rel}, charts or {}))
+
+    index = sp.index_data(ctx, assets, tests)
+    add("index.html", "index.html", index)
+    add("overdue.html", "overdue.html", {"assets": index["action"]["overdue"],
+                                         "untested": sp.records(assets[assets["verdict"] == "untested"],
+                                                                sp.ASSET_COLS),
+                                         "soon": sp.records(assets[assets["due_soon"]].sort_values("next_due"),
+                                                            sp.ASSET_COLS)})
+    failed_tests = tests[tests["verdict"].isin(["fail", "invalid"])].sort_values(["date", "test"], ascending=False) \
+        if len(tests) else tests
+    add("failures.html", "failures.html", {"tests": sp.records(failed_tests, sp.TEST_COLS),
+                                           "assets": index["action"]["failed"]})
+    add("instruments.html", "instruments.html", sp.instruments_data(ctx, used, tests))
+    empty_pts = points.iloc[0:0]
+    pts_by_asset = dict(iter(points.groupby("asset", sort=False))) if len(points) else {}
+    pts_by_test = dict(iter(points.groupby("test", sort=False))) if len(points) else {}
+    tests_by_asset = dict(iter(tests.groupby("asset", sort=False))) if len(tests) else {}
+    rig_by_test = dict(iter(used.groupby("test", sort=False))) if len(used) else {}
+    for _, row in assets.iterrows():
+        mine = tests_by_asset.get(row["asset"], tests.iloc[0:0])
+        data = sp.asset_data(ctx, row, mine, pts_by_asset.get(row["asset"], empty_pts))
+        charts: dict[str, Any] = {}
+        name = row["page"]
+        if data["latest_chart"]:
+            rel = f"charts/{name}-latest.svg"
+            charts[rel] = ("error", data["latest_chart"], f"{row['asset']}: test of {row['last_date']}")
+            data["latest_chart"] = {"src": rel}
+        if data["drift_chart"]:
+            rel = f"charts/{name}-history.svg"
+            charts[rel] = ("drift", data["drift_chart"], f"{row['asset']}: as-found error by year")
+            data["drift_chart"] = {"src": rel}
+        add(f"assets/{name}.html", "asset.html", data, charts)
+        plan = sp.default_plan(ctx, str(row["asset"]), mine)
+        sheet = sp.sheet_data(ctx, str(row["asset"]), plan, pts_by_asset.get(row["asset"], empty_pts))
+        add(f"sheets/{name}.html", "sheet.html", {"sheet": sheet,
+                                                  "asset_page": f"{name}.html"})
+    for _, test in tests.iterrows():
+        data = sp.test_data(ctx, test, pts_by_test.get(test["test"], empty_pts),
+                            rig_by_test.get(test["test"], used.iloc[0:0]))
+        charts = {}
+        if data["chart"]:
+            rel = f"charts/test-{test['page']}.svg"
+            charts[rel] = ("error", data["chart"], f"{test['asset']}: test of {test['date']}")
+            data["chart"] = {"src": rel}
+        data["remarks_html"] = render_markdown(test.get("remarks"))
+        data["has_asset"] = test.get("asset") in ctx.assets.index
+        add(f"tests/{test['page']}.html", "test.html", data, charts)
+    return out
+
+
+def _read_manifest(folder: Path) -> dict[str, Any]:
+    try:
+        found = json.loads((folder / MANIFEST).read_text(encoding="utf-8"))
+        return found if isinstance(found, dict) and isinstance(found.get("pages"), dict) else {}
+    except (OSError, ValueError):
+        return {}
+
+
+@dataclass
+class BuildStats:
+    pages: int = 0
+    rendered: int = 0
+    reused: int = 0
+
+
+def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: int | None = None) -> BuildStats:
+    """Write the whole site into ``folder``; reuse unchanged pages from ``previous`` (the live site)."""
+    theme = _theme_digest()
+    todo = jobs(ctx)
+    old = _read_manifest(previous) if previous is not None and previous.is_dir() else {}
+    old_pages = old.get("pages", {}) if old.get("theme") == theme else {}
+    manifest: dict[str, Any] = {"theme": theme, "pages": {}}
+    stale: list[Job] = []
+    stats = BuildStats(pages=len(todo))
+    for job in todo:
+        digest = job.digest(theme)
+        files = sorted([job.rel, *job.charts])
+        manifest["pages"][job.rel] = {"hash": digest, "files": files}
+        prev = old_pages.get(job.rel)
+        if previous is not None and prev and prev.get("hash") == digest and prev.get("files") == files and \
+                all((previous / f).is_file() for f in files):
+            for f in files:
+                _write(folder / f, (previous / f).read_bytes())
+            stats.reused += 1
+        else:
+            stale.append(job)
+    workers = workers if workers is not None else (os.cpu_count() or 1)
+    if workers > 1 and len(stale) >= PARALLEL_MIN:
+        with ProcessPoolExecutor(max_workers=workers) as pool:
+            _write_all(folder, pool.map(render_job, stale, chunksize=max(1, len(stale) // (workers * 4))))
+    else:
+        _write_all(folder, (render_job(job) for job in stale))
+    stats.rendered = len(stale)
+    for test in ctx.tests.itertuples():
+        raw = ctx.raw_files.get(test.source_file)
+        if raw is not None:
+            _write(folder / "files" / "/".join(page_name(p) for p in str(test.source_file).split("/")), raw)
+    static = importlib.resources.files("loopledger.site").joinpath("static")
+    for name in STATIC:
+        _write(folder / name, static.joinpath(name).read_bytes())
+    _write(folder / MANIFEST, json.dumps(manifest, sort_keys=True, indent=1).encode("utf-8") + b"\n")
+    return stats
+
+
+def _write_all(folder: Path, made: Iterable[dict[str, bytes]]) -> None:
+    """Write each page's files as it comes, in job order (never in the order workers finish)."""
+    for files in made:
+        for rel, data in files.items():
+            _write(folder / rel, data)
+
+
+def _write(path: Path, data: bytes) -> None:
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_bytes(data)
+
+
+def _clear_leftovers(out: Path) -> None:
+    """Remove staging folders a killed build left beside the site (the live site is never touched)."""
+    for stale in out.glob(".handbook.new-*"):
+        if stale.is_dir():
+            shutil.rmtree(stale, ignore_errors=True)
 
 
 @hookimpl
 def ll_publish(ctx: RunContext, out: Path) -> list[Finding]:
     from loopledger.output import staged_dir
 
-    with staged_dir(out / "handbook") as folder:
-        build(ctx, folder)
+    _clear_leftovers(out)
+    live = out / "handbook"
+    with staged_dir(live) as folder:
+        ctx.extras["handbook_build"] = build(ctx, folder, previous=live if live.is_dir() else None)
     return []
+
+
+# ---------------------------------------------------------------------------------------------
+# loopledger sheet ASSET
+
+def _sheet_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("asset", help="the asset's id in assets.csv")
+    parser.add_argument("--evidence", type=Path, default=Path("."),
+                        help="the evidence folder (default: the current folder)")
+    parser.add_argument("--shunt", type=float, metavar="OHM", help="planned shunt resistance in ohms "
+                        "(reads volts across it); default: the rig of the asset's latest test")
+    parser.add_argument("--meter", metavar="ID", help="planned meter (an id in instruments.yaml)")
+    parser.add_argument("--connection", choices=["standalone", "in-loop"], help="planned connection")
+    parser.add_argument("--rule", help="decision rule, overriding loopledger.toml")
+    parser.add_argument("--html", type=Path, metavar="FILE", help="also write the printable page to FILE")
+
+
+def _sheet_run(args: argparse.Namespace) -> int:
+    from loopledger import runner
+    from loopledger.commands.run import overrides
+    from loopledger.config import ConfigError
+    from loopledger.host import get_plugin_manager
+
+    ctx = runner.run(runner.RunOptions(args.evidence, overrides=overrides(args)), get_plugin_manager())
+    if args.asset not in ctx.assets.index:
+        raise ConfigError(f"asset '{args.asset}' is not in {args.evidence / 'assets.csv'}")
+    if args.meter and args.meter not in ctx.instruments.index:
+        raise ConfigError(f"meter '{args.meter}' is not in {args.evidence / 'instruments.yaml'}")
+    if args.shunt is not None and not args.shunt > 0:
+        raise ConfigError("--shunt must be a resistance in ohms greater than zero")
+    plan = sp.default_plan(ctx, args.asset, sp.test_table(ctx))
+    if args.shunt is not None:
+        plan.update(method="shunt", shunt_ohm=float(args.shunt))
+    if args.meter:
+        plan["meter"] = args.meter
+    if args.connection:
+        plan["connection"] = args.connection
+    sheet = sp.sheet_data(ctx, args.asset, plan)
+    sys.stdout.write(sheet_text(sheet))
+    if args.html:
+        from loopledger.output import write_bytes
+
+        page = environment().get_template("sheet.html").render(
+            sheet=sheet, root="", asset_page="", page_rel="sheet.html", as_of=ctx.as_of.isoformat(),
+            cautions=CAUTIONS, rule=sheet.get("rule", ""),
+            inline_css=importlib.resources.files("loopledger.site").joinpath("static/style.css").read_text("utf-8"))
+        write_bytes(args.html, page.encode("utf-8"))
+        sys.stdout.write(f"Printable sheet: {args.html}\n")
+    return 0
+
+
+def sheet_text(sheet: dict[str, Any]) -> str:
+    """The sheet as plain text for the terminal."""
+    a, plan = sheet["asset"], sheet["plan"]
+    unit = sheet.get("unit", "")
+    lines = [f"Test sheet for {a['asset']}: {a.get('description') or ''}",
+             f"  input {_g(a.get('input_min'))} … {_g(a.get('input_max'))} {a.get('input_unit')}, output "
+             f"{_g(a.get('output_min'))} … {_g(a.get('output_max'))} {unit}, accuracy {a.get('accuracy')}, "
+             f"rule '{sheet.get('rule', '')}'",
+             f"  planned rig: method {plan.get('method')}, meter {plan.get('meter') or '(not named)'}, "
+             f"shunt {_num(plan.get('shunt_ohm'), 3) + ' Ω' if plan.get('shunt_ohm') else '(none)'}, "
+             f"{plan.get('connection')}", ""]
+    volts = any("v_expected" in r for r in sheet["rows"])
+    primary = any("primary" in r for r in sheet["rows"])
+    head = f"{'input %':>8} {'input':>12}" + (f" {'primary':>10}" if primary else "")
+    head += f" {'expected':>10} {'pass from':>10} {'to':>10}"
+    head += f" {'V expected':>11} {'V from':>9} {'V to':>9}" if volts else ""
+    lines.append(head + f"   ({unit}{', volts across the shunt' if volts else ''})")
+    for r in sheet["rows"]:
+        line = f"{_num(r['input_pct'], 1):>8} {_num(r['input'], 4) + ' ' + (r['input_unit'] or ''):>12}"
+        line += f" {r['primary']:>10g}" if primary and r.get("primary") is not None else (" " * 11 if primary else "")
+        line += f" {_num(r['expected']):>10} {_num(r['low']):>10} {_num(r['high']):>10}"
+        if volts:
+            line += f" {_num(r.get('v_expected')):>11} {_num(r.get('v_low')):>9} {_num(r.get('v_high')):>9}"
+        lines.append(line)
+    for s in sheet.get("sections", []):
+        lines += ["", s["title"] + ":"]
+        if s["kind"] == "facts":
+            lines += [f"  {label}: {value}" for label, value in s["rows"]]
+        elif s["kind"] == "table":
+            lines += ["  " + " | ".join(str(c) for c in s["columns"])]
+            lines += ["  " + " | ".join(str(v) for v in row) for row in s["rows"]]
+        elif s["kind"] == "text":
+            lines.append("  " + s["text"])
+    if not sheet.get("sections"):
+        lines += ["", "Burden check: no plugin offered one for this rig; check the loop by hand."]
+    lines += ["", *("Note: " + n for n in sheet.get("notes", [])), "", "Cautions:"]
+    lines += [f"  - {c}" for c in CAUTIONS]
+    return "\n".join(lines) + "\n"
+
+
+@hookimpl
+def ll_cli_commands() -> list[Command]:
+    return [Command("sheet", "print the test points and pass windows to take to site for one asset",
+                    _sheet_arguments, _sheet_run)]

@@ -24,7 +24,8 @@ CT_ASSET: dict[str, Any] = {
 }
 
 INSTRUMENTS: dict[str, Any] = {
-    "SRC-1": {"kind": "source", "range": "5 A", "accuracy": "0.1 %rdg + 0.05 %range",
+    # a calibrator-grade source, so that the fixture rig's TUR is above 4:1 (no low-TUR warning)
+    "SRC-1": {"kind": "source", "range": "5 A", "accuracy": "0.02 %rdg + 0.005 %range",
               "calibrated": "2026-01-01", "due": "2027-01-01"},
     "DMM-1": {"kind": "meter", "calibrated": "2026-01-01", "due": "2027-01-01", "ranges": [
         {"range": "20 mA", "accuracy": "0.05 %rdg + 2 digits", "resolution": "0.001 mA", "burden": "1.8 mV/mA"},

@@ -1,0 +1,530 @@
+"""Page data for the handbook (not a plugin itself; :mod:`loopledger.plugins.handbook` uses it).
+
+Every function here turns the run context into plain, JSON-able dicts and lists
+(str, int, float, bool, None) so that a page's inputs can be hashed for the
+incremental build and handed to a worker process. Columns that other stages
+add (uncertainty, burden, history) are used when present; when a column or a
+``ctx.extras`` entry is missing the page says so or leaves the block out.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import math
+import re
+from dataclasses import asdict
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from loopledger import quantities as q
+from loopledger.context import RunContext
+from loopledger.contracts import Section
+
+CAUTIONS = [
+    "Never open-circuit the secondary of a current transformer that may carry primary current: "
+    "short it at the test block before disconnecting anything.",
+    "Isolate, lock out and prove dead before touching terminals; work under the site's permit-to-work "
+    "and test-block procedures.",
+    "Use instruments, leads and probes rated for the measurement category of the circuit.",
+    "Injection testing is for competent, authorised people only. Local codes, the site's rules and licensed "
+    "practice take precedence over anything in this handbook.",
+]
+
+#: the points a sheet plans when the asset has no earlier test (common practice: 0, 25, 50, 75, 100 %)
+DEFAULT_POINTS = (0.0, 25.0, 50.0, 75.0, 100.0)
+#: roles of the reference instruments named in a result file
+ROLES = ("source", "meter", "shunt")
+#: analysis columns (issue 3), in % of span, with their labels
+ANALYSIS = [("zero_error_pct", "Zero error"), ("span_error_pct", "Span error"),
+            ("nonlin_terminal_pct", "Non-linearity (terminal)"),
+            ("nonlin_independent_pct", "Non-linearity (independent)"), ("hysteresis_pct", "Hysteresis"),
+            ("nonrepeatability_pct", "Non-repeatability"), ("worst_after_trim_pct", "Worst error after trim")]
+BURDEN = [("loop_ohm", "Loop resistance", "Ω"), ("limit_ohm", "Largest load the output drives", "Ω"),
+          ("margin_pct", "Margin", "%"), ("burden_status", "Burden check", ""),
+          ("fault_signature", "Fault signature", "")]
+SOON_DAYS = 90  # "due soon" on the index: common practice for a planning look-ahead
+PREDICT_DAYS = 365  # a predicted exit from tolerance within a year (or before the next due date) is "soon"
+
+_UNSAFE = re.compile(r"[^A-Za-z0-9._-]+")
+
+
+def page_name(ident: Any) -> str:
+    """A file name that is safe on any file system and cannot leave its folder."""
+    name = _UNSAFE.sub("_", str(ident)).strip("._") or "_"
+    return name[:150]
+
+
+def plain(value: Any) -> Any:
+    """A JSON-able Python value: NaN/NaT -> None, numpy scalars -> Python, dates -> 'YYYY-MM-DD'."""
+    if value is None or value is pd.NaT:
+        return None
+    if isinstance(value, (pd.Timestamp, dt.datetime)):
+        return value.date().isoformat()
+    if isinstance(value, dt.date):
+        return value.isoformat()
+    if isinstance(value, (np.bool_, bool)):
+        return bool(value)
+    if isinstance(value, (np.integer,)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        f = float(value)
+        return None if math.isnan(f) or math.isinf(f) else f
+    if isinstance(value, (list, tuple)):
+        return [plain(v) for v in value]
+    if isinstance(value, dict):
+        return {str(k): plain(v) for k, v in value.items()}
+    try:
+        if pd.isna(value):
+            return None
+    except (TypeError, ValueError):
+        pass
+    return value if isinstance(value, (str, int)) else str(value)
+
+
+def records(frame: pd.DataFrame, columns: list[str] | None = None) -> list[dict[str, Any]]:
+    cols = [c for c in (columns or list(frame.columns)) if c in frame.columns]
+    return [{c: plain(v) for c, v in zip(cols, row, strict=True)}
+            for row in frame[cols].itertuples(index=False, name=None)]
+
+
+def section_dicts(groups: list[list[Section] | None]) -> list[dict[str, Any]]:
+    found = sorted((s for g in groups for s in g or []), key=lambda s: (s.order, s.title))
+    return [plain(asdict(s)) for s in found]
+
+
+def _col(frame: pd.DataFrame, name: str, default: Any = np.nan) -> pd.Series:
+    return frame[name] if name in frame.columns else pd.Series(default, index=frame.index)
+
+
+def _dates(values: pd.Series) -> pd.Series:
+    return pd.to_datetime(values, errors="coerce")
+
+
+# ---------------------------------------------------------------------------------------------
+# tests and instruments
+
+def cal_status(calibrated: Any, due: Any, on: Any) -> str:
+    """Calibration status of a reference instrument on the date ``on``, in words."""
+    on_ts, cal, due_ts = pd.to_datetime(on, errors="coerce"), pd.to_datetime(calibrated, errors="coerce"), \
+        pd.to_datetime(due, errors="coerce")
+    if pd.isna(due_ts):
+        return "no calibration due date recorded"
+    if pd.isna(on_ts):
+        return f"due {due_ts.date().isoformat()}"
+    if not pd.isna(cal) and on_ts < cal:
+        return f"before the calibration on file ({cal.date().isoformat()}); the earlier certificate is not recorded"
+    if on_ts > due_ts:
+        return f"OUT OF CALIBRATION: due {due_ts.date().isoformat()}"
+    return f"in calibration until {due_ts.date().isoformat()}"
+
+
+def usage(ctx: RunContext) -> pd.DataFrame:
+    """One row per (test, role) naming a reference instrument, with its status on the test date.
+
+    The same words as :func:`cal_status`, computed over the whole table at once.
+    """
+    tests = ctx.tests
+    roles = [r for r in ROLES if r in tests.columns]
+    if tests.empty or not roles:
+        return pd.DataFrame(columns=["test", "role", "instrument", "date", "status", "out_of_cal", "known"])
+    long = tests.melt(id_vars=["test", "date"], value_vars=roles, var_name="role", value_name="instrument")
+    long = long[long["instrument"].notna() & (long["instrument"].astype(str) != "")].copy()
+    long["instrument"] = long["instrument"].astype(str)
+    inst = ctx.instruments
+    known = long["instrument"].isin(inst.index) if len(inst) else pd.Series(False, index=long.index)
+    cal = pd.Series(_dates(_col(inst, "calibrated").reindex(long["instrument"])).to_numpy(), index=long.index)
+    due = pd.Series(_dates(_col(inst, "due").reindex(long["instrument"])).to_numpy(), index=long.index)
+    on = _dates(long["date"])
+    due_text, cal_text = due.dt.strftime("%Y-%m-%d"), cal.dt.strftime("%Y-%m-%d")
+    early = cal.notna() & on.notna() & (on < cal)
+    late = due.notna() & on.notna() & (on > due)
+    long["known"] = known
+    long["status"] = np.select(
+        [~known, due.isna(), on.isna(), early, late],
+        ["not in instruments.yaml", "no calibration due date recorded", "due " + due_text,
+         "before the calibration on file (" + cal_text + "); the earlier certificate is not recorded",
+         "OUT OF CALIBRATION: due " + due_text],
+        default="in calibration until " + due_text)
+    long["out_of_cal"] = (known & late & ~early).astype(bool)
+    long["role_order"] = long["role"].map(ROLES.index)
+    return long.sort_values(["test", "role_order"]).drop(columns="role_order").reset_index(drop=True)
+
+
+def reference_flags(ctx: RunContext, used: pd.DataFrame) -> pd.DataFrame:
+    """Per test: reference_out_of_cal (bool) and reference_issues (text).
+
+    Issue 5's traceability stage fills these columns; where it has not run, the
+    status of each instrument on the test date is judged here from instruments.yaml.
+    """
+    tests = ctx.tests.set_index("test")
+    if "reference_out_of_cal" in tests.columns:
+        return pd.DataFrame({"reference_out_of_cal": tests["reference_out_of_cal"].fillna(False).astype(bool),
+                             "reference_issues": _col(tests, "reference_issues", "").fillna("").astype(str)})
+    bad = used[used["out_of_cal"]]
+    text = (bad["instrument"] + " (" + bad["role"] + "): " + bad["status"]).groupby(bad["test"]).agg("; ".join)
+    flag = pd.Series(tests.index.isin(text.index), index=tests.index)
+    return pd.DataFrame({"reference_out_of_cal": flag, "reference_issues": text.reindex(tests.index).fillna("")})
+
+
+def test_table(ctx: RunContext, used: pd.DataFrame | None = None) -> pd.DataFrame:
+    """ctx.tests with page names, file-copy paths and reference flags."""
+    tests = ctx.tests.copy()
+    if tests.empty:
+        return tests.assign(page=[], asset_page=[], file_copy=[], reference_out_of_cal=[], reference_issues=[])
+    tests["page"] = tests["test"].map(page_name)
+    tests["asset_page"] = tests["asset"].map(lambda a: page_name(a) if isinstance(a, str) and a else "")
+    tests["file_copy"] = tests["source_file"].map(
+        lambda rel: "files/" + "/".join(page_name(p) for p in str(rel).split("/")))
+    flags = reference_flags(ctx, usage(ctx) if used is None else used)
+    tests["reference_out_of_cal"] = flags["reference_out_of_cal"].reindex(tests["test"]).to_numpy()
+    tests["reference_issues"] = flags["reference_issues"].reindex(tests["test"]).to_numpy()
+    return tests
+
+
+# ---------------------------------------------------------------------------------------------
+# assets
+
+def _add_months(date: Any, months: Any) -> Any:
+    if pd.isna(date) or months is None or pd.isna(months):
+        return pd.NaT
+    return pd.Timestamp(date) + pd.DateOffset(months=int(months))
+
+
+def asset_table(ctx: RunContext, tests: pd.DataFrame) -> pd.DataFrame:
+    """One row per asset: registry columns, latest test, verdict, next due, overdue, prediction."""
+    assets = ctx.assets.copy()
+    assets["page"] = assets["asset"].map(page_name)
+    valid = tests[tests["valid"].astype(bool)] if len(tests) else tests
+    latest = valid.sort_values(["date", "test"]).groupby("asset").tail(1).set_index("asset") if len(valid) else \
+        pd.DataFrame(columns=["test", "date", "verdict", "page"])
+    assets["last_test"] = latest["test"].reindex(assets.index)
+    assets["last_page"] = latest["page"].reindex(assets.index)
+    assets["last_date"] = latest["date"].reindex(assets.index)
+    assets["verdict"] = latest["verdict"].reindex(assets.index).fillna("untested")
+    assets["n_tests"] = valid.groupby("asset").size().reindex(assets.index).fillna(0).astype(int) \
+        if len(valid) else 0
+    summary = ctx.extras.get("assets_summary")
+    if isinstance(summary, pd.DataFrame) and "next_due" in summary.columns:
+        summary = summary.set_index("asset") if "asset" in summary.columns else summary
+        assets["next_due"] = _dates(summary["next_due"].reindex(assets.index))
+    else:
+        assets["next_due"] = [_add_months(d, m) for d, m in
+                              zip(_dates(assets["last_date"]), _col(assets, "interval_months"), strict=True)]
+        assets["next_due"] = _dates(assets["next_due"])
+    as_of = pd.Timestamp(ctx.as_of)
+    if isinstance(summary, pd.DataFrame) and "overdue" in summary.columns:
+        assets["overdue"] = summary["overdue"].reindex(assets.index).fillna(False).astype(bool)
+    else:
+        assets["overdue"] = assets["next_due"].notna() & (assets["next_due"] < as_of)
+    assets["days_overdue"] = (as_of - assets["next_due"]).dt.days.where(assets["overdue"])
+    assets["due_soon"] = ~assets["overdue"] & (assets["next_due"] - as_of).dt.days.between(0, SOON_DAYS)
+    pred = pd.Series(None, index=assets.index, dtype=object)
+    if isinstance(summary, pd.DataFrame) and "predicted_out_of_tolerance" in summary.columns:
+        pred = summary["predicted_out_of_tolerance"].reindex(assets.index)
+    assets["predicted"] = [_prediction(v) for v in pred]
+    when = _dates(assets["predicted"].where(assets["predicted"] != "yes"))
+    before_due = summary["predicted_before_due"].reindex(assets.index).fillna(False).astype(bool) \
+        if isinstance(summary, pd.DataFrame) and "predicted_before_due" in summary.columns else False
+    assets["predicted_soon"] = (assets["predicted"] == "yes") | before_due | (
+        when.notna() & (when <= as_of + pd.Timedelta(days=PREDICT_DAYS)))
+    for col in ("drift_pct_span_per_year", "recommended_interval_months"):
+        assets[col] = summary[col].reindex(assets.index) if isinstance(summary, pd.DataFrame) and \
+            col in summary.columns else np.nan
+    last_flag = tests.set_index("test")["reference_out_of_cal"] if len(tests) else pd.Series(dtype=bool)
+    assets["last_ref_out"] = assets["last_test"].map(last_flag).fillna(False).astype(bool)
+    assets["next_due"] = assets["next_due"].map(plain)
+    return assets
+
+
+def _prediction(value: Any) -> str:
+    """Issue 5's ``predicted_out_of_tolerance``: a flag or a date; '' when not predicted."""
+    if value is None or (not isinstance(value, str) and pd.isna(value)):
+        return ""
+    if isinstance(value, (bool, np.bool_)):
+        return "yes" if value else ""
+    if isinstance(value, (pd.Timestamp, dt.date)):
+        return plain(value)
+    text = str(value).strip()
+    return "" if text.lower() in ("", "false", "0", "no", "nan", "nat") else text
+
+
+def counts(assets: pd.DataFrame) -> dict[str, int]:
+    verdicts = assets["verdict"].value_counts()
+    return {"pass": int(verdicts.get("pass", 0)), "fail": int(verdicts.get("fail", 0)),
+            "adjusted": int(verdicts.get("adjusted", 0)), "untested": int(verdicts.get("untested", 0)),
+            "overdue": int(assets["overdue"].sum()), "total": len(assets)}
+
+
+ASSET_COLS = ["asset", "page", "description", "site", "area", "signal", "verdict", "last_date", "last_page",
+              "next_due", "overdue", "days_overdue", "due_soon", "predicted", "predicted_soon", "last_ref_out",
+              "n_tests"]
+TEST_COLS = ["test", "page", "asset", "asset_page", "date", "technician", "verdict", "as_found", "as_left",
+             "source_file", "reference_out_of_cal", "reference_issues", "valid"]
+
+
+def index_data(ctx: RunContext, assets: pd.DataFrame, tests: pd.DataFrame) -> dict[str, Any]:
+    groups = []
+    filled = assets.assign(site=assets["site"].fillna("").astype(str), area=assets["area"].fillna("").astype(str)) \
+        if len(assets) else assets.assign(site=[], area=[])
+    for (site, area), rows in filled.groupby(["site", "area"], sort=True):
+        groups.append({"site": site, "area": area, "assets": records(rows.sort_values("asset"), ASSET_COLS)})
+    failed = assets[assets["verdict"] == "fail"].sort_values("asset")
+    overdue = assets[assets["overdue"]].sort_values(["days_overdue", "asset"], ascending=[False, True])
+    predicted = assets[assets["predicted_soon"]].sort_values("asset")
+    ref = tests[tests["reference_out_of_cal"].astype(bool)].sort_values(["date", "test"], ascending=False) \
+        if len(tests) else tests
+    invalid = tests[~tests["valid"].astype(bool)] if len(tests) else tests
+    return {"counts": counts(assets), "groups": groups,
+            "action": {"failed": records(failed, ASSET_COLS), "overdue": records(overdue, ASSET_COLS),
+                       "predicted": records(predicted, ASSET_COLS),
+                       "reference": records(ref, TEST_COLS), "invalid": records(invalid, TEST_COLS)},
+            "history_available": isinstance(ctx.extras.get("assets_summary"), pd.DataFrame)}
+
+
+# ---------------------------------------------------------------------------------------------
+# charts' data
+
+CHART_COLS = ["phase", "input_pct", "error_pct", "mpe_pct", "accept_pct", "U_pct"]
+
+
+def chart_columns(points: pd.DataFrame) -> pd.DataFrame:
+    """The error chart's columns for every point at once, all in % of span."""
+    if points.empty:
+        return pd.DataFrame(columns=CHART_COLS)
+    span = points["span"].abs().replace(0, np.nan)
+    return pd.DataFrame({
+        "phase": points["phase"], "input_pct": points["input_pct"], "error_pct": points["error_pct_span"],
+        "mpe_pct": points["mpe"] / span * 100.0,
+        "accept_pct": _col(points, "acceptance_limit") / span * 100.0,
+        "U_pct": _col(points, "U") / span * 100.0,
+    }, index=points.index)
+
+
+def latest_chart_data(points: pd.DataFrame) -> dict[str, Any]:
+    """Points of one test for the error chart (columns of :func:`chart_columns`, made here if missing)."""
+    frame = points[CHART_COLS] if set(CHART_COLS) <= set(points.columns) else chart_columns(points)
+    return {"points": records(frame.sort_values(["phase", "input_pct"]))}
+
+
+def drift_chart_data(ctx: RunContext, asset: str, points: pd.DataFrame) -> dict[str, Any]:
+    """As-found error per test point over the years, with issue 5's fitted drift lines when present."""
+    found = points[points["phase"] == "as_found"]
+    frame = pd.DataFrame({"date": found["date"], "input_pct": found["input_pct"].round(3),
+                          "error_pct": found["error_pct_span"]}).sort_values(["input_pct", "date"])
+    fits = ctx.extras.get("drift_fits")
+    lines: list[dict[str, Any]] = []
+    if isinstance(fits, pd.DataFrame) and {"asset", "input_pct", "slope_pct_per_year", "intercept_pct",
+                                           "ref_date"} <= set(fits.columns):
+        mine = fits[fits["asset"] == asset].sort_values("input_pct")
+        lines = records(mine, ["input_pct", "slope_pct_per_year", "intercept_pct", "ref_date", "n", "stderr"])
+    mpe_pct = (points["mpe"] / points["span"].abs() * 100.0).max() if len(points) else None
+    return {"points": records(frame), "fits": lines, "mpe_pct": plain(mpe_pct)}
+
+
+# ---------------------------------------------------------------------------------------------
+# page contexts (the dicts the templates receive; also what the incremental build hashes)
+
+POINT_COLS = ["phase", "point", "input", "input_pct", "reading_text", "expected", "measured", "output_unit",
+              "error", "error_pct_span", "mpe", "acceptance_limit", "U", "k", "tur", "decision", "decision_rule",
+              "ne43_band", "clipped", "line"]
+
+
+def asset_data(ctx: RunContext, row: pd.Series, tests: pd.DataFrame, points: pd.DataFrame) -> dict[str, Any]:
+    """One asset's page; ``tests`` and ``points`` are that asset's rows only."""
+    mine = tests.sort_values(["date", "test"], ascending=False)
+    pts = points
+    latest_pts = pts[pts["test"] == row["last_test"]] if len(pts) else pts
+    reg = {k: plain(v) for k, v in ctx.assets.loc[row["asset"]].items()}
+    data = {"asset": reg, "status": {k: plain(row.get(k)) for k in ASSET_COLS + [
+        "drift_pct_span_per_year", "recommended_interval_months", "last_test"]},
+        "tests": records(mine, TEST_COLS),
+        "latest_chart": latest_chart_data(latest_pts) if len(latest_pts) else None,
+        "drift_chart": drift_chart_data(ctx, str(row["asset"]), pts)
+        if len(pts) and pts["test"].nunique() > 1 else None,
+        "sections": section_dicts(ctx.pm.hook.ll_asset_sections(ctx=ctx, asset=row["asset"]))}
+    return data
+
+
+def test_data(ctx: RunContext, test: pd.Series, points: pd.DataFrame, rig: pd.DataFrame) -> dict[str, Any]:
+    """One test's evidence sheet; ``points`` and ``rig`` (rows of :func:`usage`) are that test's only."""
+    tid = test["test"]
+    pts = points.sort_values(["phase", "point"]) if len(points) else points
+    instruments = []
+    for r in rig.itertuples():
+        info = ctx.instruments.loc[r.instrument] if r.known else pd.Series(dtype=object)
+        instruments.append({"role": r.role, "id": r.instrument, "status": r.status, "out_of_cal": bool(r.out_of_cal),
+                            "description": plain(info.get("description")), "serial": plain(info.get("serial")),
+                            "calibrated": plain(info.get("calibrated")), "due": plain(info.get("due")),
+                            "spec": plain(info.get("accuracy")) or plain(info.get("tolerance"))})
+    asset = {k: plain(v) for k, v in ctx.assets.loc[test["asset"]].items()} \
+        if test.get("asset") in ctx.assets.index else {}
+    burden = [(label, plain(test.get(col)), unit) for col, label, unit in BURDEN if col in test.index
+              and plain(test.get(col)) not in (None, "")]
+    analysis = [(label, plain(test.get(col))) for col, label in ANALYSIS if col in test.index
+                and plain(test.get(col)) is not None]
+    cols = [c for c in POINT_COLS if c in pts.columns]
+    return {"test": {k: plain(v) for k, v in test.items()}, "asset": asset, "instruments": instruments,
+            "points": records(pts, cols), "point_cols": cols, "burden": burden, "analysis": analysis,
+            "findings": [{"severity": f.severity, "line": plain(f.line), "field": f.field, "point": f.point,
+                          "message": f.message, "stage": f.stage}
+                         for f in ctx.findings if f.file == test["source_file"]],
+            "chart": latest_chart_data(pts) if len(pts) else None,
+            "sections": section_dicts(ctx.pm.hook.ll_test_sections(ctx=ctx, test=tid)) if test["valid"] else []}
+
+
+def instruments_data(ctx: RunContext, used: pd.DataFrame, tests: pd.DataFrame) -> dict[str, Any]:
+    inst = ctx.instruments
+    pages = tests.set_index("test")[["page", "asset", "date", "verdict"]] if len(tests) else None
+    out = []
+    for ident in sorted(set(inst.index.astype(str)) | set(used["instrument"])):
+        info = inst.loc[ident] if ident in inst.index else pd.Series(dtype=object)
+        mine = used[used["instrument"] == ident].sort_values(["date", "test"], ascending=False)
+        rows = []
+        for r in mine.itertuples():
+            extra = pages.loc[r.test] if pages is not None else {}
+            rows.append({"test": r.test, "page": plain(extra["page"]), "asset": plain(extra["asset"]),
+                         "date": plain(r.date), "role": r.role, "status": r.status, "out_of_cal": bool(r.out_of_cal),
+                         "verdict": plain(extra["verdict"])})
+        ranges = records(ctx.ranges[ctx.ranges["instrument"] == ident], ["range", "accuracy", "resolution", "burden"]) \
+            if len(ctx.ranges) and "instrument" in ctx.ranges.columns else []
+        out.append({"id": ident, "known": ident in inst.index, "kind": plain(info.get("kind")),
+                    "description": plain(info.get("description")), "serial": plain(info.get("serial")),
+                    "calibrated": plain(info.get("calibrated")), "due": plain(info.get("due")),
+                    "spec": plain(info.get("accuracy")) or plain(info.get("tolerance")),
+                    "resistance": plain(info.get("resistance")), "range": plain(info.get("range")),
+                    "status_now": cal_status(info.get("calibrated"), info.get("due"), ctx.as_of)
+                    if ident in inst.index else "not in instruments.yaml",
+                    "ranges": ranges, "tests": rows, "n_out": sum(1 for r in rows if r["out_of_cal"])})
+    return {"instruments": out}
+
+
+# ---------------------------------------------------------------------------------------------
+# the test sheet to take to site
+
+def default_plan(ctx: RunContext, asset: str, tests: pd.DataFrame) -> dict[str, Any]:
+    """The rig of the asset's latest valid test (a sensible default for its next test)."""
+    valid = tests[(tests["asset"] == asset) & tests["valid"].astype(bool)].sort_values(["date", "test"]) \
+        if len(tests) else tests
+    plan: dict[str, Any] = {"method": "direct", "shunt_ohm": None, "meter": None, "connection": "standalone"}
+    if len(valid):
+        last = valid.iloc[-1]
+        plan["method"] = plain(last.get("method")) or "direct"
+        plan["meter"] = plain(last.get("meter"))
+        plan["connection"] = plain(last.get("connection")) or "standalone"
+        shunt = plain(last.get("shunt"))
+        if shunt and shunt in ctx.instruments.index:
+            plan["shunt_ohm"] = _ohms(ctx.instruments.loc[shunt].get("resistance"))
+    if plan["method"] == "shunt" and plan["shunt_ohm"] is None:
+        plan["method"] = "direct"
+    return plan
+
+
+def _ratio(text: Any) -> float | None:
+    """``2000/1`` -> 2000.0 (a current transformer's ratio), None when blank or not a ratio."""
+    match = re.fullmatch(r"\s*([\d.]+)\s*/\s*([\d.]+)\s*", str(text)) if isinstance(text, str) else None
+    if not match or not float(match.group(2)):
+        return None
+    return float(match.group(1)) / float(match.group(2))
+
+
+def _ohms(text: Any) -> float | None:
+    if text is None or (not isinstance(text, str) and pd.isna(text)):
+        return None
+    try:
+        return float(q.to_float(text, "ohm"))
+    except (ValueError, TypeError):
+        return None
+
+
+def planned_points(ctx: RunContext, asset: str, points: pd.DataFrame | None = None) -> list[float]:
+    """The input points (% of input range) of the latest valid test, or 0/25/50/75/100 %."""
+    pts = ctx.points if points is None else points
+    if len(pts) and "asset" in pts.columns:
+        mine = pts[(pts["asset"] == asset) & (pts["phase"] == "as_found")]
+        if len(mine):
+            last = mine[mine["date"] == mine["date"].max()]
+            last = last[last["test"] == last["test"].max()]
+            values = sorted({round(float(v), 6) for v in last["input_pct"].dropna()})
+            if values:
+                return values
+    return list(DEFAULT_POINTS)
+
+
+def sheet_data(ctx: RunContext, asset: str, plan: dict[str, Any], points: pd.DataFrame | None = None,
+               ) -> dict[str, Any]:
+    """Planned points with expected output and the acceptance window of each, for the rule in force."""
+    from loopledger.plugins import tolerance
+
+    reg = ctx.assets.loc[asset]
+    pcts = planned_points(ctx, asset, points)
+    frame = pd.DataFrame([reg.to_dict()] * len(pcts))
+    frame = frame.assign(test="sheet", source_file="(planned)", line=0, phase="as_found",
+                         point=range(1, len(pcts) + 1), input=[f"{p:g} %" for p in pcts],
+                         input_value=pcts, input_written_unit=q.PERCENT, injection="secondary",
+                         method=plan.get("method") or "direct", connection=plan.get("connection") or "standalone",
+                         direction=None, reading=np.nan, reading_unit="", reading_text="", n_readings=0,
+                         date=ctx.as_of.isoformat())
+    notes: list[str] = []
+    handler = ctx.signal_types.get(str(reg.get("signal")))
+    empty = {"asset": {k: plain(v) for k, v in reg.items()}, "plan": plain(plan), "rows": [], "rule": "",
+             "unit": str(reg.get("output_unit") or ""), "ct_ratio": None, "sections": []}
+    if handler is None:
+        return {**empty, "notes": [f"no plugin handles signal '{reg.get('signal')}', so no expected values "
+                                   "can be given"]}
+    try:  # a signal type from a site plugin may not expect planned points: the rest of the site must still build
+        evaluated, _ = handler.evaluate(frame, ctx)
+        for col in evaluated.columns:
+            frame[col] = evaluated[col].to_numpy()
+    except Exception as exc:
+        return {**empty, "notes": [f"the signal type '{reg.get('signal')}' could not work out the planned points "
+                                   f"({type(exc).__name__}: {exc}); plan them by hand"]}
+    frame["span"] = float(reg["output_max"]) - float(reg["output_min"])
+    frame["mpe"], _ = tolerance.mpe(frame)
+    frame["error"] = 0.0
+    rule_name = str(ctx.section("decision").get("rule", "simple"))
+    rule = ctx.decision_rules.get(rule_name)
+    frame["accept"] = frame["mpe"]
+    if rule is not None:
+        missing = [c for c in rule.needs if c not in frame.columns]
+        if missing:
+            notes.append(f"The rule '{rule_name}' needs {', '.join(missing)}, known only after the readings are "
+                         "taken; the window below is the MPE and a reading near its edge must be judged "
+                         "after the run.")
+        else:
+            try:
+                frame["accept"] = rule.decide(frame, ctx)["acceptance_limit"].to_numpy()
+            except (KeyError, ValueError, TypeError) as exc:  # a rule that cannot judge a planned point
+                notes.append(f"The rule '{rule_name}' could not give a window before the test ({exc}); "
+                             "the window shown is the MPE.")
+    meter = plan.get("meter")
+    if meter and meter in ctx.instruments.index:
+        status = cal_status(ctx.instruments.at[meter, "calibrated"] if "calibrated" in ctx.instruments else None,
+                            ctx.instruments.at[meter, "due"] if "due" in ctx.instruments else None, ctx.as_of)
+        if status.startswith("OUT OF"):
+            notes.append(f"The planned meter {meter} is {status} on {ctx.as_of.isoformat()}: use an instrument in "
+                         "calibration, or the readings cannot be relied on.")
+    unit = str(reg["output_unit"])
+    ohm = plan.get("shunt_ohm") if plan.get("method") == "shunt" else None
+    rows = []
+    to_amps = q.affine(unit, "A") if unit else None
+    ratio = _ratio(reg.get("ct_ratio"))
+    for r in frame.itertuples():
+        row = {"input_pct": plain(r.input_value), "input": plain(getattr(r, "injected", None)),
+               "input_unit": plain(getattr(r, "injected_unit", None)), "expected": plain(r.expected),
+               "low": plain(r.expected - r.accept), "high": plain(r.expected + r.accept), "accept": plain(r.accept),
+               "mpe": plain(r.mpe)}
+        if ratio is not None and row["input"] is not None:
+            row["primary"] = row["input"] * ratio
+        if ohm and to_amps is not None:
+            a, b = to_amps
+            row["v_expected"] = plain((a * r.expected + b) * ohm)
+            row["v_low"] = plain((a * (r.expected - r.accept) + b) * ohm)
+            row["v_high"] = plain((a * (r.expected + r.accept) + b) * ohm)
+        rows.append(row)
+    if ohm and to_amps is None:
+        notes.append(f"The output unit {unit} is not a current, so no volts across the shunt are given.")
+    ct = plain(reg.get("ct_ratio"))
+    return {"asset": {k: plain(v) for k, v in reg.items()}, "plan": plain(plan), "rows": rows, "notes": notes,
+            "rule": rule_name, "ct_ratio": ct, "unit": unit,
+            "sections": section_dicts(ctx.pm.hook.ll_sheet_sections(ctx=ctx, asset=asset, plan=plan))}

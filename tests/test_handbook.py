@@ -1,0 +1,442 @@
+"""The handbook: page data, sanitising, reproducible and incremental builds, the sheet, a real browser."""
+
+from __future__ import annotations
+
+import datetime as dt
+import os
+import signal
+import subprocess
+import sys
+import time
+from html.parser import HTMLParser
+from pathlib import Path
+from urllib.parse import unquote, urlsplit
+
+import pandas as pd
+import pytest
+from loopledger import runner
+from loopledger.cli import main
+from loopledger.plugins import handbook
+from loopledger.plugins import site_pages as sp
+
+from tests.evidence import CT_ASSET, INSTRUMENTS, good_points, result_yaml, write_evidence
+
+AS_OF = dt.date(2026, 11, 30)  # the fixtures' as_of (tests/evidence.py)
+
+
+def _asset(name: str, **extra: object) -> dict[str, object]:
+    return {**CT_ASSET, "asset": name, **extra}
+
+
+def _fleet(root: Path, **results: str) -> Path:
+    """Three current transducers: one passing but overdue, one failing, one never tested."""
+    files = {"a/one.yaml": result_yaml(asset="T-CT1", date="2025-01-10", as_found=good_points(0.01)),
+             "b/two.yaml": result_yaml(asset="T-CT2", date="2026-06-01", as_found=good_points(0.2),
+                                       remarks="Span drifted; *replace* at next outage.")}
+    files.update(results)
+    assets = [_asset("T-CT1"), _asset("T-CT2", area="Panel 2"), _asset("T-CT3", site="Other site")]
+    return write_evidence(root, files, assets=assets)
+
+
+def _tree(folder: Path) -> dict[str, bytes]:
+    return {p.relative_to(folder).as_posix(): p.read_bytes() for p in sorted(folder.rglob("*")) if p.is_file()}
+
+
+# --- page data --------------------------------------------------------------------------------
+
+def test_fleet_counts_overdue_and_untested(tmp_path, run_folder):
+    ctx = run_folder(_fleet(tmp_path / "ev"))
+    summary = ctx.extras.pop("assets_summary", None)  # first the handbook's own fallback
+    tests = sp.test_table(ctx)
+    assets = sp.asset_table(ctx, tests)
+    assert sp.counts(assets) == {"pass": 1, "fail": 1, "adjusted": 0, "untested": 1, "overdue": 1, "total": 3}
+    one = assets.loc["T-CT1"]
+    # next due = last test + 12 months (calendar months, common practice); days counted with Python's datetime
+    assert one["next_due"] == "2026-01-10"
+    assert one["overdue"] and int(one["days_overdue"]) == (AS_OF - dt.date(2026, 1, 10)).days
+    assert not assets.loc["T-CT2", "overdue"]
+    index = sp.index_data(ctx, assets, tests)
+    assert [a["asset"] for a in index["action"]["failed"]] == ["T-CT2"]
+    assert [a["asset"] for a in index["action"]["overdue"]] == ["T-CT1"]
+    # grouped by site, then area
+    assert [(g["site"], g["area"]) for g in index["groups"]] == [
+        ("Other site", "Panel 1"), ("Test site", "Panel 1"), ("Test site", "Panel 2")]
+    if summary is not None:  # with the history stage, its overdue flags are the ones counted
+        ctx.extras["assets_summary"] = summary
+        assert sp.counts(sp.asset_table(ctx, tests))["overdue"] == int(summary["overdue"].astype(bool).sum())
+
+
+def test_reference_out_of_calibration_on_the_test_date(tmp_path, run_folder):
+    instruments = {**INSTRUMENTS, "DMM-1": {**INSTRUMENTS["DMM-1"], "due": "2026-03-01"}}
+    ev = write_evidence(tmp_path / "ev", {
+        "early.yaml": result_yaml(date="2026-02-15", as_found=good_points()),
+        "late.yaml": result_yaml(date="2026-06-01", as_found=good_points())}, instruments=instruments)
+    ctx = run_folder(ev)
+    used = sp.usage(ctx)
+    # the vectorised statuses say the same as the one-at-a-time function
+    for r in used.itertuples():
+        info = ctx.instruments.loc[r.instrument]
+        assert r.status == sp.cal_status(info["calibrated"], info["due"], r.date)
+    tests = sp.test_table(ctx, used).set_index("test")
+    late = tests[tests["date"] == "2026-06-01"].iloc[0]
+    early = tests[tests["date"] == "2026-02-15"].iloc[0]
+    assert late["reference_out_of_cal"] and "DMM-1" in late["reference_issues"]
+    assert not early["reference_out_of_cal"]
+    data = sp.instruments_data(ctx, used, sp.test_table(ctx, used))
+    dmm = next(i for i in data["instruments"] if i["id"] == "DMM-1")
+    assert dmm["n_out"] == 1 and dmm["status_now"].startswith("OUT OF CALIBRATION")
+
+
+def test_sheet_windows_volts_and_primary(tmp_path, run_folder):
+    ctx = run_folder(_fleet(tmp_path / "ev"))
+    plan = {"method": "shunt", "shunt_ohm": 250.0, "meter": "DMM-1", "connection": "standalone"}
+    sheet = sp.sheet_data(ctx, "T-CT3", plan)
+    rows = {r["input_pct"]: r for r in sheet["rows"]}
+    assert sorted(rows) == [0.0, 25.0, 50.0, 75.0, 100.0]  # common practice: five points up the range
+    mid = rows[50.0]
+    # class 0.5 as a fiducial error on the 16 mA output span (IEC 60688): MPE = 0.005 x 16 mA = 0.08 mA
+    assert mid["expected"] == pytest.approx(12.0) and mid["accept"] == pytest.approx(0.08)
+    assert (mid["low"], mid["high"]) == (pytest.approx(11.92), pytest.approx(12.08))
+    # Ohm's law across the planned shunt: 11.92 mA x 250 ohm = 2.98 V, 12.08 mA x 250 ohm = 3.02 V
+    assert (mid["v_low"], mid["v_high"]) == (pytest.approx(2.98), pytest.approx(3.02))
+    # 0.5 A secondary behind a 2000/1 A current transformer is 1000 A primary
+    assert mid["input"] == pytest.approx(0.5) and mid["primary"] == pytest.approx(1000.0)
+    text = handbook.sheet_text(sheet)
+    assert "11.9200" in text and "3.0200" in text and "open-circuit" in text
+
+
+def test_columns_of_other_stages_are_shown_when_present(tmp_path, run_folder):
+    ctx = run_folder(_fleet(tmp_path / "ev"))
+    real_extras = dict(ctx.extras)
+    span = 16.0
+    ctx.points["U"] = 0.016  # 0.1 % of the 16 mA span
+    ctx.tests["burden_status"] = "low-margin"
+    ctx.tests["loop_ohm"] = 612.5
+    ctx.extras["assets_summary"] = pd.DataFrame({
+        "asset": ["T-CT1", "T-CT2", "T-CT3"], "next_due": ["2027-01-10", "2027-06-01", None],
+        "overdue": [False, False, False], "predicted_out_of_tolerance": [True, False, "2030-01-01"]})
+    ctx.extras["drift_fits"] = pd.DataFrame({
+        "asset": ["T-CT2"], "input_pct": [50.0], "n": [2], "slope_pct_per_year": [0.4], "stderr": [0.1],
+        "intercept_pct": [0.0], "ref_date": ["2025-01-01"]})
+    tests = sp.test_table(ctx)
+    assets = sp.asset_table(ctx, tests)
+    assert sp.counts(assets)["overdue"] == 0  # the history stage's overdue wins over the fallback
+    index = sp.index_data(ctx, assets, tests)
+    # a flag counts as soon; a date more than a year after as_of does not (but shows on the asset page)
+    assert [a["asset"] for a in index["action"]["predicted"]] == ["T-CT1"]
+    assert assets.loc["T-CT3", "predicted"] == "2030-01-01" and not assets.loc["T-CT3", "predicted_soon"]
+    chart = sp.latest_chart_data(ctx.points[ctx.points["asset"] == "T-CT2"])
+    assert chart["points"][0]["U_pct"] == pytest.approx(0.016 / span * 100)
+    drift = sp.drift_chart_data(ctx, "T-CT2", ctx.points[ctx.points["asset"] == "T-CT2"])
+    assert drift["fits"][0]["slope_pct_per_year"] == 0.4
+    ctx.extras = real_extras  # the other stages' own page blocks read their own extras
+    out = tmp_path / "site"
+    handbook.build(ctx, out)
+    page = (out / "tests" / "b_two.html").read_text(encoding="utf-8")
+    assert "U (mA)" in page and "0.0160" in page
+    assert "Burden and loop" in page and "low-margin" in page and "612.5" in page
+    assert "Predicted to drift" in (out / "index.html").read_text(encoding="utf-8")
+    if "assets_summary" in real_extras:
+        assert "the history stage did not run" not in (out / "index.html").read_text(encoding="utf-8")
+
+
+FOUNDATION = {"read_yaml", "read_table", "schema_check", "expected_output", "current_transducer", "measured_output",
+              "reading_methods", "tolerance", "export_csv", "handbook"}
+
+
+def test_pages_degrade_without_optional_columns(tmp_path, pm):
+    for name, _plugin in list(pm.list_name_plugin()):
+        if name not in FOUNDATION:
+            pm.unregister(name=name)
+    ctx = runner.run(runner.RunOptions(_fleet(tmp_path / "ev")), pm)
+    assert "assets_summary" not in ctx.extras and "U" not in ctx.points.columns
+    out = tmp_path / "site"
+    handbook.build(ctx, out)
+    index = (out / "index.html").read_text(encoding="utf-8")
+    assert "the history stage did not run" in index
+    test_page = (out / "tests" / "a_one.html").read_text(encoding="utf-8")
+    assert "U (" not in test_page and "Burden and loop" not in test_page
+    assert (out / "assets" / "T-CT3.html").is_file() and (out / "sheets" / "T-CT3.html").is_file()
+
+
+# --- safety of what comes from input files --------------------------------------------------
+
+class _Audit(HTMLParser):
+    def __init__(self) -> None:
+        super().__init__()
+        self.scripts: list[str] = []
+        self.handlers: list[str] = []
+        self.external: list[str] = []
+        self.text: list[str] = []
+
+    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+        if tag == "script":
+            self.scripts.append(dict(attrs).get("src") or "inline")
+        for name, value in attrs:
+            if name.startswith("on"):
+                self.handlers.append(f"{tag} {name}")
+            if name in ("src", "href", "action", "srcset", "poster", "data") and value and (
+                    ":" in value.split("/")[0] or value.startswith("//")):
+                self.external.append(value)
+
+    def handle_data(self, data: str) -> None:
+        self.text.append(data)
+
+
+def _audit(text: str) -> _Audit:
+    audit = _Audit()
+    audit.feed(text)
+    return audit
+
+
+def test_hostile_remark_renders_as_harmless_text(tmp_path):
+    remark = ('Note <script>alert("x")</script> and <img src=x onerror=alert(1)> '
+              'and ![logo](https://example.invalid/t.png) and [site](javascript:alert(2))')
+    ev = write_evidence(tmp_path / "ev", {"r.yaml": result_yaml(as_found=good_points(), remarks=remark)})
+    assert main(["run", str(ev), "--out", str(tmp_path / "out")]) == 0
+    page = (tmp_path / "out" / "handbook" / "tests" / "r.html").read_text(encoding="utf-8")
+    audit = _audit(page)
+    assert audit.scripts == [] and audit.handlers == [] and audit.external == []
+    shown = "".join(audit.text)
+    # the remark is shown as the text that was written, tags, image and link syntax included
+    assert '<script>alert("x")</script>' in shown and "<img src=x onerror=alert(1)>" in shown
+    assert "![logo](https://example.invalid/t.png)" in shown and "[site](javascript:alert(2))" in shown
+
+
+def test_site_refers_to_nothing_outside_itself(tmp_path):
+    ev = _fleet(tmp_path / "ev")
+    main(["run", str(ev), "--out", str(tmp_path / "out")])
+    site = tmp_path / "out" / "handbook"
+    pages = sorted(site.rglob("*.html"))
+    assert len(pages) >= 4 + 3 * 2 + 2
+    for page in pages:
+        audit = _audit(page.read_text(encoding="utf-8"))
+        assert audit.external == [], page
+        assert audit.scripts in ([], ["filter.js"]), page
+        for target in _links(page):
+            assert (page.parent / target).resolve().is_file(), f"{page}: broken link {target}"
+    for svg in site.rglob("*.svg"):
+        text = svg.read_text(encoding="utf-8")
+        assert 'href="http' not in text and "<script" not in text
+
+
+def _links(page: Path) -> list[str]:
+    class Links(HTMLParser):
+        found: list[str] = []
+
+        def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+            for name, value in attrs:
+                if name in ("href", "src") and value:
+                    self.found.append(value.split("#")[0])
+
+    parser = Links()
+    parser.found = []
+    parser.feed(page.read_text(encoding="utf-8"))
+    return [f for f in parser.found if f]
+
+
+# --- reproducible, incremental and atomic builds ------------------------------------------------
+
+def test_two_builds_are_byte_identical_and_incremental_equals_cold(tmp_path, pm):
+    ev = _fleet(tmp_path / "ev")
+
+    def build(out: Path) -> handbook.BuildStats:
+        ctx = runner.run(runner.RunOptions(ev), pm)
+        runner.publish(ctx, out)
+        stats = ctx.extras["handbook_build"]
+        assert isinstance(stats, handbook.BuildStats)
+        return stats
+
+    first = build(tmp_path / "one")
+    second = build(tmp_path / "two")
+    assert second.rendered == second.pages
+    assert first.rendered == first.pages and first.reused == 0
+    assert _tree(tmp_path / "one" / "handbook") == _tree(tmp_path / "two" / "handbook")
+    again = build(tmp_path / "one")  # same folder, same as_of: every page reused, bytes unchanged
+    assert again.reused == again.pages and again.rendered == 0
+    assert _tree(tmp_path / "one" / "handbook") == _tree(tmp_path / "two" / "handbook")
+
+    # change one result file: only the pages that show it are made again, and the site equals a cold build
+    (ev / "results" / "a" / "one.yaml").write_text(
+        result_yaml(asset="T-CT1", date="2025-01-10", as_found=good_points(0.02)), encoding="utf-8")
+    warm = build(tmp_path / "one")
+    cold = build(tmp_path / "three")
+    assert 0 < warm.rendered < warm.pages and warm.reused > 0
+    assert cold.rendered == cold.pages
+    assert _tree(tmp_path / "one" / "handbook") == _tree(tmp_path / "three" / "handbook")
+
+
+KILL_SCRIPT = """
+import sys, time
+from loopledger.plugins import handbook
+real = handbook.render_job
+def slow(job):
+    time.sleep(0.25)
+    return real(job)
+handbook.render_job = slow
+from loopledger.cli import main
+sys.exit(main(sys.argv[1:]))
+"""
+
+
+def test_a_build_killed_half_way_leaves_the_previous_site(tmp_path):
+    ev = _fleet(tmp_path / "ev")
+    out = tmp_path / "out"
+    assert main(["run", str(ev), "--out", str(out)]) == 1  # a test failed: exit code 1
+    before = _tree(out / "handbook")
+    proc = subprocess.Popen([sys.executable, "-c", KILL_SCRIPT, "run", str(ev), "--out", str(out),
+                             "--as-of", "2026-12-01"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    try:
+        staged: list[Path] = []
+        deadline = time.monotonic() + 300
+        while not any((s / "assets").is_dir() for s in staged) and time.monotonic() < deadline:
+            assert proc.poll() is None, "the slowed build finished before it could be killed"
+            staged = list(out.glob(".handbook.new-*"))
+            time.sleep(0.05)
+        assert staged, "the build never started writing its staging folder"
+    finally:
+        os.kill(proc.pid, signal.SIGKILL)
+        proc.wait()
+    assert _tree(out / "handbook") == before  # the live site is whole and unchanged
+    assert main(["run", str(ev), "--out", str(out), "--as-of", "2026-12-01"]) == 1
+    assert "2026-12-01" in (out / "handbook" / "index.html").read_text(encoding="utf-8")
+    assert list(out.glob(".handbook.new-*")) == []  # the next build cleared the killed one's leftovers
+
+
+def test_an_error_during_a_build_leaves_the_previous_site(tmp_path, pm, monkeypatch):
+    ev = _fleet(tmp_path / "ev")
+    out = tmp_path / "out"
+    ctx = runner.run(runner.RunOptions(ev), pm)
+    runner.publish(ctx, out)
+    before = _tree(out / "handbook")
+    calls = {"n": 0}
+    real = handbook.render_job
+
+    def failing(job: handbook.Job) -> dict[str, bytes]:
+        calls["n"] += 1
+        if calls["n"] == 3:
+            raise OSError("disk full (simulated)")
+        return real(job)
+
+    monkeypatch.setattr(handbook, "render_job", failing)
+    ctx = runner.run(runner.RunOptions(ev, overrides={"as_of": "2026-12-01"}), pm)
+    with pytest.raises(OSError):
+        runner.publish(ctx, out)
+    assert _tree(out / "handbook") == before
+
+
+# --- the sheet command, end to end --------------------------------------------------------------
+
+def test_sheet_command(tmp_path, capsys):
+    ev = _fleet(tmp_path / "ev")
+    html = tmp_path / "sheet.html"
+    assert main(["sheet", "T-CT1", "--evidence", str(ev), "--shunt", "250", "--html", str(html)]) == 0
+    out = capsys.readouterr().out
+    # class 0.5 on 16 mA is 0.08 mA (IEC 60688); 12.08 mA x 250 ohm = 3.02 V (Ohm's law)
+    assert "12.0800" in out and "3.0200" in out and "Cautions" in out
+    page = html.read_text(encoding="utf-8")
+    assert "Pass from (V)" in page and "3.0200" in page and _audit(page).external == []
+    assert _links(html) == []  # a page on its own: the style sheet is inside it, no links to a site
+    assert main(["sheet", "NOPE", "--evidence", str(ev)]) == 3
+    assert "NOPE" in capsys.readouterr().err
+    assert main(["sheet", "T-CT1", "--evidence", str(ev), "--meter", "NOPE"]) == 3
+
+
+# --- a real browser ------------------------------------------------------------------------------
+
+@pytest.mark.slow
+def test_in_headless_chromium(tmp_path):
+    from tests import cdp
+
+    exe = cdp.find_chromium()
+    if exe is None:
+        if os.environ.get("CI") == "true":
+            pytest.fail("CI=true but no Chromium found: install Debian's chromium package (.ci/run does)")
+        pytest.skip("no Chromium found: install Debian's chromium package to run the browser test")
+    ev = _fleet(tmp_path / "ev")
+    main(["run", str(ev), "--out", str(tmp_path / "out")])
+    site = (tmp_path / "out" / "handbook").resolve()
+    browser = cdp.Browser(exe, tmp_path / "profile")
+    try:
+        browser.goto(site.joinpath("index.html").as_uri())
+        assert browser.evaluate("document.querySelector('h1').textContent").startswith("Fleet status on 2026-11-30")
+        # the optional filter script narrows the asset tables
+        shown = browser.evaluate("(function(){var b=document.getElementById('filter'); b.value='T-CT2';"
+                                 "b.dispatchEvent(new Event('input'));"
+                                 "return document.querySelectorAll('[data-row]:not([hidden])').length;}())")
+        assert shown == 1
+        browser.screenshot(tmp_path / "index.png")
+        asset_url = browser.click("table.assets tr:not([hidden]) a[href^='assets/']")
+        assert asset_url.endswith(".html") and "/assets/" in asset_url
+        assert browser.evaluate("document.querySelector('figure.chart img').naturalWidth") > 0  # the SVG loaded
+        browser.screenshot(tmp_path / "asset.png")
+        test_url = browser.click("a[href^='../tests/']")
+        assert "/tests/" in test_url
+        assert "Test evidence" in browser.evaluate("document.querySelector('h1').textContent")
+        shot = browser.screenshot(tmp_path / "test.png")
+        assert shot.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+        assert browser.problems() == []
+        outside = [u for u in browser.requests()
+                   if not (u.startswith("file://") and Path(unquote(urlsplit(u).path)).resolve().is_relative_to(site))
+                   and not u.startswith("data:")]
+        assert outside == []
+    finally:
+        browser.close()
+
+
+def test_parallel_rendering_gives_the_same_bytes(tmp_path, run_folder, monkeypatch):
+    ctx = run_folder(_fleet(tmp_path / "ev"))
+    serial = handbook.build(ctx, tmp_path / "serial", workers=1)
+    monkeypatch.setattr(handbook, "PARALLEL_MIN", 1)
+    parallel = handbook.build(ctx, tmp_path / "parallel", workers=2)
+    assert serial.rendered == parallel.rendered == serial.pages
+    assert _tree(tmp_path / "serial") == _tree(tmp_path / "parallel")
+
+
+# --- accessibility ---------------------------------------------------------------------------------
+
+def _luminance(hex_colour: str) -> float:
+    """Relative luminance, WCAG 2.1 §1.4.3 definition (sRGB linearisation)."""
+    rgb = [int(hex_colour.lstrip("#")[i:i + 2], 16) / 255 for i in (0, 2, 4)]
+    lin = [c / 12.92 if c <= 0.04045 else ((c + 0.055) / 1.055) ** 2.4 for c in rgb]
+    return 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2]
+
+
+def _contrast(a: str, b: str) -> float:
+    hi, lo = sorted((_luminance(a), _luminance(b)), reverse=True)
+    return (hi + 0.05) / (lo + 0.05)
+
+
+def test_text_colours_pass_wcag_aa():
+    import importlib.resources
+    import re
+
+    css = importlib.resources.files("loopledger.site").joinpath("static/style.css").read_text(encoding="utf-8")
+    colours = dict(re.findall(r"--([a-z-]+):\s*(#[0-9a-fA-F]{6})", css))
+    # WCAG 2.1 reference values: black on white is 21:1
+    assert _contrast("#000000", "#ffffff") == pytest.approx(21.0)
+    backgrounds = [colours["paper"], colours["panel"], colours["flag-bg"], "#ffffff", "#fbeeee"]
+    for text in ("ink", "muted", "link", "pass", "fail", "warn", "accent"):
+        for bg in backgrounds:
+            assert _contrast(colours[text], bg) >= 4.5, (text, bg)  # AA for normal-size text
+
+
+def test_verdicts_are_words_not_only_colour(tmp_path, run_folder):
+    ctx = run_folder(_fleet(tmp_path / "ev"))
+    handbook.build(ctx, tmp_path / "site")
+    index = (tmp_path / "site" / "index.html").read_text(encoding="utf-8")
+    for word in ("Pass", "Fail", "Not tested", "Overdue"):
+        assert f"{word}</span>" in index
+    test_page = (tmp_path / "site" / "tests" / "b_two.html").read_text(encoding="utf-8")
+    assert '<th scope="col">Decision</th>' in test_page and 'alt="Chart of error against input.' in test_page
+
+
+def test_invalid_files_get_an_evidence_page_with_their_findings(tmp_path):
+    ev = _fleet(tmp_path / "ev", **{"c/bad.yaml": result_yaml(asset="T-CT3", as_found=[("50 %", "twelve mA")])})
+    assert main(["run", str(ev), "--out", str(tmp_path / "out")]) == 2
+    site = tmp_path / "out" / "handbook"
+    page = (site / "tests" / "c_bad.html").read_text(encoding="utf-8")
+    assert "Invalid file" in page and "twelve mA" in page and "line 12" in page
+    assert "could not be judged (1)" in (site / "index.html").read_text(encoding="utf-8")
+    assert "c_bad.html" in (site / "failures.html").read_text(encoding="utf-8")
+    assert (site / "files" / "results" / "c" / "bad.yaml").read_bytes() == (ev / "results/c/bad.yaml").read_bytes()

@@ -1,0 +1,64 @@
+"""Method comparison (plugins/method_compare.py): U and TUR with the other rig the registry allows.
+
+The alternative's U must equal the budget of a test actually read that way with the same
+output — so a direct test and a shunt test of the same readings cross-check each other. The
+2 V range's ±(0.05 %rdg + 2 digits) against the 20 mA range's ±(0.05 %rdg + 2 digits) at
+12.003 mA: 0.00080015 V × 10 mA/V = 0.0080015 mA against 0.0080015 mA of meter accuracy, plus the
+shunt's tolerance — so the shunt rig's U is the larger (arithmetic from the datasheet specs).
+"""
+
+from __future__ import annotations
+
+import copy
+
+import pandas as pd
+import pytest
+from loopledger.cli import main
+
+from tests.evidence import INSTRUMENTS, result_yaml, write_evidence
+
+RIG = copy.deepcopy(INSTRUMENTS)
+RIG["CAL-1"] = {"kind": "source", "range": "1 A", "accuracy": "0.01 %rdg"}
+
+
+def two_tests(tmp_path):
+    direct = result_yaml(as_found=[("50 %", "12.003 mA")], instruments={"source": "CAL-1", "meter": "DMM-1"})
+    shunt = result_yaml(method="shunt", date="2026-04-15", as_found=[("50 %", "1.2003 V")],
+                        instruments={"source": "CAL-1", "meter": "DMM-1", "shunt": "SH-100"})
+    return write_evidence(tmp_path / "ev", {"d.yaml": direct, "s.yaml": shunt}, instruments=RIG)
+
+
+def test_each_alternative_equals_the_budget_of_the_other_rig(tmp_path, run_folder):
+    ctx = run_folder(two_tests(tmp_path))
+    pts = ctx.points.set_index("method")
+    table = ctx.extras["method_comparison"].set_index("method")
+    assert table.at["shunt", "U"] == pytest.approx(pts.at["shunt", "U"], rel=1e-9)
+    assert table.at["direct", "U"] == pytest.approx(pts.at["direct", "U"], rel=1e-9)
+    assert pts.at["shunt", "U"] > pts.at["direct", "U"]
+    assert table.at["shunt", "tur"] == pytest.approx(pts.at["direct", "mpe"] / table.at["shunt", "U"])
+
+
+def test_cli_shows_the_comparison_on_the_test_page(tmp_path):
+    ev = two_tests(tmp_path)
+    out = tmp_path / "out"
+    assert main(["run", str(ev), "--out", str(out)]) == 0
+    table = pd.read_csv(out / "data" / "method_comparison.csv")
+    assert set(table["method"]) == {"direct", "shunt"}
+    pages = [p.read_text(encoding="utf-8") for p in (out / "handbook" / "tests").glob("*.html")]
+    assert all("Method comparison" in p for p in pages)
+
+
+def test_planned_rig_on_the_site_sheet(tmp_path, run_folder):
+    """A planned shunt rig gives the same U as the shunt test actually read (same budget)."""
+    ctx = run_folder(two_tests(tmp_path))
+    sections = [s for group in ctx.pm.hook.ll_sheet_sections(
+        ctx=ctx, asset="T-CT1", plan={"method": "shunt", "shunt_ohm": 100.0, "meter": "DMM-1",
+                                      "connection": "standalone"}) for s in group or [] if "TUR" in s.title]
+    assert len(sections) == 1
+    shunt_u = ctx.points.loc[ctx.points["method"] == "shunt", "U"].iloc[0]
+    row = sections[0].rows[0]
+    assert float(row[4]) == pytest.approx(shunt_u, rel=1e-3)
+    assert row[6] == ("yes" if float(row[5]) >= 4 else "no")
+    none = ctx.pm.hook.ll_sheet_sections(ctx=ctx, asset="T-CT1", plan={"method": "shunt", "shunt_ohm": 250.0,
+                                                                      "meter": "DMM-1", "connection": "standalone"})
+    assert not any("TUR" in s.title for group in none for s in group or [])
