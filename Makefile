@@ -26,14 +26,15 @@ demo: install
 	 test $$rc -le 1
 
 lint: install
-	$(VENV)/bin/ruff check pipeline plugins schemas tests
+	$(VENV)/bin/ruff check pipeline plugins schemas tests benchmarks
 	$(VENV)/bin/mypy
 
 test: lint
 	$(PY) -m pytest
 
+# Invented fleets of 200 and 2,000 assets x 10 years under build/bench; takes a while (see README).
 bench: install
-	$(PY) benchmarks/run.py
+	$(PY) benchmarks/run.py $(BENCH_ARGS)
 
 clean:
 	rm -rf build dist .pytest_cache .mypy_cache .ruff_cache

@@ -45,9 +45,42 @@ def build_parser() -> tuple[argparse.ArgumentParser, dict[str, object]]:
     return parser, runners
 
 
+class _Quiet(argparse.ArgumentParser):
+    """A parser for the no-change check that never prints: any problem defers to the full parser."""
+
+    def error(self, message: str) -> None:  # type: ignore[override]
+        raise ValueError(message)
+
+
+def replay(argv: list[str]) -> int | None:
+    """Answer ``run`` / ``check`` from the incremental cache when nothing changed (no heavy imports).
+
+    None means "do the full run" (something changed, no cache, or anything unusual).
+    """
+    from loopledger.commands import check, run
+
+    if not argv or argv[0] not in ("run", "check") or any(a in ("-h", "--help") for a in argv):
+        return None
+    module = run if argv[0] == "run" else check
+    parser = _Quiet(prog="loopledger", add_help=False)
+    module.add_arguments(parser)
+    try:
+        args = parser.parse_args(argv[1:])
+        return module.replay(args)
+    except Exception:  # a usage or configuration problem: the full path reports it properly
+        return None
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     from loopledger.config import ConfigError
 
+    argv = list(sys.argv[1:] if argv is None else argv)
+    try:
+        code = replay(argv)
+    except KeyboardInterrupt:
+        return 130
+    if code is not None:
+        return code
     parser, runners = build_parser()
     args = parser.parse_args(argv)
     if not args.command:

@@ -45,6 +45,12 @@ def load_config(evidence: Path, overrides: dict[str, Any] | None = None) -> dict
             raise ConfigError(f"{CONFIG_NAME}: {exc}") from exc
     if overrides:
         config = _merge(config, overrides)
+    limits = config.get("limits")
+    if not isinstance(limits, dict):
+        raise ConfigError(f"{CONFIG_NAME}: [limits] must be a table")
+    for key, value in limits.items():
+        if key in DEFAULTS["limits"] and (isinstance(value, bool) or not isinstance(value, int) or value < 1):
+            raise ConfigError(f"{CONFIG_NAME}: limits.{key} must be a whole number of at least 1, not {value!r}")
     as_of = config.get("as_of")
     if as_of is None:
         config["as_of"] = dt.date.today()

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import re
 from pathlib import Path
 
 from loopledger.contracts import SourceFile
@@ -12,8 +13,11 @@ RESULTS_DIR = "results"
 RESULT_SUFFIXES = (".yaml", ".yml", ".csv", ".xlsx")
 
 
+_CONTROL = re.compile(r"[\x00-\x1f\x7f]")
+
+
 def _bad_name(rel: str) -> bool:
-    return any(ord(ch) < 32 or ord(ch) == 127 for ch in rel)
+    return _CONTROL.search(rel) is not None
 
 
 def discover(evidence: Path) -> tuple[list[SourceFile], list[Finding]]:
@@ -23,9 +27,15 @@ def discover(evidence: Path) -> tuple[list[SourceFile], list[Finding]]:
     folder); each one is reported. Hidden files and folders are skipped.
     """
     root = evidence / RESULTS_DIR
-    findings: list[Finding] = []
     if not root.is_dir():
         return [], [warning(f"no '{RESULTS_DIR}/' folder in the evidence folder", file=RESULTS_DIR)]
+    found, findings = _walk(root, evidence)
+    found.sort(key=lambda s: s.rel)
+    return found, findings
+
+
+def _walk(root: Path, evidence: Path) -> tuple[list[SourceFile], list[Finding]]:
+    findings: list[Finding] = []
     found: list[SourceFile] = []
     for dirpath, dirnames, filenames in os.walk(root, followlinks=False):
         here = Path(dirpath)
@@ -55,15 +65,20 @@ def discover(evidence: Path) -> tuple[list[SourceFile], list[Finding]]:
                                       code="file-name"))
                 continue
             found.append(SourceFile(rel, path))
-    found.sort(key=lambda s: s.rel)
     return found, findings
 
 
 def select(evidence: Path, paths: list[Path]) -> tuple[list[SourceFile], list[Finding]]:
-    """The result files named on a command line (files, or folders searched like ``results/``)."""
+    """The result files named on a command line: files, or folders searched like ``results/``.
+
+    The evidence folder itself (or any folder above ``results/``) means its
+    ``results/``; registries and other files outside ``results/`` are never
+    taken for result files.
+    """
     findings: list[Finding] = []
     chosen: dict[str, SourceFile] = {}
     base = evidence.resolve()
+    results = base / RESULTS_DIR
     for given in paths:
         resolved = given.resolve() if not given.is_symlink() else given.absolute()
         try:
@@ -74,19 +89,24 @@ def select(evidence: Path, paths: list[Path]) -> tuple[list[SourceFile], list[Fi
         if given.is_symlink():
             findings.append(error("symbolic link is not followed", file=rel_path.as_posix(), code="symlink"))
         elif given.is_dir():
-            for sub, _ in [(given, None)]:
-                for dirpath, dirnames, filenames in os.walk(sub, followlinks=False):
-                    dirnames[:] = [d for d in dirnames if not d.startswith(".")
-                                   and not (Path(dirpath) / d).is_symlink()]
-                    for name in filenames:
-                        p = Path(dirpath) / name
-                        if name.startswith(".") or p.suffix.lower() not in RESULT_SUFFIXES or p.is_symlink():
-                            continue
-                        rel = p.resolve().relative_to(base).as_posix()
-                        chosen[rel] = SourceFile(rel, p)
+            if resolved == results or results in resolved.parents:
+                root = resolved
+            elif resolved in results.parents and results.is_dir():
+                root = results
+            else:
+                findings.append(warning(f"no result files here: not under {RESULTS_DIR}/", file=str(given)))
+                continue
+            found, more = _walk(root, base)
+            findings += more
+            chosen.update((s.rel, s) for s in found)
         elif given.is_file():
             rel = rel_path.as_posix()
+            if not rel.startswith(RESULTS_DIR + "/"):
+                findings.append(error(f"not a result file: result files live under {RESULTS_DIR}/", file=rel,
+                                      code="not-a-result"))
+                continue
             chosen[rel] = SourceFile(rel, given)
         else:
             findings.append(error("no such file", file=str(given)))
-    return sorted(chosen.values(), key=lambda s: s.rel), findings
+    unique = {f.format(): f for f in findings}
+    return sorted(chosen.values(), key=lambda s: s.rel), list(unique.values())

@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 import hashlib
+import os
 from collections.abc import Callable, Iterable
+from pathlib import Path
 from typing import Any
 
 import pandas as pd
@@ -23,9 +25,28 @@ def test_id(rel: str) -> str:
     return stem.rsplit(".", 1)[0] if "." in stem.rsplit("/", 1)[-1] else stem
 
 
+def read_bounded(path: Path, limit: int) -> bytes:
+    """The file's bytes, refusing (ValueError) a file over ``limit`` bytes without reading it all."""
+    with open(path, "rb") as fh:
+        size = os.fstat(fh.fileno()).st_size
+        data = fh.read(limit + 1) if size <= limit else b""
+    if size > limit or len(data) > limit:
+        raise ValueError(f"file is {max(size, len(data)):,} bytes, over the limit of {limit:,} "
+                         "(limits.max_file_bytes in loopledger.toml)")
+    return data
+
+
 def read_files(ctx: Any, files: Iterable[SourceFile],
-               progress: Callable[[int], None] | None = None) -> list[Finding]:
-    """Fill ``ctx.tests`` and ``ctx.points`` from ``files``; return the findings met on the way."""
+               progress: Callable[[int], None] | None = None,
+               parsed: dict[tuple[str, str], Any] | None = None) -> list[Finding]:
+    """Fill ``ctx.tests`` and ``ctx.points`` from ``files``; return the findings met on the way.
+
+    ``parsed`` (the incremental cache) maps (path, sha256) to a file already
+    read; a file found there is not parsed again. On return it holds exactly
+    the files of this run.
+    """
+    previous = dict(parsed) if parsed is not None else {}
+    kept: dict[tuple[str, str], Any] = {}
     limits = ctx.config["limits"]
     findings: list[Finding] = []
     tests: list[dict[str, Any]] = []
@@ -38,18 +59,25 @@ def read_files(ctx: Any, files: Iterable[SourceFile],
         if progress:
             progress(1)
         try:
-            size = source.path.stat().st_size
-            if size > limits["max_file_bytes"]:
-                raise ValueError(f"file is {size:,} bytes, over the limit of {limits['max_file_bytes']:,} "
-                                 "(limits.max_file_bytes in loopledger.toml)")
-            data = source.path.read_bytes()
+            data = read_bounded(source.path, int(limits["max_file_bytes"]))
         except (OSError, ValueError) as exc:
             findings.append(error(f"cannot read: {exc}", file=source.rel, code="unreadable"))
             row["valid"] = False
             continue
         row["sha256"] = hashlib.sha256(data).hexdigest()
         ctx.raw_files[source.rel] = data
-        read = ctx.pm.hook.ll_read_result(path=source.path, rel=source.rel, data=data)
+        key = (source.rel, row["sha256"])
+        try:
+            read = previous.get(key)
+            if read is None:
+                read = ctx.pm.hook.ll_read_result(path=source.path, rel=source.rel, data=data)
+            if read is not None:
+                kept[key] = read
+        except Exception as exc:  # a reader plugin's bug must not stop the other files
+            findings.append(error(f"the reader failed on this file ({type(exc).__name__}: {exc}); this is a "
+                                  "bug in a reader plugin, please report it", file=source.rel, code="reader"))
+            row["valid"] = False
+            continue
         if read is None:
             findings.append(error("no plugin reads this kind of file", file=source.rel, code="format"))
             row["valid"] = False
@@ -65,9 +93,20 @@ def read_files(ctx: Any, files: Iterable[SourceFile],
                                   "(limits.max_points)", file=source.rel, code="too-many"))
             row["valid"] = False
             continue
+        repeats = [p for p in read.points if len(p.get("readings") or ()) > limits["max_repeats"]]
+        if repeats:
+            findings += [error(f"{len(p['readings'])} repeat readings is over the limit of {limits['max_repeats']} "
+                               "(limits.max_repeats)", file=source.rel, line=int(p.get("line") or 0),
+                               point=f"{p.get('phase')} #{p.get('point')}", field="readings", code="too-many")
+                         for p in repeats]
+            row["valid"] = False
+            continue
         for point in read.points:
             points.append({"test": row["test"], "source_file": source.rel,
                            **{k: point.get(k) for k in ("line", "phase", "point", *POINT_FIELDS)}})
+    if parsed is not None:
+        parsed.clear()
+        parsed.update(kept)
     ctx.tests = pd.DataFrame(tests, columns=list(TEST_COLUMNS))
     ctx.points = pd.DataFrame(points, columns=list(POINT_COLUMNS))
     ctx.extras["header_lines"] = header_lines

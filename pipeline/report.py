@@ -5,6 +5,7 @@ from __future__ import annotations
 from collections.abc import Callable
 from typing import TextIO
 
+import pandas as pd
 from loopledger.context import RunContext
 from loopledger.findings import Finding
 from rich.console import Console
@@ -59,6 +60,30 @@ def print_lines(findings: list[Finding], stream: TextIO) -> None:
         stream.write(f.format() + "\n")
 
 
+#: rows of the "needing attention" table shown without --verbose
+TABLE_ROWS = 50
+
+
+def _worst_points(ctx: RunContext, problems: pd.DataFrame) -> pd.DataFrame:
+    """Per failing test: how many points of its final phase are outside tolerance, and the worst |error|.
+
+    One grouped pass over the point table (a mask per test was quadratic in a large fleet).
+    """
+    pts = ctx.points
+    if pts.empty or "decision" not in pts:
+        return pd.DataFrame(columns=["n", "worst"])
+    final = problems.set_index("test")["as_left"].map(lambda v: "as_left" if v else "as_found")
+    outside = pts[(pts["decision"] != "pass") & pts["test"].isin(final.index)]
+    outside = outside[outside["phase"].to_numpy() == outside["test"].map(final).to_numpy()]
+    return outside.groupby("test").agg(n=("error_pct_span", "size"),
+                                       worst=("error_pct_span", lambda v: v.abs().max()))
+
+
+def _more(console: Console, hidden: int, what: str) -> None:
+    if hidden > 0:
+        console.print(f"  … {hidden} more {what} (use --verbose, or see data/tests.csv)")
+
+
 def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None:
     tests = ctx.tests
     counts = tests["verdict"].value_counts().to_dict() if not tests.empty else {}
@@ -75,13 +100,15 @@ def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None
         table = Table(title="Assets whose latest test failed", title_justify="left")
         for col in ("asset", "date", "test", "why"):
             table.add_column(col, overflow="fold")
-        for row in failing.itertuples():
-            pts = ctx.points[(ctx.points["test"] == row.test) & (ctx.points["decision"] != "pass")]
-            last = pts[pts["phase"] == ("as_left" if row.as_left else "as_found")]
-            worst = last["error_pct_span"].abs().max()
+        shown_rows = failing if verbose else failing.head(TABLE_ROWS)
+        worst = _worst_points(ctx, shown_rows)
+        for row in shown_rows.itertuples():
+            n, pct = (worst.loc[row.test, "n"], worst.loc[row.test, "worst"]) if row.test in worst.index \
+                else (0, float("nan"))
             table.add_row(str(row.asset), str(row.date), str(row.test),
-                          f"{len(last)} point(s) outside ±MPE, worst {worst:.3g} % of span")
+                          f"{int(n)} point(s) outside ±MPE, worst {pct:.3g} % of span")
         console.print(table)
+        _more(console, len(failing) - len(shown_rows), "assets whose latest test failed")
     if earlier > 0:
         console.print(f"  {earlier} earlier test(s) failed and were followed by later tests (see the handbook)")
     errors: dict[str, str] = {}
@@ -93,14 +120,16 @@ def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None
         table = Table(title="Result files that could not be judged", title_justify="left")
         table.add_column("file", overflow="fold")
         table.add_column("first problem", overflow="fold")
-        for row in invalid.itertuples():
+        shown_invalid = invalid if verbose else invalid.head(TABLE_ROWS)
+        for row in shown_invalid.itertuples():
             table.add_row(row.source_file, errors.get(row.source_file, ""))
         console.print(table)
+        _more(console, len(invalid) - len(shown_invalid), "files that could not be judged")
     shown = [f for f in ctx.findings if verbose or f.severity != "note"]
     other = [f for f in shown if f.severity == "warning" or not f.file]
     if other:
         console.print(f"[bold]{len(other)} warning(s) and registry finding(s):[/]")
         for f in other[: 40 if not verbose else None]:
-            console.print("  " + f.format(), markup=False, highlight=False)
+            console.print("  " + f.format(), markup=False, highlight=False, soft_wrap=True)
         if len(other) > 40 and not verbose:
             console.print(f"  … {len(other) - 40} more (use --verbose, or see data/tests.csv)")

@@ -25,6 +25,8 @@ class RunOptions:
     files: list[Path] | None = None  # None: everything under results/
     overrides: dict[str, Any] | None = None
     progress: Callable[[int, int], Callable[[int], None]] | None = None
+    #: parsed result files by (path, sha256), read and refreshed in place (the incremental cache)
+    parsed: dict[tuple[str, str], Any] | None = None
 
 
 def _stamp(findings: list[Finding], stage: str) -> list[Finding]:
@@ -96,21 +98,33 @@ def run(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
         files, found = disc.select(opts.evidence, opts.files)
     ctx.findings += _stamp(found, "discover")
     tick = opts.progress(len(files), 0) if opts.progress else None
-    ctx.findings += _stamp(read_files(ctx, files, tick), "load")
+    ctx.findings += _stamp(read_files(ctx, files, tick, parsed=opts.parsed), "load")
     run_stages(ctx)
     return ctx
 
 
+def file_hashes(ctx: RunContext) -> dict[str, str]:
+    """SHA-256 of every result file as it was read, by path (for the incremental manifest)."""
+    if ctx.tests.empty:
+        return {}
+    known = ctx.tests[ctx.tests["sha256"].astype(bool)]
+    return dict(zip(known["source_file"], known["sha256"], strict=True))
+
+
 def export(ctx: RunContext, out: Path) -> list[Path]:
-    """Write every table the plugins export to ``out/data/NAME.csv`` (each atomically)."""
-    from loopledger.output import write_csv
+    """Write every table the plugins export to ``out/data/NAME.csv``.
+
+    The tables are written into a staging folder swapped in whole, so data/
+    always holds the tables of one complete run.
+    """
+    from loopledger.output import staged_dir, write_csv
 
     written = []
-    for tables in ctx.pm.hook.ll_export_tables(ctx=ctx):
-        for name, frame in (tables or {}).items():
-            path = out / "data" / f"{name}.csv"
-            write_csv(path, frame)
-            written.append(path)
+    with staged_dir(out / "data") as folder:
+        for tables in ctx.pm.hook.ll_export_tables(ctx=ctx):
+            for name, frame in (tables or {}).items():
+                write_csv(folder / f"{name}.csv", frame)
+                written.append(out / "data" / f"{name}.csv")
     return written
 
 

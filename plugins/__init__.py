@@ -35,5 +35,6 @@ BUILTIN: tuple[str, ...] = (
     "traceability",
     "export_csv",
     "handbook",
+    "synth",
     "plugin_list",
 )

@@ -9,11 +9,11 @@ their unit from ``input_unit`` / ``reading_unit`` columns.
 
 from __future__ import annotations
 
+import csv
 import io
 from pathlib import Path
 from typing import Any
 
-import pandas as pd
 from loopledger.contracts import ResultRead
 from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl
@@ -24,54 +24,89 @@ UNIT_COLUMNS = {"input_unit": ("input",), "reading_unit": ("reading", "reading_m
 KNOWN = {*HEADER_FIELDS, *POINT_FIELDS, "phase", *UNIT_COLUMNS}
 
 
-def _frame(path: Path, data: bytes) -> pd.DataFrame:
+Table = tuple[list[str], list[tuple[int, list[str]]]]  # column names, (line, cells) per row
+
+
+def _table(path: Path, data: bytes) -> Table:
+    """Column names and rows (with their 1-based line) as text; plain Python, no per-file DataFrame."""
     if path.suffix.lower() == ".xlsx":
-        frame = pd.read_excel(io.BytesIO(data), dtype=str, engine="openpyxl")
-        return frame.fillna("")
+        import pandas as pd
+
+        frame = pd.read_excel(io.BytesIO(data), dtype=str, engine="openpyxl").fillna("")
+        return [str(c) for c in frame.columns], [(i + 2, [str(v) for v in row])
+                                                 for i, row in enumerate(frame.itertuples(index=False))]
     text = decode(data)
-    return pd.read_csv(io.StringIO(text), dtype=str, keep_default_na=False, skipinitialspace=True)
+    reader = csv.reader(io.StringIO(text), skipinitialspace=True)
+    header = next(reader, None)
+    if header is None:
+        return [], []
+    rows: list[tuple[int, list[str]]] = []
+    start = 2
+    for cells in reader:
+        if cells and len(cells) != len(header):
+            raise RaggedRow(start, len(cells), len(header))
+        if cells:
+            rows.append((start, cells))
+        start = reader.line_num + 1
+    return header, rows
 
 
-def parse(frame: pd.DataFrame, rel: str) -> ResultRead:
+class RaggedRow(ValueError):
+    """A row longer or shorter than the header (a reader that shifted or dropped cells would invent data)."""
+
+    def __init__(self, line: int, cells: int, header: int) -> None:
+        super().__init__(f"row has {cells} cells but the header row has {header}")
+        self.line = line
+
+
+def parse(table: Table, rel: str) -> ResultRead:
     findings: list[Finding] = []
-    frame.columns = [str(c).strip() for c in frame.columns]
-    for col in frame.columns:
+    columns = [c.strip() for c in table[0]]
+    rows = table[1]
+    seen: set[str] = set()
+    for col in columns:
+        if col in seen:
+            return ResultRead({}, [], findings=[*findings, error(f"column '{col}' appears twice", file=rel,
+                                                                 line=1, field=col)])
+        seen.add(col)
         if col not in KNOWN:
             findings.append(warning(f"unknown column '{col}' ignored", file=rel, line=1, field=col))
-    if frame.empty:
+    if not rows:
         return ResultRead({}, [], findings=[*findings, error("no rows", file=rel, line=1)])
+    at = {c: i for i, c in enumerate(columns)}
     header: dict[str, Any] = {}
     header_lines: dict[str, int] = {}
     for name in HEADER_FIELDS:
-        if name not in frame.columns:
+        if name not in at:
             continue
-        values = frame[name].astype(str).str.strip()
-        filled = values[values != ""]
-        if filled.nunique() > 1:
-            row = int(filled.index[(filled != filled.iloc[0]).to_numpy()][0])
-            findings.append(error(f"'{name}' must be the same on every row of a test (found "
-                                  f"'{filled.iloc[0]}' and '{filled[row]}')", file=rel, line=row + 2, field=name))
-        if not filled.empty:
-            header[name] = filled.iloc[0]
-            header_lines[name] = int(filled.index[0]) + 2
-    if "phase" not in frame.columns:
+        i = at[name]
+        filled = [(line, cells[i].strip()) for line, cells in rows if cells[i].strip()]
+        if not filled:
+            continue
+        first_line, first = filled[0]
+        other = next(((line, v) for line, v in filled if v != first), None)
+        if other is not None:
+            findings.append(error(f"'{name}' must be the same on every row of a test (found '{first}' and "
+                                  f"'{other[1]}')", file=rel, line=other[0], field=name))
+        header[name] = first
+        header_lines[name] = first_line
+    if "phase" not in at:
         return ResultRead(header, [], header_lines, [*findings, error("missing column 'phase' (as_found | as_left)",
                                                                       file=rel, line=1, field="phase")])
+    fields = [(name, at[name], at.get(next((u for u, cols in UNIT_COLUMNS.items() if name in cols), ""), -1))
+              for name in POINT_FIELDS if name in at]
     points: list[dict[str, Any]] = []
     counters: dict[str, int] = {}
-    for idx, row in frame.iterrows():
-        line = int(str(idx)) + 2
-        phase = str(row["phase"]).strip()
+    phase_at = at["phase"]
+    for line, cells in rows:
+        phase = cells[phase_at].strip()
         counters[phase] = counters.get(phase, 0) + 1
         point: dict[str, Any] = {"line": line, "phase": phase, "point": counters[phase]}
-        for name in POINT_FIELDS:
-            if name not in frame.columns:
-                continue
-            value = str(row[name]).strip()
+        for name, i, unit_at in fields:
+            value = cells[i].strip()
             if not value:
                 continue
-            unit_col = next((u for u, cols in UNIT_COLUMNS.items() if name in cols), None)
-            unit = str(row[unit_col]).strip() if unit_col and unit_col in frame.columns else ""
+            unit = cells[unit_at].strip() if unit_at >= 0 else ""
             if name == "readings":
                 parts = [p.strip() for p in value.split(";") if p.strip()]
                 point[name] = tuple(f"{p} {unit}".strip() if unit else p for p in parts)
@@ -86,9 +121,11 @@ def ll_read_result(path: Path, rel: str, data: bytes) -> ResultRead | None:
     if path.suffix.lower() not in (".csv", ".xlsx"):
         return None
     try:
-        frame = _frame(path, data)
+        table = _table(path, data)
+    except RaggedRow as exc:
+        return ResultRead({}, [], findings=[error(str(exc), file=rel, line=exc.line, code="table")])
     except ValueError as exc:
         return ResultRead({}, [], findings=[error(str(exc), file=rel, code="encoding")])
     except Exception as exc:  # pandas and openpyxl raise many kinds for a damaged file
         return ResultRead({}, [], findings=[error(f"cannot read the table: {exc}", file=rel, code="table")])
-    return parse(frame, rel)
+    return parse(table, rel)

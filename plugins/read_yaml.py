@@ -14,9 +14,29 @@ from loopledger.load import HEADER_FIELDS, POINT_FIELDS
 from loopledger.plugins._text import decode
 
 try:
-    Loader: Any = yaml.CSafeLoader
+    _Base: Any = yaml.CSafeLoader
 except AttributeError:  # PyYAML built without libyaml
-    Loader = yaml.SafeLoader
+    _Base = yaml.SafeLoader
+
+_TIMESTAMP = "tag:yaml.org,2002:timestamp"
+
+
+class Loader(_Base):  # type: ignore[misc,valid-type]
+    """Safe loading (no tag builds an object), and dates stay text.
+
+    Plain ``2026-02-30`` is left as a string so the schema check reports an
+    impossible date against its field and line instead of the YAML layer
+    failing on the whole file.
+    """
+
+
+Loader.yaml_implicit_resolvers = {
+    first: [(tag, rx) for tag, rx in resolvers if tag != _TIMESTAMP]
+    for first, resolvers in _Base.yaml_implicit_resolvers.items()
+}
+
+#: node visits allowed when a document uses anchors (aliases re-visit what they point at)
+MAX_NODES = 20_000
 
 PHASES = ("as_found", "as_left")
 INSTRUMENT_ROLES = ("source", "meter", "shunt")
@@ -27,10 +47,35 @@ def _line(node: yaml.Node) -> int:
     return int(node.start_mark.line) + 1
 
 
+class AliasBomb(ValueError):
+    """A document whose aliases expand beyond :data:`MAX_NODES` nodes."""
+
+
+def _expanded_size(node: yaml.Node, budget: int) -> int:
+    """Nodes visited when every alias is expanded, counting up to ``budget`` + 1 (cycles stop there)."""
+    seen = 0
+    stack = [node]
+    while stack:
+        seen += 1
+        if seen > budget:
+            return seen
+        item = stack.pop()
+        if isinstance(item, yaml.SequenceNode):
+            stack.extend(item.value)
+        elif isinstance(item, yaml.MappingNode):
+            for key, value in item.value:
+                stack.append(key)
+                stack.append(value)
+    return seen
+
+
 def _compose(text: str) -> tuple[Any, yaml.Node | None]:
     loader = Loader(text)
     try:
         node = loader.get_single_node()
+        if node is not None and "&" in text and _expanded_size(node, MAX_NODES) > MAX_NODES:
+            raise AliasBomb(f"YAML anchors and aliases expand to more than {MAX_NODES:,} values (an alias "
+                            "bomb?); write the values out")
         return (loader.construct_document(node) if node is not None else None), node
     finally:
         loader.dispose()
@@ -52,7 +97,9 @@ def parse(text: str, rel: str) -> ResultRead:
         problem = getattr(exc, "problem", None) or str(exc).splitlines()[0]
         return ResultRead({}, [], findings=[error(f"YAML cannot be read: {problem}", file=rel, line=line,
                                                   code="yaml")])
-    except ValueError as exc:  # e.g. an impossible date such as 2026-02-30
+    except AliasBomb as exc:
+        return ResultRead({}, [], findings=[error(str(exc), file=rel, code="yaml-alias")])
+    except ValueError as exc:  # e.g. an explicit !!timestamp that is not a date
         return ResultRead({}, [], findings=[error(f"YAML value cannot be read: {exc}", file=rel, code="yaml")])
     if not isinstance(doc, dict) or node is None:
         return ResultRead({}, [], findings=[error("expected a mapping of test fields (asset, date, ...)",

@@ -66,6 +66,8 @@ def _day(value: object) -> str:
 
 def describe(table: pd.DataFrame) -> pd.Series:
     """One sentence per (test, role) row whose status is not ok ('' where it is)."""
+    if table.empty:  # e.g. every file invalid: the date columns are then not datetimes
+        return pd.Series([], index=table.index, dtype=object)
     who = table["role"].astype(str) + " " + table["instrument"].astype(str)
     due = table["due"].dt.strftime("%Y-%m-%d")
     cal = table["calibrated"].dt.strftime("%Y-%m-%d")

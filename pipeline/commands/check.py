@@ -1,4 +1,9 @@
-"""``loopledger check FILE...``: validate and judge result files, pre-commit style, no handbook."""
+"""``loopledger check PATH...``: validate and judge result files or folders, pre-commit style, no handbook.
+
+Folders are searched like ``results/`` (an evidence folder itself means its
+``results/``). With ``--cache DIR`` an unchanged rerun is answered from the
+cache manifest without importing pandas.
+"""
 
 from __future__ import annotations
 
@@ -6,22 +11,25 @@ import argparse
 import sys
 from pathlib import Path
 
-from loopledger import report, runner
-from loopledger.config import ConfigError
-from loopledger.findings import sort_findings
-from loopledger.host import get_plugin_manager
-from loopledger.registry import ASSETS
+from loopledger import incremental
+
+ASSETS = "assets.csv"  # the registry file that marks an evidence folder (loopledger.registry.ASSETS)
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
+    from loopledger.commands.run import add_cache_arguments
+
     parser.add_argument("paths", nargs="+", type=Path, help="result files or folders")
     parser.add_argument("--evidence", type=Path,
                         help="the evidence folder (default: the nearest parent holding assets.csv)")
     parser.add_argument("--as-of", dest="as_of", help="judge on this date (YYYY-MM-DD)")
     parser.add_argument("--rule", help="decision rule, overriding loopledger.toml")
+    add_cache_arguments(parser, default="none: check keeps no cache unless given one")
 
 
 def find_evidence(paths: list[Path]) -> Path:
+    from loopledger.config import ConfigError
+
     start = paths[0].resolve()
     for folder in [start, *start.parents]:
         if (folder / ASSETS).is_file():
@@ -29,12 +37,42 @@ def find_evidence(paths: list[Path]) -> Path:
     raise ConfigError(f"no {ASSETS} above '{paths[0]}': name the evidence folder with --evidence")
 
 
-def main(args: argparse.Namespace) -> int:
-    from loopledger.commands.run import overrides
+def cache_for(args: argparse.Namespace) -> incremental.Cache | None:
+    from loopledger.commands.run import make_cache
 
-    evidence = args.evidence or find_evidence(args.paths)
+    args.evidence = args.evidence or find_evidence(args.paths)
+    paths = sorted(str(p.resolve()) for p in args.paths)
+    return make_cache(args, "check", args.cache, [], paths=paths)
+
+
+def replay(args: argparse.Namespace) -> int | None:
+    if args.cache is None or args.no_cache:
+        return None
+    try:
+        cache = cache_for(args)
+    except Exception:  # let the full path report it properly
+        return None
+    return cache.replay(args.evidence, sys.stdout) if cache is not None else None
+
+
+def main(args: argparse.Namespace) -> int:
+    from loopledger.commands.run import cached
+
+    return cached(args, cache_for(args), _full)
+
+
+def _full(args: argparse.Namespace, cache: incremental.Cache | None) -> tuple[int, dict[str, str]]:
+    from loopledger import report, runner
+    from loopledger.commands.run import overrides
+    from loopledger.findings import sort_findings
+    from loopledger.host import get_plugin_manager
+
     pm = get_plugin_manager()
-    ctx = runner.run(runner.RunOptions(evidence, files=list(args.paths), overrides=overrides(args)), pm)
+    parsed = cache.load_parsed() if cache is not None else None
+    ctx = runner.run(runner.RunOptions(args.evidence, files=list(args.paths), overrides=overrides(args),
+                                       parsed=parsed), pm)
+    if cache is not None and parsed is not None:
+        cache.save_parsed(parsed)
     findings = sort_findings([*ctx.findings, *report.point_findings(ctx)])
     report.print_lines([f for f in findings if f.severity != "note"], sys.stdout)
     code = runner.exit_code(ctx)
@@ -42,4 +80,4 @@ def main(args: argparse.Namespace) -> int:
     sys.stdout.write(f"loopledger check: {n} file(s), "
                      f"{int((ctx.tests.get('verdict') == 'fail').sum()) if n else 0} failing, "
                      f"{int((~ctx.tests['valid'].astype(bool)).sum()) if n else 0} invalid\n")
-    return code
+    return code, runner.file_hashes(ctx)

@@ -1,14 +1,18 @@
-"""``loopledger run EVIDENCE_DIR --out OUT``: judge every result file, export tables, publish the handbook."""
+"""``loopledger run EVIDENCE_DIR --out OUT``: judge every result file, export tables, publish the handbook.
+
+Imports stay light at module level: an unchanged rerun is answered from the
+cache manifest (:mod:`loopledger.incremental`) before pandas is ever imported.
+"""
 
 from __future__ import annotations
 
 import argparse
 import sys
+from collections.abc import Callable
 from pathlib import Path
+from typing import Any
 
-from loopledger import report, runner
-from loopledger.host import get_plugin_manager
-from rich.console import Console
+from loopledger import incremental
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -18,6 +22,15 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--rule", help="decision rule, overriding loopledger.toml")
     parser.add_argument("--no-handbook", action="store_true", help="write data/ only")
     parser.add_argument("--verbose", "-v", action="store_true", help="show every finding")
+    add_cache_arguments(parser, default="OUT/.loopledger-cache")
+
+
+def add_cache_arguments(parser: argparse.ArgumentParser, default: str) -> None:
+    parser.add_argument("--cache", type=Path, metavar="DIR",
+                        help=f"folder for the incremental-run cache (default: {default}; never inside the "
+                             "evidence folder)")
+    parser.add_argument("--no-cache", dest="no_cache", action="store_true",
+                        help="read and judge everything; neither use nor write the cache")
 
 
 def overrides(args: argparse.Namespace) -> dict[str, object]:
@@ -29,14 +42,85 @@ def overrides(args: argparse.Namespace) -> dict[str, object]:
     return out
 
 
+def outside_evidence(evidence: Path, path: Path, what: str) -> Path:
+    """``path`` resolved; a ConfigError when it lies inside the evidence folder."""
+    from loopledger.config import ConfigError
+
+    ev = evidence.resolve()
+    resolved = path.resolve()
+    if resolved == ev or ev in resolved.parents:
+        raise ConfigError(f"{what} '{resolved}' is inside the evidence folder; outputs never go there")
+    return resolved
+
+
+def make_cache(args: argparse.Namespace, command: str, folder: Path | None, outputs: list[Path],
+               **key: Any) -> incremental.Cache | None:
+    """The cache for this invocation, or None (``--no-cache``, or no folder to keep one in)."""
+    if getattr(args, "no_cache", False) or folder is None:
+        return None
+    evidence = args.evidence.resolve()
+    folder = outside_evidence(evidence, folder, "--cache")
+    full_key = {"command": command, "evidence": str(evidence), "as_of": incremental.effective_as_of(
+        evidence, getattr(args, "as_of", None)), "rule": getattr(args, "rule", None),
+        "engine": incremental.engine_fingerprint(), **key}
+    return incremental.Cache(folder, full_key, outputs)
+
+
+def cache_for(args: argparse.Namespace) -> incremental.Cache | None:
+    out = outside_evidence(args.evidence, args.out, "--out")
+    outputs = [out / "data" / "tests.csv", out / "data" / "points.csv"]
+    if not args.no_handbook:
+        outputs.append(out / "handbook" / "index.html")
+    return make_cache(args, "run", args.cache or out / incremental.CACHE_NAME, outputs, out=str(out),
+                      handbook=not args.no_handbook, verbose=bool(args.verbose))
+
+
+def replay(args: argparse.Namespace) -> int | None:
+    """The previous run's exit code (its summary reprinted) when nothing changed; else None."""
+    if not args.evidence.is_dir():
+        return None
+    cache = cache_for(args)
+    return cache.replay(args.evidence, sys.stdout) if cache is not None else None
+
+
 def main(args: argparse.Namespace) -> int:
+    if not args.evidence.is_dir():
+        from loopledger.config import ConfigError
+
+        raise ConfigError(f"evidence folder '{args.evidence}' does not exist")
+    return cached(args, cache_for(args), _full)
+
+
+def cached(args: argparse.Namespace, cache: incremental.Cache | None,
+           full: Callable[[argparse.Namespace, incremental.Cache | None], tuple[int, dict[str, str]]]) -> int:
+    """Replay when nothing changed; else forget the manifest, do the ``full`` work and record it."""
+    if cache is not None:
+        code = cache.replay(args.evidence, sys.stdout)
+        if code is not None:
+            return code
+        cache.invalidate()
+        cache.inputs = incremental.scan_inputs(args.evidence)  # stats before anything is read
+    with incremental.capture_stdout() as tee:
+        code, hashes = full(args, cache)
+    if cache is not None:
+        cache.save(args.evidence, hashes, tee.copy.getvalue(), code)
+    return code
+
+
+def _full(args: argparse.Namespace, cache: incremental.Cache | None) -> tuple[int, dict[str, str]]:
+    from loopledger import report, runner
+    from loopledger.host import get_plugin_manager
+    from rich.console import Console
+
     console = Console(stderr=False, width=None if sys.stdout.isatty() else 120)
     pm = get_plugin_manager()
+    out = outside_evidence(args.evidence, args.out, "--out")
+    parsed = cache.load_parsed() if cache is not None else None
     opts = runner.RunOptions(args.evidence, overrides=overrides(args),
-                             progress=report.progress_factory(Console(stderr=True)))
+                             progress=report.progress_factory(Console(stderr=True)), parsed=parsed)
     ctx = runner.run(opts, pm)
-    out = args.out.resolve()
-    _guard_out(args.evidence, out)
+    if cache is not None and parsed is not None:
+        cache.save_parsed(parsed)
     runner.export(ctx, out)
     if not args.no_handbook:
         runner.publish(ctx, out)
@@ -45,19 +129,11 @@ def main(args: argparse.Namespace) -> int:
     if errors:
         console.print(f"[bold red]{len(errors)} error(s) in the evidence:[/]")
         for f in errors[: 60 if not args.verbose else None]:
-            console.print("  " + f.format(), markup=False, highlight=False)
+            console.print("  " + f.format(), markup=False, highlight=False, soft_wrap=True)
         if len(errors) > 60 and not args.verbose:
             console.print(f"  … {len(errors) - 60} more (use --verbose, or see data/tests.csv)")
     code = runner.exit_code(ctx)
     console.print(f"Tables: {out / 'data'}" + ("" if args.no_handbook else
                                               f"\nHandbook: {out / 'handbook' / 'index.html'}"))
     sys.stdout.flush()
-    return code
-
-
-def _guard_out(evidence: Path, out: Path) -> None:
-    from loopledger.config import ConfigError
-
-    ev = evidence.resolve()
-    if out == ev or ev in out.parents:
-        raise ConfigError(f"--out '{out}' is inside the evidence folder; outputs never go there")
+    return code, runner.file_hashes(ctx)

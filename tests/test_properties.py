@@ -1,0 +1,126 @@
+"""Property-based tests (hypothesis) of the readers and the computations.
+
+Properties, and where each comes from:
+- a record written as YAML and as CSV reads back the same (the two formats carry the same fields:
+  README's result-file formats);
+- a linear or square-root characteristic gives an output that never decreases as the input rises
+  (the definition of those transfer functions; square-root extraction for differential-pressure
+  flow is common practice), checked against numpy's own sqrt;
+- the error is zero when the reading equals the expected output (error = measured − expected,
+  the definition in ILAC-G8:2019 / JCGM 200:2012 2.16 "measurement error");
+- no valid record makes a stage raise, and every valid record is judged.
+Records are invented (plumbing fixtures), never reference values.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import tempfile
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+from loopledger import runner
+from loopledger.host import get_plugin_manager
+from loopledger.plugins import read_table, read_yaml, scaling
+
+from tests.evidence import CT_ASSET, result_yaml, write_evidence
+
+SETTINGS = settings(max_examples=20, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+
+text = st.text(alphabet=st.characters(categories=("L", "N"), include_characters=" .-'"), min_size=1,
+               max_size=20).map(str.strip).filter(bool)
+pcts = st.lists(st.integers(0, 100), min_size=1, max_size=8, unique=True).map(sorted)
+ma = st.floats(3.5, 21.0, allow_nan=False).map(lambda v: f"{v:.4f} mA")
+
+
+@st.composite
+def records(draw: st.DrawFn) -> dict[str, object]:
+    found = [(f"{p} %", draw(ma)) for p in draw(pcts)]
+    left = [(f"{p} %", draw(ma)) for p in draw(pcts)] if draw(st.booleans()) else None
+    return {"technician": draw(text), "date": f"20{draw(st.integers(10, 25)):02d}-"
+            f"{draw(st.integers(1, 12)):02d}-{draw(st.integers(1, 28)):02d}",
+            "ambient_c": draw(st.floats(-20, 50, allow_nan=False).map(lambda v: round(v, 1))),
+            "as_found": found, "as_left": left}
+
+
+def _as_csv(read: object) -> str:
+    header = read.header  # type: ignore[attr-defined]
+    out = io.StringIO()
+    fields = ["asset", "date", "technician", "connection", "method", "injection", "ambient_c", "source", "meter",
+              "phase", "input", "reading"]
+    writer = csv.DictWriter(out, fieldnames=fields, lineterminator="\n")
+    writer.writeheader()
+    for p in read.points:  # type: ignore[attr-defined]
+        writer.writerow({**{k: header.get(k, "") for k in fields}, "phase": p["phase"], "input": p["input"],
+                         "reading": p["reading"]})
+    return out.getvalue()
+
+
+@SETTINGS
+@given(records())
+def test_yaml_and_csv_read_the_same_record(record: dict[str, object]) -> None:
+    text_yaml = result_yaml(**record)  # type: ignore[arg-type]
+    from_yaml = read_yaml.parse(text_yaml, "r.yaml")
+    assert not from_yaml.findings
+    table = read_table._table(Path("r.csv"), _as_csv(from_yaml).encode("utf-8"))
+    from_csv = read_table.parse(table, "r.csv")
+    assert not from_csv.findings
+    assert {k: str(v) for k, v in from_yaml.header.items()} == from_csv.header
+    strip = [(p["phase"], p["point"], p["input"], p["reading"]) for p in from_yaml.points]
+    assert strip == [(p["phase"], p["point"], p["input"], p["reading"]) for p in from_csv.points]
+    assert len(strip) == len(record["as_found"]) + len(record["as_left"] or [])  # type: ignore[arg-type]
+
+
+@SETTINGS
+@given(st.lists(st.floats(0, 100, allow_nan=False), min_size=2, max_size=50),
+       st.sampled_from(["linear", "sqrt"]), st.floats(-10, 10), st.floats(0.1, 100))
+def test_expected_output_rises_with_the_input(values: list[float], kind: str, lo: float, span: float) -> None:
+    pct = pd.Series(sorted(values))
+    frac, _ = scaling.characteristic(pct, pd.Series(kind, index=pct.index))
+    frame = pd.DataFrame({"output_min": lo, "output_max": lo + span}, index=pct.index)
+    expected = scaling.expected_output(frame, frac).to_numpy()
+    assert np.all(np.diff(expected) >= -1e-12 * span)
+    reference = np.sqrt(pct / 100) if kind == "sqrt" else pct / 100  # numpy as the outside reference
+    np.testing.assert_allclose(expected, lo + reference * span, rtol=1e-12, atol=1e-12 * span)
+
+
+def _run(results: dict[str, str], assets: list[dict[str, object]]) -> runner.RunContext:
+    with tempfile.TemporaryDirectory() as tmp:
+        ev = write_evidence(Path(tmp) / "ev", results, assets=assets)
+        return runner.run(runner.RunOptions(ev), get_plugin_manager(autoload=False))
+
+
+@SETTINGS
+@given(st.lists(st.integers(0, 100), min_size=1, max_size=6, unique=True), st.sampled_from([1, 5]),
+       st.sampled_from([(4, 20), (0, 20), (0, 10)]), st.sampled_from(["linear", "sqrt"]))
+def test_error_is_zero_when_reading_equals_expected(pcts: list[int], in_max: int, out: tuple[int, int],
+                                                    kind: str) -> None:
+    lo, hi = out
+    unit = "mA" if hi == 20 else "V"
+    points = []
+    for p in pcts:
+        frac = (p / 100) ** 0.5 if kind == "sqrt" else p / 100
+        points.append((f"{p / 100 * in_max!r} A", f"{lo + frac * (hi - lo)!r} {unit}"))
+    asset = {**CT_ASSET, "input_max": in_max, "output_min": lo, "output_max": hi, "output_unit": unit,
+             "characteristic": kind}
+    ctx = _run({"a.yaml": result_yaml(as_found=points)}, [asset])
+    assert [f for f in ctx.findings if f.severity == "error"] == []
+    assert len(ctx.points) == len(pcts)
+    np.testing.assert_allclose(ctx.points["error"], 0.0, atol=1e-9 * (hi - lo))
+    assert (ctx.points["decision"] == "pass").all()
+
+
+@SETTINGS
+@given(st.lists(records(), min_size=1, max_size=4))
+def test_no_valid_record_makes_a_stage_raise(recs: list[dict[str, object]]) -> None:
+    results = {f"t{i}.yaml": result_yaml(**{**r, "date": f"20{10 + i}-01-01"})  # type: ignore[arg-type]
+               for i, r in enumerate(recs)}
+    ctx = _run(results, [CT_ASSET])
+    assert [f.format() for f in ctx.findings if f.severity == "error"] == []
+    assert set(ctx.tests["verdict"]) <= {"pass", "fail", "adjusted"}
+    assert len(ctx.tests) == len(recs)
+    assert ctx.points["error"].notna().all() and ctx.points["mpe"].notna().all()
