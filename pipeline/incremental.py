@@ -20,7 +20,6 @@ import hashlib
 import io
 import json
 import os
-import pickle
 import re
 import sys
 from collections.abc import Iterator
@@ -32,7 +31,7 @@ from loopledger.output import write_bytes as atomic_write
 VERSION = 1
 CACHE_NAME = ".loopledger-cache"
 MANIFEST = "manifest.json"
-PARSED = "parsed.pickle"
+PARSED = "parsed.json"
 REGISTRY_FILES = ("assets.csv", "instruments.yaml", "loopledger.toml")
 _ANSI = re.compile(r"\x1b\[[0-9;?]*[A-Za-z]")
 
@@ -213,7 +212,11 @@ class Cache:
     # --- parsed files --------------------------------------------------------------
 
     def load_parsed(self) -> dict[tuple[str, str], Any]:
-        """Parsed result files keyed by (path, sha256); empty when missing or damaged."""
+        """Parsed result files keyed by (path, sha256); empty when missing or damaged.
+
+        Stored as JSON, never as pickle: a cache file is data, so whoever can write to OUT cannot
+        make the next run execute code.
+        """
         try:
             body = _unseal((self.folder / PARSED).read_bytes())
         except OSError:
@@ -221,17 +224,34 @@ class Cache:
         if body is None:
             return {}
         try:
-            value = pickle.loads(body)
-        except Exception:  # a damaged body that still matched its checksum cannot happen; be safe anyway
-            return {}
-        if not isinstance(value, dict) or value.get("engine") != self.key["engine"]:
-            return {}  # read by another version of loopledger or its plugins
-        files = value.get("files")
-        return files if isinstance(files, dict) else {}
+            value = json.loads(body)
+            if not isinstance(value, dict) or value.get("engine") != self.key["engine"]:
+                return {}  # written by another version of loopledger or its plugins
+            return {(rel, sha): _from_json(entry) for rel, sha, entry in value.get("files", [])}
+        except (ValueError, TypeError, KeyError, AttributeError):
+            return {}  # damaged: rebuilt by this run
 
     def save_parsed(self, parsed: dict[tuple[str, str], Any]) -> None:
-        body = {"engine": self.key["engine"], "files": parsed}
-        atomic_write(self.folder / PARSED, _sealed(pickle.dumps(body, protocol=pickle.HIGHEST_PROTOCOL)))
+        files = [[rel, sha, _to_json(read)] for (rel, sha), read in sorted(parsed.items())]
+        body = {"engine": self.key["engine"], "files": files}
+        atomic_write(self.folder / PARSED, _sealed(json.dumps(body, default=str).encode()))
+
+
+def _to_json(read: Any) -> dict[str, Any]:
+    from dataclasses import asdict
+
+    return {"header": read.header, "points": read.points, "header_lines": read.header_lines,
+            "findings": [asdict(f) for f in read.findings]}
+
+
+def _from_json(entry: dict[str, Any]) -> Any:
+    from loopledger.contracts import ResultRead
+    from loopledger.findings import Finding
+
+    points = [{**p, "readings": tuple(p["readings"])} if isinstance(p.get("readings"), list) else p
+              for p in entry["points"]]
+    return ResultRead(dict(entry["header"]), points, dict(entry["header_lines"]),
+                      [Finding(**f) for f in entry["findings"]])
 
 
 def _isatty(stream: TextIO) -> bool:
