@@ -95,6 +95,11 @@ def main(argv: Sequence[str] | None = None) -> int:
         sys.stderr.write("loopledger: interrupted; outputs already written are whole, the rest were not "
                          "replaced\n")
         return 130
+    except BrokenPipeError:  # output piped into e.g. `head`, which stopped reading
+        import os
+
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
     except Exception:
         import traceback
 

@@ -88,7 +88,8 @@ def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None
     tests = ctx.tests
     counts = tests["verdict"].value_counts().to_dict() if not tests.empty else {}
     n_assets = tests.loc[tests["valid"].astype(bool), "asset"].nunique() if not tests.empty else 0
-    console.print(f"[bold]loopledger[/] read {len(tests)} result files for {n_assets} assets "
+    console.print(f"[bold]loopledger[/] read {len(tests)} result file{'' if len(tests) == 1 else 's'} for "
+                  f"{n_assets} asset{'' if n_assets == 1 else 's'} "
                   f"(judged on {ctx.as_of.isoformat()}, rule '{ctx.section('decision').get('rule', 'simple')}')")
     line = ", ".join(f"{counts.get(v, 0)} {v}" for v in ("pass", "adjusted", "fail", "invalid"))
     console.print(f"  tests: {line}")

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import datetime as dt
+import re
 from pathlib import Path
 from typing import Any
 
@@ -39,6 +40,7 @@ Loader.yaml_implicit_resolvers = {
 MAX_NODES = 20_000
 
 PHASES = ("as_found", "as_left")
+_SPLIT_NUMBER = re.compile(r"^\d+(\s*\S+)?$")
 INSTRUMENT_ROLES = ("source", "meter", "shunt")
 _SCALAR = (str, int, float, dt.date)
 
@@ -165,7 +167,13 @@ def _point(item: Any, node: yaml.Node, phase: str, number: int, rel: str,
     for key, value in item.items():
         key = str(key)
         if key not in POINT_FIELDS:
-            findings.append(warning(f"unknown point field '{key}' ignored", field=key, **where))
+            if _SPLIT_NUMBER.match(key) and value is None:
+                # `{reading: 12,010 mA}`: YAML's flow syntax split a decimal comma into two fields
+                findings.append(error(f"'{key}' looks like the rest of a number split at a comma: in "
+                                      "{...} a comma separates fields, so a decimal comma cannot be read; "
+                                      "write a decimal point (e.g. 12.010 mA)", field="reading", **where))
+            else:
+                findings.append(warning(f"unknown point field '{key}' ignored", field=key, **where))
         elif key == "readings":
             if not isinstance(value, list) or not all(isinstance(v, str | int | float) for v in value):
                 findings.append(error("expected a list of readings with units", field=key, **where))

@@ -152,3 +152,11 @@ def test_unparseable_assets_csv_is_reported_not_a_crash(tmp_path):
 
     rows = list(csv.DictReader(open(tmp_path / "out" / "data" / "tests.csv", encoding="utf-8")))
     assert rows[0]["verdict"] == "invalid" and "T-CT1" in rows[0]["errors"]
+
+
+def test_decimal_comma_split_by_yaml_flow_syntax_is_named(tmp_path, run_folder):
+    # In `{input: 50 %, reading: 12,010 mA}` YAML reads `reading: 12` and a field `010 mA`.
+    text = result_yaml(as_found=good_points()).replace("reading: 12.0000 mA", "reading: 12,010 mA")
+    text = text.replace("- input: 50 %\n  reading: 12,010 mA", "- {input: 50 %, reading: 12,010 mA}")
+    errs = _run(tmp_path, "bad.yaml", text, run_folder)
+    assert any("split at a comma" in f.message and f.point == "as_found #3" for f in errs), errs
