@@ -8,6 +8,7 @@ metadata left out, so the same data always gives the same bytes.
 from __future__ import annotations
 
 import io
+import re
 from typing import Any
 
 import matplotlib
@@ -43,7 +44,9 @@ def _svg(fig: Any) -> str:
     plt.close(fig)
     text = buf.getvalue()
     start = text.find("<svg")
-    return text[start:] if start >= 0 else text
+    text = text[start:] if start >= 0 else text
+    # drop the RDF metadata block: it names outside vocabularies and says nothing about the evidence
+    return re.sub(r"\s*<metadata>.*?</metadata>", "", text, count=1, flags=re.S)
 
 
 def error_chart(data: dict[str, Any], title: str) -> str:
