@@ -29,7 +29,7 @@ from itertools import combinations
 
 import numpy as np
 import pandas as pd
-from loopledger.context import RunContext
+from loopledger.context import RunContext, rows_of
 from loopledger.contracts import Section
 from loopledger.findings import Finding
 from loopledger.hookspecs import hookimpl
@@ -221,7 +221,7 @@ def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
     table = ctx.extras.get("analysis")
     if table is None:
         return []
-    mine = table[table["test"] == test]
+    mine = rows_of(table, "test", test)
     if mine.empty:
         return []
     phases = [p for p in ("as_found", "as_left") if p in set(mine["phase"])]

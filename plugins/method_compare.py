@@ -18,7 +18,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from loopledger import quantities as q
-from loopledger.context import RunContext
+from loopledger.context import RunContext, rows_of
 from loopledger.contracts import Section
 from loopledger.findings import Finding
 from loopledger.hookspecs import hookimpl
@@ -97,10 +97,10 @@ def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
 def comparison_rows(ctx: RunContext, test: str) -> tuple[list[str], list[list[str]]]:
     """(columns, rows) comparing the method used with each alternative, point by point."""
     table = ctx.extras.get("method_comparison")
-    pts = ctx.points[ctx.points["test"] == test].sort_values(["phase", "point"])
+    pts = rows_of(ctx.points, "test", test).sort_values(["phase", "point"])
     if table is None or pts.empty:
         return [], []
-    mine = table[table["test"] == test]
+    mine = rows_of(table, "test", test)
     labels = list(pd.unique(mine["alternative"]))
     if not labels:
         return [], []
@@ -125,14 +125,14 @@ def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
     columns, rows = comparison_rows(ctx, test)
     if not rows:
         return []
-    unit = str(ctx.points.loc[ctx.points["test"] == test, "output_unit"].iloc[0])
+    unit = str(rows_of(ctx.points, "test", test)["output_unit"].iloc[0])
     return [Section(title=f"Method comparison: U ({unit}) and TUR with the other rig the registry allows",
                     kind="table", columns=columns, rows=rows, order=25)]
 
 
 def planned(ctx: RunContext, asset: str, plan: dict[str, Any]) -> pd.DataFrame:
     """U and TUR at the points of the asset's latest test, had they been read with the planned rig."""
-    pts = ctx.points[ctx.points["asset"] == asset] if not ctx.points.empty else ctx.points
+    pts = rows_of(ctx.points, "asset", asset) if not ctx.points.empty else ctx.points
     if pts.empty or "mpe" not in pts.columns:
         return pd.DataFrame(columns=COLUMNS)
     latest = pts.sort_values(["date", "test"]).iloc[-1]["test"]
@@ -165,7 +165,7 @@ def ll_sheet_sections(ctx: RunContext, asset: str, plan: dict[str, Any]) -> list
     table = planned(ctx, asset, plan)
     if table.empty:
         return []
-    pts = ctx.points[ctx.points["test"] == table["test"].iloc[0]].set_index(["phase", "point"])
+    pts = rows_of(ctx.points, "test", table["test"].iloc[0]).set_index(["phase", "point"])
     rows = []
     for r in table.itertuples():
         mpe = pts.at[(r.phase, r.point), "mpe"]

@@ -18,7 +18,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from loopledger import quantities as q
-from loopledger.context import RunContext
+from loopledger.context import RunContext, rows_of
 from loopledger.contracts import Section
 from loopledger.findings import Finding, warning
 from loopledger.hookspecs import hookimpl
@@ -142,7 +142,7 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
 def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
     if "ne43_band" not in ctx.points:
         return []
-    pts = ctx.points[ctx.points["test"] == test].sort_values(["phase", "point"])
+    pts = rows_of(ctx.points, "test", test).sort_values(["phase", "point"])
     if pts.empty or (pts["ne43_band"] == "n/a").all():
         return []
     ma, _ = output_ma(pts)

@@ -18,7 +18,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from loopledger import quantities as q
-from loopledger.context import RunContext
+from loopledger.context import RunContext, rows_of
 from loopledger.contracts import Section
 
 CAUTIONS = [
@@ -313,7 +313,7 @@ def drift_chart_data(ctx: RunContext, asset: str, points: pd.DataFrame) -> dict[
     if isinstance(drift, pd.DataFrame) and {"asset", "input_pct", "date", "error_pct_span", "as_left_pct",
                                             "trims_pct"} <= set(drift.columns):
         # issue 5's drift points: as-found and as-left per test point, and the trims made before each
-        mine_pts = drift[drift["asset"] == asset]
+        mine_pts = rows_of(drift, "asset", asset)
         frame = pd.DataFrame({"date": mine_pts["date"].astype(str), "input_pct": mine_pts["input_pct"].round(3),
                               "error_pct": mine_pts["error_pct_span"], "as_left_pct": mine_pts["as_left_pct"],
                               "trims_pct": mine_pts["trims_pct"]}).sort_values(["input_pct", "date"])
@@ -325,7 +325,7 @@ def drift_chart_data(ctx: RunContext, asset: str, points: pd.DataFrame) -> dict[
     lines: list[dict[str, Any]] = []
     if isinstance(fits, pd.DataFrame) and {"asset", "input_pct", "slope_pct_per_year", "intercept_pct",
                                            "ref_date"} <= set(fits.columns):
-        mine = fits[fits["asset"] == asset].sort_values("input_pct")
+        mine = rows_of(fits, "asset", asset).sort_values("input_pct")
         lines = records(mine, ["input_pct", "slope_pct_per_year", "intercept_pct", "ref_date", "n", "stderr"])
     mpe_pct = (points["mpe"] / points["span"].abs() * 100.0).max() if len(points) else None
     return {"points": records(frame), "fits": lines, "mpe_pct": plain(mpe_pct), "end": ctx.as_of.isoformat()}
@@ -377,9 +377,21 @@ def test_data(ctx: RunContext, test: pd.Series, points: pd.DataFrame, rig: pd.Da
             "points": records(pts, cols), "point_cols": cols, "burden": burden, "analysis": analysis,
             "findings": [{"severity": f.severity, "line": plain(f.line), "field": f.field, "point": f.point,
                           "message": f.message, "stage": f.stage}
-                         for f in ctx.findings if f.file == test["source_file"]],
+                         for f in findings_of(ctx, str(test["source_file"]))],
             "chart": latest_chart_data(pts) if len(pts) else None,
             "sections": section_dicts(ctx.pm.hook.ll_test_sections(ctx=ctx, test=tid)) if test["valid"] else []}
+
+
+def findings_of(ctx: RunContext, rel: str) -> list[Any]:
+    """One file's findings, from an index built once per list of findings (pages are made per test)."""
+    cached = ctx.extras.get("_findings_by_file")
+    if cached is None or cached[0] is not ctx.findings or cached[1] != len(ctx.findings):
+        by_file: dict[str, list[Any]] = {}
+        for f in ctx.findings:
+            by_file.setdefault(f.file, []).append(f)
+        cached = (ctx.findings, len(ctx.findings), by_file)
+        ctx.extras["_findings_by_file"] = cached
+    return list(cached[2].get(rel, []))
 
 
 def instruments_data(ctx: RunContext, used: pd.DataFrame, tests: pd.DataFrame) -> dict[str, Any]:

@@ -14,7 +14,7 @@ from __future__ import annotations
 import math
 
 import pandas as pd
-from loopledger.context import RunContext
+from loopledger.context import RunContext, rows_of
 from loopledger.contracts import Section
 from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl
@@ -121,7 +121,7 @@ def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
 def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
     if ctx.points.empty or "U" not in ctx.points.columns:
         return []
-    pts = ctx.points[ctx.points["test"] == test].sort_values(["phase", "point"])
+    pts = rows_of(ctx.points, "test", test).sort_values(["phase", "point"])
     if pts.empty:
         return []
     unit = str(pts["output_unit"].iloc[0])
@@ -132,7 +132,7 @@ def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
                  "Decision"], rows=point_rows(pts), order=20)]
     frame = ctx.extras.get("budget")
     if frame is not None:
-        mine = frame[frame["test"] == test].sort_values(["phase", "point"], kind="stable")
+        mine = rows_of(frame, "test", test).sort_values(["phase", "point"], kind="stable")
         sections.append(Section(
             title=f"Uncertainty budget (contributions u_i in {unit})", kind="table",
             columns=["Phase", "#", "Component", "Distribution", "Half-width", "Divisor", "Sensitivity", "u_i", "ν"],
