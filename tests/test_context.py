@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import pandas as pd
-
 from loopledger.context import rows_of
 
 
