@@ -98,7 +98,7 @@ def _col(frame: pd.DataFrame, name: str, default: Any = np.nan) -> pd.Series:
 
 
 def _dates(values: pd.Series) -> pd.Series:
-    return pd.to_datetime(values, errors="coerce")
+    return pd.to_datetime(values, errors="coerce", format="ISO8601")
 
 
 # ---------------------------------------------------------------------------------------------
