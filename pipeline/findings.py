@@ -62,3 +62,12 @@ def sort_findings(findings: Iterable[Finding]) -> list[Finding]:
 
 def has_errors(findings: Iterable[Finding]) -> bool:
     return any(f.severity == "error" for f in findings)
+
+
+def by_file(findings: Iterable[Finding]) -> dict[str, list[Finding]]:
+    """Findings grouped by the file they name, in their order (findings naming no file are left out)."""
+    out: dict[str, list[Finding]] = {}
+    for f in findings:
+        if f.file:
+            out.setdefault(f.file, []).append(f)
+    return out

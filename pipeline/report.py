@@ -7,7 +7,7 @@ from typing import TextIO
 
 import pandas as pd
 from loopledger.context import RunContext
-from loopledger.findings import Finding
+from loopledger.findings import Finding, by_file
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
@@ -113,9 +113,10 @@ def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None
     if earlier > 0:
         console.print(f"  {earlier} earlier test(s) failed and were followed by later tests (see the handbook)")
     errors: dict[str, str] = {}
-    for f in ctx.findings:
-        if f.severity == "error" and f.file and f.file not in errors:
-            errors[f.file] = f.message + (f" [{f.field}]" if f.field else "")
+    for rel, found in by_file(ctx.findings).items():
+        first = next((f for f in found if f.severity == "error"), None)
+        if first is not None:
+            errors[rel] = first.message + (f" [{first.field}]" if first.field else "")
     invalid = tests[tests["verdict"] == "invalid"] if not tests.empty else tests
     if len(invalid):
         table = Table(title="Result files that could not be judged", title_justify="left")

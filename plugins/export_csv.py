@@ -8,17 +8,15 @@ from __future__ import annotations
 
 import pandas as pd
 from loopledger.context import RunContext
+from loopledger.findings import by_file
 from loopledger.hookspecs import hookimpl
 from loopledger.schemas.points import POINT_COLUMNS, TEST_COLUMNS
 
 
 def _messages(ctx: RunContext, severity: str) -> dict[str, str]:
-    by_file: dict[str, list[str]] = {}
-    for f in ctx.findings:
-        if f.severity == severity and f.file:
-            text = f"line {f.line}: {f.message}" if f.line else f.message
-            by_file.setdefault(f.file, []).append(text)
-    return {k: "; ".join(v) for k, v in by_file.items()}
+    texts = {rel: [f"line {f.line}: {f.message}" if f.line else f.message for f in found if f.severity == severity]
+             for rel, found in by_file(ctx.findings).items()}
+    return {rel: "; ".join(t) for rel, t in texts.items() if t}
 
 
 def points_table(ctx: RunContext) -> pd.DataFrame:

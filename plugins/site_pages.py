@@ -20,6 +20,7 @@ import pandas as pd
 from loopledger import quantities as q
 from loopledger.context import RunContext, rows_of
 from loopledger.contracts import Section
+from loopledger.findings import by_file
 
 CAUTIONS = [
     "Never open-circuit the secondary of a current transformer that may carry primary current: "
@@ -386,10 +387,7 @@ def findings_of(ctx: RunContext, rel: str) -> list[Any]:
     """One file's findings, from an index built once per list of findings (pages are made per test)."""
     cached = ctx.extras.get("_findings_by_file")
     if cached is None or cached[0] is not ctx.findings or cached[1] != len(ctx.findings):
-        by_file: dict[str, list[Any]] = {}
-        for f in ctx.findings:
-            by_file.setdefault(f.file, []).append(f)
-        cached = (ctx.findings, len(ctx.findings), by_file)
+        cached = (ctx.findings, len(ctx.findings), by_file(ctx.findings))
         ctx.extras["_findings_by_file"] = cached
     return list(cached[2].get(rel, []))
 
