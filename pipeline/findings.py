@@ -60,10 +60,6 @@ def sort_findings(findings: Iterable[Finding]) -> list[Finding]:
     return sorted(findings, key=lambda f: (f.file, f.line, _RANK[f.severity], f.message))
 
 
-def has_errors(findings: Iterable[Finding]) -> bool:
-    return any(f.severity == "error" for f in findings)
-
-
 def by_file(findings: Iterable[Finding]) -> dict[str, list[Finding]]:
     """Findings grouped by the file they name, in their order (findings naming no file are left out)."""
     out: dict[str, list[Finding]] = {}

@@ -28,5 +28,3 @@ def decode(data: bytes) -> str:
                              "save the file as UTF-8") from exc
     return text.replace("\r\n", "\n").replace("\r", "\n")
 
-
-SCALARS = (str, int, float)

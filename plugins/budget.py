@@ -63,11 +63,23 @@ def coverage_factor(nu_eff: Any) -> np.ndarray:
     return k
 
 
-def welch_satterthwaite(u_c: Any, u_i: Any, dof: Any) -> float:
-    """ν_eff = u_c⁴ / Σ(u_i⁴/ν_i) (JCGM 100:2008 G.2b); infinite when every ν_i is."""
+def ws_terms(u_i: Any, dof: Any) -> Any:
+    """u_i⁴/ν_i for each component, 0 where ν_i is infinite (the terms of JCGM 100:2008 G.2b)."""
     u_i, dof = np.asarray(u_i, dtype=float), np.asarray(dof, dtype=float)
-    denominator = float(np.sum(np.where(np.isfinite(dof), u_i ** 4 / dof, 0.0)))
-    return math.inf if denominator == 0.0 else float(u_c) ** 4 / denominator
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(np.isfinite(dof), u_i ** 4 / dof, 0.0)
+
+
+def nu_eff(u_c: Any, ws_sum: Any) -> Any:
+    """ν_eff = u_c⁴ / Σ(u_i⁴/ν_i) (JCGM 100:2008 G.2b); infinite when every ν_i is (the sum is 0)."""
+    u_c, ws_sum = np.asarray(u_c, dtype=float), np.asarray(ws_sum, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(ws_sum > 0, u_c ** 4 / ws_sum, np.inf)
+
+
+def welch_satterthwaite(u_c: Any, u_i: Any, dof: Any) -> float:
+    """ν_eff of one point from its components (the same formula :func:`combine` applies per point)."""
+    return float(nu_eff(u_c, float(np.sum(ws_terms(u_i, dof)))))
 
 
 def _term(idx: pd.Index, name: str, distribution: str, half_width: Any, unit: Any, divisor: float,
@@ -337,11 +349,9 @@ def combine(table: pd.DataFrame, index: pd.Index) -> pd.DataFrame:
     """Per point: u = √Σu_i², ν_eff (Welch–Satterthwaite), k (Student t, 95.45 %), U = k·u."""
     c = table["contribution"].astype(float)
     dof = table["dof"].astype(float)
-    grouped = pd.DataFrame({"row": table["row"], "sq": c ** 2,
-                            "ws": np.where(np.isfinite(dof), c ** 4 / dof, 0.0)}).groupby("row")
+    grouped = pd.DataFrame({"row": table["row"], "sq": c ** 2, "ws": ws_terms(c, dof)}).groupby("row")
     sums = grouped[["sq", "ws"]].sum().reindex(index)
     u = np.sqrt(sums["sq"])
-    with np.errstate(divide="ignore", invalid="ignore"):
-        nu = np.where(sums["ws"] > 0, u ** 4 / sums["ws"], np.inf)
+    nu = nu_eff(u, sums["ws"])
     k = coverage_factor(nu)
     return pd.DataFrame({"u": u, "k": k, "nu_eff": nu, "U": k * u}, index=index)

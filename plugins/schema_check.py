@@ -20,17 +20,6 @@ from loopledger.validation import validate
 INSTRUMENT_KIND = {"source": "source", "meter": "meter", "shunt": "shunt"}
 
 
-def _header_where(ctx: RunContext, tests: pd.DataFrame, field: str | None = None):  # type: ignore[no-untyped-def]
-    lines = ctx.extras.get("header_lines", {})
-
-    def where(index: Any) -> dict[str, Any]:
-        if index is None:
-            return {}
-        rel = tests.at[index, "source_file"]
-        return {"file": rel, "line": lines.get(rel, {}).get(field or "", 0)}
-    return where
-
-
 def check_tests(ctx: RunContext) -> list[Finding]:
     """Validate the header of every still-valid test; mark failures invalid."""
     from loopledger.schemas.results import TestHeader
