@@ -137,19 +137,25 @@ def ll_publish(ctx: RunContext, out: Path) -> list[Finding] | None:
 
 
 @hookspec
-def ll_test_sections(ctx: RunContext, test: str) -> list[Section] | None:
-    """Blocks to show on the evidence page of one test (``test`` is its id)."""
+def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]] | None:
+    """Blocks for the evidence pages of a batch of tests: ``{test id: [Section, ...]}``.
+
+    Called once per batch, not once per page (the handbook splits a fleet into batches, one per
+    worker process): take the rows of all ``tests`` together, e.g.
+    ``ctx.points[ctx.points["test"].isin(tests)]``, work over them in one pass and group the result.
+    Leave out tests with nothing to show. A page's blocks must depend only on the run's tables.
+    """
 
 
 @hookspec
-def ll_asset_sections(ctx: RunContext, asset: str) -> list[Section] | None:
-    """Blocks to show on the page of one asset."""
+def ll_asset_sections(ctx: RunContext, assets: list[str]) -> dict[str, list[Section]] | None:
+    """Blocks for the pages of a batch of assets: ``{asset id: [Section, ...]}`` (see ``ll_test_sections``)."""
 
 
 @hookspec
-def ll_sheet_sections(ctx: RunContext, asset: str, plan: dict[str, Any]) -> list[Section] | None:
-    """Blocks for the printable test sheet a technician takes to site for ``asset``.
+def ll_sheet_sections(ctx: RunContext, plans: dict[str, dict[str, Any]]) -> dict[str, list[Section]] | None:
+    """Blocks for the printable test sheets of a batch of assets: ``{asset id: [Section, ...]}``.
 
-    :param plan: the planned rig: ``method`` (direct | shunt | display), ``shunt_ohm``
+    :param plans: asset id -> the planned rig: ``method`` (direct | shunt | display), ``shunt_ohm``
         (float or None), ``meter`` (instrument id or None), ``connection`` (standalone | in-loop).
     """

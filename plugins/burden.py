@@ -30,7 +30,7 @@ import numpy as np
 import pandas as pd
 from loopledger import quantities as q
 from loopledger.context import RunContext
-from loopledger.contracts import Command, Section
+from loopledger.contracts import Command, Section, each
 from loopledger.findings import Finding, note, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import conductors
@@ -336,7 +336,11 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
 
 
 @hookimpl
-def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
+def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
+    return each(tests, lambda test: test_sections(ctx, test))
+
+
+def test_sections(ctx: RunContext, test: str) -> list[Section]:
     terms = ctx.extras.get("burden")
     if terms is None or test not in terms.index:
         return []
@@ -354,7 +358,11 @@ def plan_rig(ctx: RunContext, asset: str, plan: dict[str, Any]) -> pd.DataFrame:
 
 
 @hookimpl
-def ll_sheet_sections(ctx: RunContext, asset: str, plan: dict[str, Any]) -> list[Section]:
+def ll_sheet_sections(ctx: RunContext, plans: dict[str, dict[str, Any]]) -> dict[str, list[Section]]:
+    return each(plans, lambda asset: sheet_sections(ctx, asset, plans[asset]))
+
+
+def sheet_sections(ctx: RunContext, asset: str, plan: dict[str, Any]) -> list[Section]:
     if asset not in ctx.assets.index:
         return []
     row = next(analyse(ctx, plan_rig(ctx, asset, plan)).itertuples())

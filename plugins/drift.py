@@ -29,7 +29,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from loopledger.context import RunContext
-from loopledger.contracts import Section
+from loopledger.contracts import Section, each
 from loopledger.findings import Finding, error
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import history
@@ -191,7 +191,11 @@ def ll_configure(config: dict[str, Any]) -> list[Finding]:
 
 
 @hookimpl
-def ll_asset_sections(ctx: RunContext, asset: str) -> list[Section]:
+def ll_asset_sections(ctx: RunContext, assets: list[str]) -> dict[str, list[Section]]:
+    return each(assets, lambda asset: asset_sections(ctx, asset))
+
+
+def asset_sections(ctx: RunContext, asset: str) -> list[Section]:
     compute(ctx)
     mine = history.records_of(ctx, "drift_fits", asset)
     if not mine:

@@ -29,7 +29,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 from loopledger.context import RunContext
-from loopledger.contracts import Section
+from loopledger.contracts import Section, each
 from loopledger.findings import Finding, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins.burden import fmt
@@ -188,7 +188,11 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
 
 
 @hookimpl
-def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
+def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
+    return each(tests, lambda test: test_sections(ctx, test))
+
+
+def test_sections(ctx: RunContext, test: str) -> list[Section]:
     sig = ctx.extras.get("fault_signatures")
     if sig is None or test not in sig.index.get_level_values("test"):
         return []

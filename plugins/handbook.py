@@ -193,9 +193,15 @@ def jobs(ctx: RunContext) -> list[Job]:
     pts_by_test = dict(iter(points.groupby("test", sort=False))) if len(points) else {}
     tests_by_asset = dict(iter(tests.groupby("asset", sort=False))) if len(tests) else {}
     rig_by_test = dict(iter(used.groupby("test", sort=False))) if len(used) else {}
+    asset_blocks = sp.asset_sections(ctx, [str(a) for a in assets["asset"]])
+    plans = {str(a): sp.default_plan(ctx, str(a), tests_by_asset.get(a, tests.iloc[0:0])) for a in assets["asset"]}
+    sheet_blocks = sp.sheet_sections(ctx, plans)
+    test_blocks = sp.test_sections(ctx, [str(t) for t in tests.loc[tests["valid"].astype(bool), "test"]]) \
+        if len(tests) else {}
     for _, row in assets.iterrows():
         mine = tests_by_asset.get(row["asset"], tests.iloc[0:0])
-        data = sp.asset_data(ctx, row, mine, pts_by_asset.get(row["asset"], empty_pts))
+        data = sp.asset_data(ctx, row, mine, pts_by_asset.get(row["asset"], empty_pts),
+                             asset_blocks.get(str(row["asset"]), []))
         charts: dict[str, Any] = {}
         name = row["page"]
         if data["latest_chart"]:
@@ -207,13 +213,13 @@ def jobs(ctx: RunContext) -> list[Job]:
             charts[rel] = ("drift", data["drift_chart"], f"{row['asset']}: as-found error by year")
             data["drift_chart"] = {"src": rel}
         add(f"assets/{name}.html", "asset.html", data, charts)
-        plan = sp.default_plan(ctx, str(row["asset"]), mine)
-        sheet = sp.sheet_data(ctx, str(row["asset"]), plan, pts_by_asset.get(row["asset"], empty_pts))
+        sheet = sp.sheet_data(ctx, str(row["asset"]), plans[str(row["asset"])],
+                              pts_by_asset.get(row["asset"], empty_pts), sheet_blocks.get(str(row["asset"]), []))
         add(f"sheets/{name}.html", "sheet.html", {"sheet": sheet,
                                                   "asset_page": f"{name}.html"})
     for _, test in tests.iterrows():
         data = sp.test_data(ctx, test, pts_by_test.get(test["test"], empty_pts),
-                            rig_by_test.get(test["test"], used.iloc[0:0]))
+                            rig_by_test.get(test["test"], used.iloc[0:0]), test_blocks.get(str(test["test"]), []))
         charts = {}
         if data["chart"]:
             rel = f"charts/test-{test['page']}.svg"

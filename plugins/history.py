@@ -19,7 +19,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from loopledger.context import RunContext
-from loopledger.contracts import Section
+from loopledger.contracts import Section, each
 from loopledger.findings import Finding
 from loopledger.hookspecs import hookimpl
 
@@ -132,7 +132,11 @@ def ll_history(ctx: RunContext) -> list[Finding]:
 
 
 @hookimpl
-def ll_asset_sections(ctx: RunContext, asset: str) -> list[Section]:
+def ll_asset_sections(ctx: RunContext, assets: list[str]) -> dict[str, list[Section]]:
+    return each(assets, lambda asset: asset_sections(ctx, asset))
+
+
+def asset_sections(ctx: RunContext, asset: str) -> list[Section]:
     assemble(ctx)
     mine = records_of(ctx, "history", asset)
     if not mine:

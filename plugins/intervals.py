@@ -28,7 +28,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from loopledger.context import RunContext
-from loopledger.contracts import Section
+from loopledger.contracts import Section, each
 from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import drift, history
@@ -260,7 +260,11 @@ def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
 
 
 @hookimpl
-def ll_asset_sections(ctx: RunContext, asset: str) -> list[Section]:
+def ll_asset_sections(ctx: RunContext, assets: list[str]) -> dict[str, list[Section]]:
+    return each(assets, lambda asset: asset_sections(ctx, asset))
+
+
+def asset_sections(ctx: RunContext, asset: str) -> list[Section]:
     table = ctx.extras.get("assets_summary")
     if table is None or asset not in table.index:
         return []
@@ -290,7 +294,11 @@ def ll_asset_sections(ctx: RunContext, asset: str) -> list[Section]:
 
 
 @hookimpl
-def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
+def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
+    return each(tests, lambda test: test_sections(ctx, test))
+
+
+def test_sections(ctx: RunContext, test: str) -> list[Section]:
     if "global_false_accept" not in ctx.tests.columns:
         return []
     values = ctx.extras.setdefault("_false_accept", ctx.tests.set_index("test")["global_false_accept"].to_dict())

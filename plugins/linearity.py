@@ -30,7 +30,7 @@ from itertools import combinations
 import numpy as np
 import pandas as pd
 from loopledger.context import RunContext, rows_of
-from loopledger.contracts import Section
+from loopledger.contracts import Section, each
 from loopledger.findings import Finding
 from loopledger.hookspecs import hookimpl
 
@@ -217,7 +217,11 @@ LABELS = {"zero_error_pct": "Zero error", "span_error_pct": "Span error",
 
 
 @hookimpl
-def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
+def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
+    return each(tests, lambda test: test_sections(ctx, test))
+
+
+def test_sections(ctx: RunContext, test: str) -> list[Section]:
     table = ctx.extras.get("analysis")
     if table is None:
         return []

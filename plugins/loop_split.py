@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import pandas as pd
 from loopledger.context import RunContext
-from loopledger.contracts import Section
+from loopledger.contracts import Section, each
 from loopledger.findings import Finding
 from loopledger.hookspecs import hookimpl
 
@@ -60,7 +60,11 @@ def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
 
 
 @hookimpl
-def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
+def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
+    return each(tests, lambda test: test_sections(ctx, test))
+
+
+def test_sections(ctx: RunContext, test: str) -> list[Section]:
     """On the page of either test of a pair: the split, point by point."""
     table = ctx.extras.get("loop_split")
     if not isinstance(table, pd.DataFrame) or table.empty:

@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 from loopledger import quantities as q
 from loopledger.context import RunContext, rows_of
-from loopledger.contracts import Section
+from loopledger.contracts import Section, each
 from loopledger.findings import Finding
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import budget
@@ -119,7 +119,11 @@ def comparison_rows(ctx: RunContext, test: str) -> tuple[list[str], list[list[st
 
 
 @hookimpl
-def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
+def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
+    return each(tests, lambda test: test_sections(ctx, test))
+
+
+def test_sections(ctx: RunContext, test: str) -> list[Section]:
     if ctx.points.empty:
         return []
     columns, rows = comparison_rows(ctx, test)
@@ -161,7 +165,11 @@ def planned(ctx: RunContext, asset: str, plan: dict[str, Any]) -> pd.DataFrame:
 
 
 @hookimpl
-def ll_sheet_sections(ctx: RunContext, asset: str, plan: dict[str, Any]) -> list[Section]:
+def ll_sheet_sections(ctx: RunContext, plans: dict[str, dict[str, Any]]) -> dict[str, list[Section]]:
+    return each(plans, lambda asset: sheet_sections(ctx, asset, plans[asset]))
+
+
+def sheet_sections(ctx: RunContext, asset: str, plan: dict[str, Any]) -> list[Section]:
     table = planned(ctx, asset, plan)
     if table.empty:
         return []

@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 from loopledger import quantities as q
 from loopledger.context import RunContext, rows_of
-from loopledger.contracts import Section
+from loopledger.contracts import Section, each
 from loopledger.findings import Finding, warning
 from loopledger.hookspecs import hookimpl
 
@@ -139,7 +139,11 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
 
 
 @hookimpl
-def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
+def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
+    return each(tests, lambda test: test_sections(ctx, test))
+
+
+def test_sections(ctx: RunContext, test: str) -> list[Section]:
     if "ne43_band" not in ctx.points:
         return []
     pts = rows_of(ctx.points, "test", test).sort_values(["phase", "point"])

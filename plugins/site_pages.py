@@ -94,6 +94,27 @@ def section_dicts(groups: list[list[Section] | None]) -> list[dict[str, Any]]:
     return [plain(asdict(s)) for s in found]
 
 
+def merged_sections(results: list[dict[str, list[Section]] | None]) -> dict[str, list[dict[str, Any]]]:
+    """The answers of a batch page hook (one ``{id: sections}`` per plugin), as each page's sorted blocks."""
+    merged: dict[str, list[Section]] = {}
+    for found in results:
+        for key, blocks in (found or {}).items():
+            merged.setdefault(str(key), []).extend(blocks or [])
+    return {key: section_dicts([blocks]) for key, blocks in merged.items()}
+
+
+def test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[dict[str, Any]]]:
+    return merged_sections(ctx.pm.hook.ll_test_sections(ctx=ctx, tests=list(tests))) if len(tests) else {}
+
+
+def asset_sections(ctx: RunContext, assets: list[str]) -> dict[str, list[dict[str, Any]]]:
+    return merged_sections(ctx.pm.hook.ll_asset_sections(ctx=ctx, assets=list(assets))) if len(assets) else {}
+
+
+def sheet_sections(ctx: RunContext, plans: dict[str, dict[str, Any]]) -> dict[str, list[dict[str, Any]]]:
+    return merged_sections(ctx.pm.hook.ll_sheet_sections(ctx=ctx, plans=plans)) if plans else {}
+
+
 def _col(frame: pd.DataFrame, name: str, default: Any = np.nan) -> pd.Series:
     return frame[name] if name in frame.columns else pd.Series(default, index=frame.index)
 
@@ -340,8 +361,10 @@ POINT_COLS = ["phase", "point", "input", "input_pct", "reading_text", "expected"
               "ne43_band", "clipped", "line"]
 
 
-def asset_data(ctx: RunContext, row: pd.Series, tests: pd.DataFrame, points: pd.DataFrame) -> dict[str, Any]:
-    """One asset's page; ``tests`` and ``points`` are that asset's rows only."""
+def asset_data(ctx: RunContext, row: pd.Series, tests: pd.DataFrame, points: pd.DataFrame,
+               sections: list[dict[str, Any]] | None = None) -> dict[str, Any]:
+    """One asset's page; ``tests`` and ``points`` are that asset's rows only; ``sections`` its plugin blocks
+    (asked for here when not given)."""
     mine = tests.sort_values(["date", "test"], ascending=False)
     pts = points
     latest_pts = pts[pts["test"] == row["last_test"]] if len(pts) else pts
@@ -352,12 +375,15 @@ def asset_data(ctx: RunContext, row: pd.Series, tests: pd.DataFrame, points: pd.
         "latest_chart": latest_chart_data(latest_pts) if len(latest_pts) else None,
         "drift_chart": drift_chart_data(ctx, str(row["asset"]), pts)
         if len(pts) and pts["test"].nunique() > 1 else None,
-        "sections": section_dicts(ctx.pm.hook.ll_asset_sections(ctx=ctx, asset=row["asset"]))}
+        "sections": asset_sections(ctx, [str(row["asset"])]).get(str(row["asset"]), [])
+        if sections is None else sections}
     return data
 
 
-def test_data(ctx: RunContext, test: pd.Series, points: pd.DataFrame, rig: pd.DataFrame) -> dict[str, Any]:
-    """One test's evidence sheet; ``points`` and ``rig`` (rows of :func:`usage`) are that test's only."""
+def test_data(ctx: RunContext, test: pd.Series, points: pd.DataFrame, rig: pd.DataFrame,
+              sections: list[dict[str, Any]] | None = None) -> dict[str, Any]:
+    """One test's evidence sheet; ``points`` and ``rig`` (rows of :func:`usage`) are that test's only;
+    ``sections`` its plugin blocks (asked for here when not given)."""
     tid = test["test"]
     pts = points.sort_values(["phase", "point"]) if len(points) else points
     instruments = []
@@ -380,7 +406,8 @@ def test_data(ctx: RunContext, test: pd.Series, points: pd.DataFrame, rig: pd.Da
                           "message": f.message, "stage": f.stage}
                          for f in findings_of(ctx, str(test["source_file"]))],
             "chart": latest_chart_data(pts) if len(pts) else None,
-            "sections": section_dicts(ctx.pm.hook.ll_test_sections(ctx=ctx, test=tid)) if test["valid"] else []}
+            "sections": ((test_sections(ctx, [tid]).get(str(tid), []) if sections is None else sections)
+                         if test["valid"] else [])}
 
 
 def findings_of(ctx: RunContext, rel: str) -> list[Any]:
@@ -471,8 +498,9 @@ def planned_points(ctx: RunContext, asset: str, points: pd.DataFrame | None = No
 
 
 def sheet_data(ctx: RunContext, asset: str, plan: dict[str, Any], points: pd.DataFrame | None = None,
-               ) -> dict[str, Any]:
-    """Planned points with expected output and the acceptance window of each, for the rule in force."""
+               sections: list[dict[str, Any]] | None = None) -> dict[str, Any]:
+    """Planned points with expected output and the acceptance window of each, for the rule in force;
+    ``sections`` are the plugins' blocks for the sheet (asked for here when not given)."""
     from loopledger.plugins import tolerance
 
     reg = ctx.assets.loc[asset]
@@ -546,4 +574,4 @@ def sheet_data(ctx: RunContext, asset: str, plan: dict[str, Any], points: pd.Dat
     ct = plain(reg.get("ct_ratio"))
     return {"asset": {k: plain(v) for k, v in reg.items()}, "plan": plain(plan), "rows": rows, "notes": notes,
             "rule": rule_name, "ct_ratio": ct, "unit": unit,
-            "sections": section_dicts(ctx.pm.hook.ll_sheet_sections(ctx=ctx, asset=asset, plan=plan))}
+            "sections": sheet_sections(ctx, {asset: plan}).get(asset, []) if sections is None else sections}

@@ -26,7 +26,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 from loopledger.context import RunContext
-from loopledger.contracts import Command, Section
+from loopledger.contracts import Command, Section, each
 from loopledger.findings import Finding, warning
 from loopledger.hookspecs import hookimpl
 
@@ -107,7 +107,11 @@ def ll_history(ctx: RunContext) -> list[Finding]:
 
 
 @hookimpl
-def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
+def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
+    return each(tests, lambda test: test_sections(ctx, test))
+
+
+def test_sections(ctx: RunContext, test: str) -> list[Section]:
     from loopledger.plugins.history import records_of
 
     mine = records_of(ctx, "reference_uses", test, by="test")

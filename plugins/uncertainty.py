@@ -15,7 +15,7 @@ import math
 
 import pandas as pd
 from loopledger.context import RunContext, rows_of
-from loopledger.contracts import Section
+from loopledger.contracts import Section, each
 from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import budget
@@ -118,7 +118,11 @@ def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
 
 
 @hookimpl
-def ll_test_sections(ctx: RunContext, test: str) -> list[Section]:
+def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
+    return each(tests, lambda test: test_sections(ctx, test))
+
+
+def test_sections(ctx: RunContext, test: str) -> list[Section]:
     if ctx.points.empty or "U" not in ctx.points.columns:
         return []
     pts = rows_of(ctx.points, "test", test).sort_values(["phase", "point"])

@@ -79,3 +79,8 @@ def good_points(offset_ma: float = 0.0, shunt: bool = False) -> list[tuple[str, 
         ma = 4 + 16 * pct / 100 + offset_ma
         out.append((f"{pct} %", f"{ma / 10:.5f} V" if shunt else f"{ma:.4f} mA"))
     return out
+
+
+def blocks(results: list[Any], key: str) -> list[Any]:
+    """The sections a batch page hook's answers (one ``{id: sections}`` per plugin) give one page."""
+    return [s for found in results for s in (found or {}).get(key, [])]

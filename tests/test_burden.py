@@ -7,7 +7,7 @@ import pytest
 from loopledger.cli import main
 from loopledger.plugins import burden
 
-from tests.evidence import CT_ASSET, INSTRUMENTS, good_points, result_yaml, write_evidence
+from tests.evidence import CT_ASSET, INSTRUMENTS, blocks, good_points, result_yaml, write_evidence
 
 
 def _rig(**kw):
@@ -108,13 +108,13 @@ def test_exceeding_test_warns_with_each_fix_and_its_loop(tmp_path, run_folder):
 def test_test_page_and_site_sheet_show_each_term(tmp_path, run_folder, pm):
     ctx = _ctx(tmp_path, run_folder)
     test = ctx.tests.iloc[0]["test"]
-    [section] = [s for group in pm.hook.ll_test_sections(ctx=ctx, test=test) for s in group or []
+    [section] = [s for s in blocks(pm.hook.ll_test_sections(ctx=ctx, tests=[test]), test)
                  if s.title == "Loop burden"]
     labels = [label for label, _ in section.rows]
     assert labels[:2] == ["Rig inserts", "Receiver and cable"]
     assert "Drive limit" in labels and "Margin" in labels
     plan = {"method": "shunt", "shunt_ohm": 100.0, "meter": None, "connection": "in-loop"}
-    sheet = [s for group in pm.hook.ll_sheet_sections(ctx=ctx, asset="T-CT1", plan=plan) for s in group or []]
+    sheet = blocks(pm.hook.ll_sheet_sections(ctx=ctx, plans={"T-CT1": plan}), "T-CT1")
     rows = dict(sheet[0].rows)
     assert rows["Receiver input (in-loop)"] == "250.0 Ω"
     assert rows["Loop resistance"].startswith("351.2 Ω")  # 100 + 250 + 2 × 0.05 km × 12.1 Ω/km at 20 °C

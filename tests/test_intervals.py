@@ -136,7 +136,7 @@ def test_false_accept_per_test_where_u_exists_and_flag_above_2_percent(tmp_path,
     flagged = [f.file for f in ctx.findings if f.code == "false-accept"]
     assert sorted(flagged) == ["results/a.yaml", "results/b.yaml"]
     test_b = ctx.tests.set_index("source_file").at["results/b.yaml", "test"]
-    (section,) = intervals.ll_test_sections(ctx=ctx, test=test_b)
+    (section,) = intervals.ll_test_sections(ctx=ctx, tests=[test_b])[test_b]
     assert section.rows[1] == ("Target", "≤ 2% — exceeded")
 
 

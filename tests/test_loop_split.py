@@ -6,7 +6,7 @@ import pandas as pd
 import pytest
 from loopledger.cli import main
 
-from tests.evidence import write_evidence
+from tests.evidence import blocks, write_evidence
 from tests.signal_checks import asset, result_doc
 
 ASSETS = [asset("T-LOOP", "process-transmitter", (0, 10, "bar"), (4, 20, "mA"), counts_min=0, counts_max=16000,
@@ -54,7 +54,7 @@ def test_end_to_end_through_the_cli(tmp_path):
 
 def test_both_test_pages_get_the_split(tmp_path, run_folder, pm):
     ctx = run_folder(_evidence(tmp_path))
-    sections = [s for found in pm.hook.ll_test_sections(ctx=ctx, test="device") for s in found or []]
+    sections = blocks(pm.hook.ll_test_sections(ctx=ctx, tests=["device"]), "device")
     split = [s for s in sections if s.title.startswith("Loop split")]
     assert len(split) == 1 and split[0].kind == "table" and len(split[0].rows) == 6
     assert {row[-1] for row in split[0].rows} == {"+0.100", "-0.060"}

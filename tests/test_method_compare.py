@@ -15,7 +15,7 @@ import pandas as pd
 import pytest
 from loopledger.cli import main
 
-from tests.evidence import INSTRUMENTS, result_yaml, write_evidence
+from tests.evidence import INSTRUMENTS, blocks, result_yaml, write_evidence
 
 RIG = copy.deepcopy(INSTRUMENTS)
 RIG["CAL-1"] = {"kind": "source", "range": "1 A", "accuracy": "0.01 %rdg"}
@@ -51,14 +51,14 @@ def test_cli_shows_the_comparison_on_the_test_page(tmp_path):
 def test_planned_rig_on_the_site_sheet(tmp_path, run_folder):
     """A planned shunt rig gives the same U as the shunt test actually read (same budget)."""
     ctx = run_folder(two_tests(tmp_path))
-    sections = [s for group in ctx.pm.hook.ll_sheet_sections(
-        ctx=ctx, asset="T-CT1", plan={"method": "shunt", "shunt_ohm": 100.0, "meter": "DMM-1",
-                                      "connection": "standalone"}) for s in group or [] if "TUR" in s.title]
+    sections = [s for s in blocks(ctx.pm.hook.ll_sheet_sections(
+        ctx=ctx, plans={"T-CT1": {"method": "shunt", "shunt_ohm": 100.0, "meter": "DMM-1",
+                                  "connection": "standalone"}}), "T-CT1") if "TUR" in s.title]
     assert len(sections) == 1
     shunt_u = ctx.points.loc[ctx.points["method"] == "shunt", "U"].iloc[0]
     row = sections[0].rows[0]
     assert float(row[4]) == pytest.approx(shunt_u, rel=1e-3)
     assert row[6] == ("yes" if float(row[5]) >= 4 else "no")
-    none = ctx.pm.hook.ll_sheet_sections(ctx=ctx, asset="T-CT1", plan={"method": "shunt", "shunt_ohm": 250.0,
-                                                                      "meter": "DMM-1", "connection": "standalone"})
-    assert not any("TUR" in s.title for group in none for s in group or [])
+    none = blocks(ctx.pm.hook.ll_sheet_sections(ctx=ctx, plans={"T-CT1": {
+        "method": "shunt", "shunt_ohm": 250.0, "meter": "DMM-1", "connection": "standalone"}}), "T-CT1")
+    assert not any("TUR" in s.title for s in none)
