@@ -23,16 +23,17 @@ import json
 import os
 import shutil
 import sys
-from collections.abc import Iterable
 from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+import pandas as pd
 from loopledger.context import RunContext
 from loopledger.contracts import Command
 from loopledger.findings import Finding
 from loopledger.hookspecs import hookimpl
+from loopledger.plugins import page_rows as pr
 from loopledger.plugins import site_pages as sp
 from loopledger.plugins.site_pages import CAUTIONS, page_name
 
@@ -61,14 +62,26 @@ def render_markdown(text: Any) -> str:
     """
     if text is None or isinstance(text, float) or not str(text).strip():
         return ""
-    import markdown
     import nh3
 
-    md = markdown.Markdown(extensions=["tables"], output_format="html")
-    for name in LINKING:
-        md.inlinePatterns.deregister(name, strict=False)
-    rendered = md.convert(html.escape(str(text), quote=False))
+    md = _markdown()
+    rendered = md.reset().convert(html.escape(str(text), quote=False))
     return nh3.clean(rendered, tags=ALLOWED_TAGS, attributes={}, url_schemes=set(), link_rel=None)
+
+
+_MD: Any = None
+
+
+def _markdown() -> Any:
+    """One Markdown converter per process (reset before each remark), without link or image syntax."""
+    global _MD
+    if _MD is None:
+        import markdown
+
+        _MD = markdown.Markdown(extensions=["tables"], output_format="html")
+        for name in LINKING:
+            _MD.inlinePatterns.deregister(name, strict=False)
+    return _MD
 
 
 _ENV: Any = None
@@ -125,21 +138,23 @@ def _theme_digest() -> str:
 
 @dataclass
 class Job:
-    """One page to write: its template and data, and the charts it shows (``rel`` -> kind, data, title)."""
+    """One page to write: its template and data, the charts it owns (``rel`` -> kind, data, title) and
+    the charts it only shows (``refs``: another page owns the file; their data makes the text alternative)."""
 
     rel: str
     template: str
     data: dict[str, Any]
     charts: dict[str, tuple[str, dict[str, Any], str]] = field(default_factory=dict)
+    refs: dict[str, tuple[str, dict[str, Any]]] = field(default_factory=dict)
 
     def digest(self, theme: str) -> str:
-        blob = json.dumps([theme, self.rel, self.template, self.data, self.charts], sort_keys=True,
+        blob = json.dumps([theme, self.rel, self.template, self.data, self.charts, self.refs], sort_keys=True,
                           ensure_ascii=False, default=str, allow_nan=False)
         return hashlib.sha256(blob.encode("utf-8")).hexdigest()
 
 
 def render_job(job: Job) -> dict[str, bytes]:
-    """The files of one page: the HTML and its SVG charts (run in a worker process when parallel)."""
+    """The files of one page: the HTML and the SVG charts it owns."""
     from loopledger.plugins import charts
 
     out: dict[str, bytes] = {}
@@ -147,6 +162,8 @@ def render_job(job: Job) -> dict[str, bytes]:
     for rel, (kind, data, title) in sorted(job.charts.items()):
         draw = charts.error_chart if kind == "error" else charts.drift_chart
         out[rel] = draw(data, title).encode("utf-8")
+    shown = {**{rel: (kind, data) for rel, (kind, data, _title) in job.charts.items()}, **job.refs}
+    for rel, (kind, data) in shown.items():
         alts[rel] = charts.error_alt(data) if kind == "error" else charts.drift_alt(data)
     page = dict(job.data)
     for key in ("latest_chart", "drift_chart", "chart"):  # text alternatives: made here, from the hashed data
@@ -160,8 +177,21 @@ def _depth(rel: str) -> str:
     return "../" * rel.count("/")
 
 
-def jobs(ctx: RunContext) -> list[Job]:
-    """Every page of the site with the data it is made from."""
+@dataclass
+class Shared:
+    """What every page is made from, worked out once per build (before any worker process starts)."""
+
+    common: dict[str, Any]
+    used: pd.DataFrame
+    tests: pd.DataFrame
+    assets: pd.DataFrame
+    points: pd.DataFrame
+    tests_by_asset: dict[Any, pd.DataFrame]
+    registry: dict[Any, dict[str, Any]]
+    instruments: dict[Any, dict[str, Any]]
+
+
+def prepare(ctx: RunContext) -> Shared:
     rule = str(ctx.section("decision").get("rule", "simple"))
     used = sp.usage(ctx)
     tests = sp.test_table(ctx, used)
@@ -170,65 +200,103 @@ def jobs(ctx: RunContext) -> list[Job]:
     if len(points):  # the chart columns, computed once for every page
         extra = sp.chart_columns(points)
         points = points.assign(**{c: extra[c].to_numpy() for c in sp.CHART_COLS[2:]})
-    common = {"as_of": ctx.as_of.isoformat(), "cautions": CAUTIONS, "rule": rule}
-    out: list[Job] = []
+    by_asset = dict(iter(tests.groupby("asset", sort=False))) if len(tests) else {}
+    return Shared({"as_of": ctx.as_of.isoformat(), "cautions": CAUTIONS, "rule": rule}, used, tests, assets,
+                  points, by_asset, pr.registry_rows(ctx), pr.instrument_rows(ctx))
 
-    def add(rel: str, template: str, data: dict[str, Any], charts: dict[str, Any] | None = None) -> None:
-        out.append(Job(rel, template, {**common, **data, "root": _depth(rel), "page_rel": rel}, charts or {}))
 
+def _job(sh: Shared, rel: str, template: str, data: dict[str, Any], charts: dict[str, Any] | None = None,
+         refs: dict[str, Any] | None = None) -> Job:
+    return Job(rel, template, {**sh.common, **data, "root": _depth(rel), "page_rel": rel}, charts or {}, refs or {})
+
+
+def fleet_jobs(ctx: RunContext, sh: Shared) -> list[Job]:
+    """The pages about the whole fleet: index, overdue, failures, reference instruments."""
+    assets, tests = sh.assets, sh.tests
     index = sp.index_data(ctx, assets, tests)
-    add("index.html", "index.html", index)
-    add("overdue.html", "overdue.html", {"assets": index["action"]["overdue"],
-                                         "untested": sp.records(assets[assets["verdict"] == "untested"],
-                                                                sp.ASSET_COLS),
-                                         "soon": sp.records(assets[assets["due_soon"]].sort_values("next_due"),
-                                                            sp.ASSET_COLS)})
     failed_tests = tests[tests["verdict"].isin(["fail", "invalid"])].sort_values(["date", "test"], ascending=False) \
         if len(tests) else tests
-    add("failures.html", "failures.html", {"tests": sp.records(failed_tests, sp.TEST_COLS),
-                                           "assets": index["action"]["failed"]})
-    add("instruments.html", "instruments.html", sp.instruments_data(ctx, used, tests))
-    empty_pts = points.iloc[0:0]
-    pts_by_asset = dict(iter(points.groupby("asset", sort=False))) if len(points) else {}
-    pts_by_test = dict(iter(points.groupby("test", sort=False))) if len(points) else {}
-    tests_by_asset = dict(iter(tests.groupby("asset", sort=False))) if len(tests) else {}
-    rig_by_test = dict(iter(used.groupby("test", sort=False))) if len(used) else {}
-    asset_blocks = sp.asset_sections(ctx, [str(a) for a in assets["asset"]])
-    plans = {str(a): sp.default_plan(ctx, str(a), tests_by_asset.get(a, tests.iloc[0:0])) for a in assets["asset"]}
-    sheet_blocks = sp.sheet_sections(ctx, plans)
-    test_blocks = sp.test_sections(ctx, [str(t) for t in tests.loc[tests["valid"].astype(bool), "test"]]) \
-        if len(tests) else {}
-    for _, row in assets.iterrows():
-        mine = tests_by_asset.get(row["asset"], tests.iloc[0:0])
-        data = sp.asset_data(ctx, row, mine, pts_by_asset.get(row["asset"], empty_pts),
-                             asset_blocks.get(str(row["asset"]), []))
+    return [
+        _job(sh, "index.html", "index.html", index),
+        _job(sh, "overdue.html", "overdue.html", {
+            "assets": index["action"]["overdue"],
+            "untested": sp.records(assets[assets["verdict"] == "untested"], sp.ASSET_COLS),
+            "soon": sp.records(assets[assets["due_soon"]].sort_values("next_due"), sp.ASSET_COLS)}),
+        _job(sh, "failures.html", "failures.html", {"tests": sp.records(failed_tests, sp.TEST_COLS),
+                                                    "assets": index["action"]["failed"]}),
+        _job(sh, "instruments.html", "instruments.html", sp.instruments_data(ctx, sh.used, tests)),
+    ]
+
+
+def batch_jobs(ctx: RunContext, sh: Shared, asset_ids: list[Any], test_ids: list[Any]) -> list[Job]:
+    """The pages of some assets (asset page and test sheet) and of some tests (an asset's tests come in
+    the same batch as the asset), each page hook asked once for the whole batch."""
+    no_tests = sh.tests.iloc[0:0]
+    assets = sh.assets.loc[list(asset_ids)] if len(asset_ids) else sh.assets.iloc[0:0]
+    tests = sh.tests[sh.tests["test"].isin(test_ids)] if len(test_ids) else no_tests
+    points = sh.points[sh.points["test"].isin(test_ids)] if len(sh.points) and len(test_ids) else sh.points.iloc[0:0]
+    valid = [str(t) for t in tests.loc[tests["valid"].astype(bool), "test"]] if len(tests) else []
+    test_pages = pr.test_pages(ctx, tests, points, sh.used, sh.registry, sh.instruments, sp.test_sections(ctx, valid))
+    latest = {tid: page["chart"] for tid, page in test_pages.items()}
+    asset_pages = pr.asset_pages(ctx, assets, tests, points, sh.registry, latest,
+                                 sp.asset_sections(ctx, [str(a) for a in assets["asset"]]))
+    plans = sp.default_plans(ctx, list(assets["asset"]), tests)
+    sheets = sp.sheets(ctx, plans, points, sp.sheet_sections(ctx, plans))
+    out: list[Job] = []
+    for name, ident, last_page in zip(assets["page"], assets["asset"], assets["last_page"], strict=True):
+        data = asset_pages[ident]
         charts: dict[str, Any] = {}
-        name = row["page"]
-        if data["latest_chart"]:
-            rel = f"charts/{name}-latest.svg"
-            charts[rel] = ("error", data["latest_chart"], f"{row['asset']}: test of {row['last_date']}")
+        refs: dict[str, Any] = {}
+        if data["latest_chart"]:  # the latest test's own chart (same points, same title): drawn once, on its page
+            rel = f"charts/test-{last_page}.svg"
+            refs[rel] = ("error", data["latest_chart"])
             data["latest_chart"] = {"src": rel}
         if data["drift_chart"]:
             rel = f"charts/{name}-history.svg"
-            charts[rel] = ("drift", data["drift_chart"], f"{row['asset']}: as-found error by year")
+            charts[rel] = ("drift", data["drift_chart"], f"{ident}: as-found error by year")
             data["drift_chart"] = {"src": rel}
-        add(f"assets/{name}.html", "asset.html", data, charts)
-        sheet = sp.sheet_data(ctx, str(row["asset"]), plans[str(row["asset"])],
-                              pts_by_asset.get(row["asset"], empty_pts), sheet_blocks.get(str(row["asset"]), []))
-        add(f"sheets/{name}.html", "sheet.html", {"sheet": sheet,
-                                                  "asset_page": f"{name}.html"})
-    for _, test in tests.iterrows():
-        data = sp.test_data(ctx, test, pts_by_test.get(test["test"], empty_pts),
-                            rig_by_test.get(test["test"], used.iloc[0:0]), test_blocks.get(str(test["test"]), []))
-        charts = {}
+        out.append(_job(sh, f"assets/{name}.html", "asset.html", data, charts, refs))
+        out.append(_job(sh, f"sheets/{name}.html", "sheet.html", {"sheet": sheets[str(ident)],
+                                                                   "asset_page": f"{name}.html"}))
+    for tid, page, asset, date, remarks in zip(tests["test"], tests["page"], tests["asset"], tests["date"],
+                                               tests["remarks"] if "remarks" in tests else [None] * len(tests),
+                                               strict=True):
+        data = dict(test_pages[tid])
         if data["chart"]:
-            rel = f"charts/test-{test['page']}.svg"
-            charts[rel] = ("error", data["chart"], f"{test['asset']}: test of {test['date']}")
+            rel = f"charts/test-{page}.svg"
             data["chart"] = {"src": rel}
-        data["remarks_html"] = render_markdown(test.get("remarks"))
-        data["has_asset"] = test.get("asset") in ctx.assets.index
-        add(f"tests/{test['page']}.html", "test.html", data, charts)
+            charts = {rel: ("error", test_pages[tid]["chart"], f"{asset}: test of {date}")}
+        else:
+            charts = {}
+        data["remarks_html"] = render_markdown(remarks)
+        data["has_asset"] = asset in ctx.assets.index
+        out.append(_job(sh, f"tests/{page}.html", "test.html", data, charts))
     return out
+
+
+def jobs(ctx: RunContext) -> list[Job]:
+    """Every page of the site with the data it is made from."""
+    sh = prepare(ctx)
+    return [*fleet_jobs(ctx, sh), *batch_jobs(ctx, sh, list(sh.assets.index), list(sh.tests["test"]))]
+
+
+def batches(sh: Shared, n: int) -> list[tuple[list[Any], list[Any]]]:
+    """The assets (with their tests) shared out into ``n`` batches of about equal work; tests whose asset
+    is not in the registry are shared out too."""
+    load = sh.tests.groupby("asset").size() if len(sh.tests) else pd.Series(dtype=int)
+    cost = (load.reindex(sh.assets.index).fillna(0) + 3).sort_values(ascending=False, kind="stable")
+    out: list[tuple[list[Any], list[Any]]] = [([], []) for _ in range(max(1, n))]
+    work = [0.0] * len(out)
+    for asset, c in cost.items():
+        k = work.index(min(work))
+        out[k][0].append(asset)
+        if asset in sh.tests_by_asset:
+            out[k][1].extend(sh.tests_by_asset[asset]["test"])
+        work[k] += float(c)
+    orphans = sh.tests.loc[~sh.tests["asset"].isin(sh.assets.index), "test"] if len(sh.tests) else []
+    for i, test in enumerate(orphans):
+        out[i % len(out)][1].append(test)
+    return [b for b in out if b[0] or b[1]]
 
 
 def _read_manifest(folder: Path) -> dict[str, Any]:
@@ -246,38 +314,103 @@ class BuildStats:
     reused: int = 0
 
 
+@dataclass
+class _Build:
+    """One build's settings, handed to worker processes by forking (never pickled)."""
+
+    ctx: RunContext
+    shared: Shared
+    folder: Path
+    previous: Path | None
+    old_pages: dict[str, Any]
+    theme: str
+
+
+_CURRENT: _Build | None = None
+
+
+def _emit(b: _Build, job: Job) -> tuple[dict[str, Any], bool]:
+    """Write one page's files into the staging folder: linked from the live site when the page's inputs
+    are unchanged, else rendered. Returns its manifest entry and whether it was rendered."""
+    digest = job.digest(b.theme)
+    files = sorted([job.rel, *job.charts])
+    entry = {"hash": digest, "files": files}
+    prev = b.old_pages.get(job.rel)
+    if b.previous is not None and prev and prev.get("hash") == digest and prev.get("files") == files and \
+            all((b.previous / f).is_file() for f in files):
+        for f in files:
+            _reuse(b.previous / f, b.folder / f)
+        return entry, False
+    for rel, data in render_job(job).items():
+        _write(b.folder / rel, data)
+    return entry, True
+
+
+def _run_batch(batch: tuple[list[Any], list[Any]]) -> tuple[dict[str, Any], int]:
+    """Make, compare and write the pages of one batch (in a worker process when parallel)."""
+    b = _CURRENT
+    assert b is not None, "no build in progress"
+    entries: dict[str, Any] = {}
+    rendered = 0
+    for job in batch_jobs(b.ctx, b.shared, *batch):
+        entries[job.rel], made = _emit(b, job)
+        rendered += made
+    return entries, rendered
+
+
+def _fork_pool(workers: int) -> ProcessPoolExecutor | None:
+    """A pool of forked workers (they share the run's tables without copying), or None where fork is not
+    offered (the build then runs in this process)."""
+    import multiprocessing
+
+    if "fork" not in multiprocessing.get_all_start_methods():
+        return None
+    return ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context("fork"))
+
+
 def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: int | None = None) -> BuildStats:
     """Write the whole site into ``folder``; reuse unchanged pages from ``previous`` (the live site)."""
+    global _CURRENT
     theme = _theme_digest()
-    todo = jobs(ctx)
+    sh = prepare(ctx)
     old = _read_manifest(previous) if previous is not None and previous.is_dir() else {}
     old_pages = old.get("pages", {}) if old.get("theme") == theme else {}
-    manifest: dict[str, Any] = {"theme": theme, "pages": {}}
-    stale: list[Job] = []
-    stats = BuildStats(pages=len(todo))
-    for job in todo:
-        digest = job.digest(theme)
-        files = sorted([job.rel, *job.charts])
-        manifest["pages"][job.rel] = {"hash": digest, "files": files}
-        prev = old_pages.get(job.rel)
-        if previous is not None and prev and prev.get("hash") == digest and prev.get("files") == files and \
-                all((previous / f).is_file() for f in files):
-            for f in files:
-                _write(folder / f, (previous / f).read_bytes())
-            stats.reused += 1
-        else:
-            stale.append(job)
+    b = _Build(ctx, sh, folder, previous if previous is not None and previous.is_dir() else None, old_pages, theme)
+    manifest: dict[str, Any] = {"theme": theme, "pages": {}, "files": {}}
+    stats = BuildStats()
     workers = workers if workers is not None else (os.cpu_count() or 1)
-    if workers > 1 and len(stale) >= PARALLEL_MIN:
-        with ProcessPoolExecutor(max_workers=workers) as pool:
-            _write_all(folder, pool.map(render_job, stale, chunksize=max(1, len(stale) // (workers * 4))))
-    else:
-        _write_all(folder, (render_job(job) for job in stale))
-    stats.rendered = len(stale)
+    pages = 4 + 2 * len(sh.assets) + len(sh.tests)
+    _CURRENT = b
+    try:
+        pool = _fork_pool(workers) if workers > 1 and pages >= PARALLEL_MIN else None
+        if pool is None:
+            done = [_run_batch(batch) for batch in batches(sh, 1)]
+        else:
+            with pool:
+                done = list(pool.map(_run_batch, batches(sh, workers * 4)))
+        for job in fleet_jobs(ctx, sh):
+            entry, made = _emit(b, job)
+            done.append(({job.rel: entry}, int(made)))
+    finally:
+        _CURRENT = None
+    for entries, rendered in done:
+        manifest["pages"].update(entries)
+        stats.pages += len(entries)
+        stats.rendered += rendered
+    stats.reused = stats.pages - stats.rendered
+    old_files = old.get("files", {}) if isinstance(old.get("files"), dict) else {}
     for test in ctx.tests.itertuples():
+        rel = "files/" + "/".join(page_name(p) for p in str(test.source_file).split("/"))
+        sha = getattr(test, "sha256", None)
+        if isinstance(sha, str) and sha and b.previous is not None and old_files.get(rel) == sha and \
+                (b.previous / rel).is_file():
+            _reuse(b.previous / rel, folder / rel)
+            manifest["files"][rel] = sha
+            continue
         raw = ctx.raw_files.get(test.source_file)
         if raw is not None:
-            _write(folder / "files" / "/".join(page_name(p) for p in str(test.source_file).split("/")), raw)
+            _write(folder / rel, raw)
+            manifest["files"][rel] = hashlib.sha256(raw).hexdigest()
     static = importlib.resources.files("loopledger.site").joinpath("static")
     for name in STATIC:
         _write(folder / name, static.joinpath(name).read_bytes())
@@ -285,15 +418,20 @@ def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: 
     return stats
 
 
-def _write_all(folder: Path, made: Iterable[dict[str, bytes]]) -> None:
-    """Write each page's files as it comes, in job order (never in the order workers finish)."""
-    for files in made:
-        for rel, data in files.items():
-            _write(folder / rel, data)
+def _reuse(source: Path, target: Path) -> None:
+    """A file of the live site into the staging folder: a hard link (no copy) where the file system
+    allows, else a copy. Files are never written in place, so a link never changes the live site."""
+    target.parent.mkdir(parents=True, exist_ok=True)
+    try:
+        os.link(source, target)
+    except OSError:
+        shutil.copyfile(source, target)
 
 
 def _write(path: Path, data: bytes) -> None:
     path.parent.mkdir(parents=True, exist_ok=True)
+    if path.is_symlink() or path.exists():
+        path.unlink()  # never write through a link into the live site
     path.write_bytes(data)
 
 

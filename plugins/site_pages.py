@@ -18,7 +18,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from loopledger import quantities as q
-from loopledger.context import RunContext, rows_of
+from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.findings import by_file
 
@@ -323,91 +323,12 @@ def chart_columns(points: pd.DataFrame) -> pd.DataFrame:
     }, index=points.index)
 
 
-def latest_chart_data(points: pd.DataFrame) -> dict[str, Any]:
-    """Points of one test for the error chart (columns of :func:`chart_columns`, made here if missing)."""
-    frame = points[CHART_COLS] if set(CHART_COLS) <= set(points.columns) else chart_columns(points)
-    return {"points": records(frame.sort_values(["phase", "input_pct"]))}
-
-
-def drift_chart_data(ctx: RunContext, asset: str, points: pd.DataFrame) -> dict[str, Any]:
-    """As-found error per test point over the years, with issue 5's fitted drift lines when present."""
-    drift = ctx.extras.get("drift_points")
-    if isinstance(drift, pd.DataFrame) and {"asset", "input_pct", "date", "error_pct_span", "as_left_pct",
-                                            "trims_pct"} <= set(drift.columns):
-        # issue 5's drift points: as-found and as-left per test point, and the trims made before each
-        mine_pts = rows_of(drift, "asset", asset)
-        frame = pd.DataFrame({"date": mine_pts["date"].astype(str), "input_pct": mine_pts["input_pct"].round(3),
-                              "error_pct": mine_pts["error_pct_span"], "as_left_pct": mine_pts["as_left_pct"],
-                              "trims_pct": mine_pts["trims_pct"]}).sort_values(["input_pct", "date"])
-    else:
-        found = points[points["phase"] == "as_found"]
-        frame = pd.DataFrame({"date": found["date"], "input_pct": found["input_pct"].round(3),
-                              "error_pct": found["error_pct_span"]}).sort_values(["input_pct", "date"])
-    fits = ctx.extras.get("drift_fits")
-    lines: list[dict[str, Any]] = []
-    if isinstance(fits, pd.DataFrame) and {"asset", "input_pct", "slope_pct_per_year", "intercept_pct",
-                                           "ref_date"} <= set(fits.columns):
-        mine = rows_of(fits, "asset", asset).sort_values("input_pct")
-        lines = records(mine, ["input_pct", "slope_pct_per_year", "intercept_pct", "ref_date", "n", "stderr"])
-    mpe_pct = (points["mpe"] / points["span"].abs() * 100.0).max() if len(points) else None
-    return {"points": records(frame), "fits": lines, "mpe_pct": plain(mpe_pct), "end": ctx.as_of.isoformat()}
-
-
 # ---------------------------------------------------------------------------------------------
 # page contexts (the dicts the templates receive; also what the incremental build hashes)
 
 POINT_COLS = ["phase", "point", "input", "input_pct", "reading_text", "expected", "measured", "output_unit",
               "error", "error_pct_span", "mpe", "acceptance_limit", "U", "k", "tur", "decision", "decision_rule",
               "ne43_band", "clipped", "line"]
-
-
-def asset_data(ctx: RunContext, row: pd.Series, tests: pd.DataFrame, points: pd.DataFrame,
-               sections: list[dict[str, Any]] | None = None) -> dict[str, Any]:
-    """One asset's page; ``tests`` and ``points`` are that asset's rows only; ``sections`` its plugin blocks
-    (asked for here when not given)."""
-    mine = tests.sort_values(["date", "test"], ascending=False)
-    pts = points
-    latest_pts = pts[pts["test"] == row["last_test"]] if len(pts) else pts
-    reg = {k: plain(v) for k, v in ctx.assets.loc[row["asset"]].items()}
-    data = {"asset": reg, "status": {k: plain(row.get(k)) for k in ASSET_COLS + [
-        "drift_pct_span_per_year", "recommended_interval_months", "last_test"]},
-        "tests": records(mine, TEST_COLS),
-        "latest_chart": latest_chart_data(latest_pts) if len(latest_pts) else None,
-        "drift_chart": drift_chart_data(ctx, str(row["asset"]), pts)
-        if len(pts) and pts["test"].nunique() > 1 else None,
-        "sections": asset_sections(ctx, [str(row["asset"])]).get(str(row["asset"]), [])
-        if sections is None else sections}
-    return data
-
-
-def test_data(ctx: RunContext, test: pd.Series, points: pd.DataFrame, rig: pd.DataFrame,
-              sections: list[dict[str, Any]] | None = None) -> dict[str, Any]:
-    """One test's evidence sheet; ``points`` and ``rig`` (rows of :func:`usage`) are that test's only;
-    ``sections`` its plugin blocks (asked for here when not given)."""
-    tid = test["test"]
-    pts = points.sort_values(["phase", "point"]) if len(points) else points
-    instruments = []
-    for r in rig.itertuples():
-        info = ctx.instruments.loc[r.instrument] if r.known else pd.Series(dtype=object)
-        instruments.append({"role": r.role, "id": r.instrument, "status": r.status, "out_of_cal": bool(r.out_of_cal),
-                            "description": plain(info.get("description")), "serial": plain(info.get("serial")),
-                            "calibrated": plain(info.get("calibrated")), "due": plain(info.get("due")),
-                            "spec": plain(info.get("accuracy")) or plain(info.get("tolerance"))})
-    asset = {k: plain(v) for k, v in ctx.assets.loc[test["asset"]].items()} \
-        if test.get("asset") in ctx.assets.index else {}
-    burden = [(label, plain(test.get(col)), unit) for col, label, unit in BURDEN if col in test.index
-              and plain(test.get(col)) not in (None, "")]
-    analysis = [(label, plain(test.get(col))) for col, label in ANALYSIS if col in test.index
-                and plain(test.get(col)) is not None]
-    cols = [c for c in POINT_COLS if c in pts.columns]
-    return {"test": {k: plain(v) for k, v in test.items()}, "asset": asset, "instruments": instruments,
-            "points": records(pts, cols), "point_cols": cols, "burden": burden, "analysis": analysis,
-            "findings": [{"severity": f.severity, "line": plain(f.line), "field": f.field, "point": f.point,
-                          "message": f.message, "stage": f.stage}
-                         for f in findings_of(ctx, str(test["source_file"]))],
-            "chart": latest_chart_data(pts) if len(pts) else None,
-            "sections": ((test_sections(ctx, [tid]).get(str(tid), []) if sections is None else sections)
-                         if test["valid"] else [])}
 
 
 def findings_of(ctx: RunContext, rel: str) -> list[Any]:
@@ -450,20 +371,31 @@ def instruments_data(ctx: RunContext, used: pd.DataFrame, tests: pd.DataFrame) -
 
 def default_plan(ctx: RunContext, asset: str, tests: pd.DataFrame) -> dict[str, Any]:
     """The rig of the asset's latest valid test (a sensible default for its next test)."""
-    valid = tests[(tests["asset"] == asset) & tests["valid"].astype(bool)].sort_values(["date", "test"]) \
-        if len(tests) else tests
-    plan: dict[str, Any] = {"method": "direct", "shunt_ohm": None, "meter": None, "connection": "standalone"}
-    if len(valid):
-        last = valid.iloc[-1]
-        plan["method"] = plain(last.get("method")) or "direct"
-        plan["meter"] = plain(last.get("meter"))
-        plan["connection"] = plain(last.get("connection")) or "standalone"
-        shunt = plain(last.get("shunt"))
+    return default_plans(ctx, [asset], tests)[asset]
+
+
+def default_plans(ctx: RunContext, assets: list[Any], tests: pd.DataFrame) -> dict[str, dict[str, Any]]:
+    """Per asset, the rig of its latest valid test in ``tests`` (direct reading when it has none)."""
+    plans: dict[str, dict[str, Any]] = {str(a): {"method": "direct", "shunt_ohm": None, "meter": None,
+                                                 "connection": "standalone"}
+             for a in assets}
+    if not len(tests):
+        return plans
+    valid = tests[tests["asset"].isin(assets) & tests["valid"].astype(bool)]
+    last = valid.sort_values(["date", "test"], kind="stable").groupby("asset", sort=False).tail(1)
+    cols = {c: (last[c] if c in last.columns else pd.Series(None, index=last.index, dtype=object)).map(plain)
+            for c in ("method", "meter", "connection", "shunt")}
+    for i, asset in enumerate(last["asset"]):
+        plan = plans[str(asset)]
+        plan["method"] = cols["method"].iloc[i] or "direct"
+        plan["meter"] = cols["meter"].iloc[i]
+        plan["connection"] = cols["connection"].iloc[i] or "standalone"
+        shunt = cols["shunt"].iloc[i]
         if shunt and shunt in ctx.instruments.index:
             plan["shunt_ohm"] = _ohms(ctx.instruments.loc[shunt].get("resistance"))
-    if plan["method"] == "shunt" and plan["shunt_ohm"] is None:
-        plan["method"] = "direct"
-    return plan
+        if plan["method"] == "shunt" and plan["shunt_ohm"] is None:
+            plan["method"] = "direct"
+    return plans
 
 
 def _ratio(text: Any) -> float | None:
@@ -483,67 +415,121 @@ def _ohms(text: Any) -> float | None:
         return None
 
 
-def planned_points(ctx: RunContext, asset: str, points: pd.DataFrame | None = None) -> list[float]:
-    """The input points (% of input range) of the latest valid test, or 0/25/50/75/100 %."""
+def planned_points(ctx: RunContext, assets: list[str], points: pd.DataFrame | None = None) -> dict[str, list[float]]:
+    """Per asset, the input points (% of input range) of its latest valid test, or 0/25/50/75/100 %."""
     pts = ctx.points if points is None else points
+    out = {a: list(DEFAULT_POINTS) for a in assets}
     if len(pts) and "asset" in pts.columns:
-        mine = pts[(pts["asset"] == asset) & (pts["phase"] == "as_found")]
-        if len(mine):
-            last = mine[mine["date"] == mine["date"].max()]
-            last = last[last["test"] == last["test"].max()]
-            values = sorted({round(float(v), 6) for v in last["input_pct"].dropna()})
-            if values:
-                return values
-    return list(DEFAULT_POINTS)
+        found = pts[(pts["phase"] == "as_found") & pts["asset"].isin(assets)]
+        if len(found):
+            last = found.sort_values(["date", "test"], kind="stable").groupby("asset", sort=False)["test"].last()
+            mine = found[found["test"].to_numpy() == found["asset"].map(last).to_numpy()]
+            pcts = mine["input_pct"].astype(float).round(6).dropna()
+            for asset, values in pcts.groupby(mine.loc[pcts.index, "asset"], sort=False):
+                if len(values):
+                    out[str(asset)] = sorted(set(values.tolist()))
+    return out
+
+
+def _planned_frame(ctx: RunContext, plans: dict[str, dict[str, Any]], pcts: dict[str, list[float]]) -> pd.DataFrame:
+    """One row per planned point of every sheet: the registry columns and an injected-input row."""
+    names = [a for a in plans for _ in pcts[a]]
+    values = [p for a in plans for p in pcts[a]]
+    numbers = [i + 1 for a in plans for i in range(len(pcts[a]))]
+    frame = ctx.assets.loc[names].reset_index(drop=True)
+    frame["asset"] = names
+    method = [plans[a].get("method") or "direct" for a in names]
+    connection = [plans[a].get("connection") or "standalone" for a in names]
+    return frame.assign(test="sheet", source_file="(planned)", line=0, phase="as_found", point=numbers,
+                        input=[f"{p:g} %" for p in values], input_value=values, input_written_unit=q.PERCENT,
+                        injection="secondary", method=method, connection=connection, direction=None,
+                        reading=np.nan, reading_unit="", reading_text="", n_readings=0, date=ctx.as_of.isoformat())
+
+
+def _evaluate_planned(ctx: RunContext, frame: pd.DataFrame) -> tuple[pd.DataFrame, dict[str, str]]:
+    """Expected output of the planned rows, one signal type at a time; a note per asset that could not be."""
+    notes: dict[str, str] = {}
+    parts = []
+    for signal, rows in frame.groupby(frame["signal"].astype(str), sort=False):
+        handler = ctx.signal_types.get(signal)
+        if handler is None:
+            notes.update({a: f"no plugin handles signal '{signal}', so no expected values can be given"
+                          for a in rows["asset"].unique()})
+            continue
+        groups = [rows]
+        try:  # a signal type from a site plugin may not expect planned points: the rest of the site must still build
+            evaluated, _ = handler.evaluate(rows, ctx)
+            parts.append(rows.assign(**{c: evaluated[c].to_numpy() for c in evaluated.columns}))
+            continue
+        except Exception:
+            groups = [g for _, g in rows.groupby("asset", sort=False)]
+        for one in groups:  # the batch failed: find which assets, one at a time
+            try:
+                evaluated, _ = handler.evaluate(one, ctx)
+                parts.append(one.assign(**{c: evaluated[c].to_numpy() for c in evaluated.columns}))
+            except Exception as exc:
+                notes[str(one["asset"].iloc[0])] = (
+                    f"the signal type '{signal}' could not work out the planned points "
+                    f"({type(exc).__name__}: {exc}); plan them by hand")
+    return (pd.concat(parts) if parts else frame.iloc[0:0]), notes
 
 
 def sheet_data(ctx: RunContext, asset: str, plan: dict[str, Any], points: pd.DataFrame | None = None,
                sections: list[dict[str, Any]] | None = None) -> dict[str, Any]:
-    """Planned points with expected output and the acceptance window of each, for the rule in force;
-    ``sections`` are the plugins' blocks for the sheet (asked for here when not given)."""
+    """One asset's sheet (see :func:`sheets`)."""
+    return sheets(ctx, {asset: plan}, points, None if sections is None else {asset: sections})[asset]
+
+
+def sheets(ctx: RunContext, plans: dict[str, dict[str, Any]], points: pd.DataFrame | None = None,
+           sections: dict[str, list[dict[str, Any]]] | None = None) -> dict[str, dict[str, Any]]:
+    """Per asset in ``plans``: the planned points with expected output and the acceptance window of each,
+    for the rule in force; ``sections`` are the plugins' blocks for each sheet (asked for here when not
+    given). Worked out for all the sheets at once."""
     from loopledger.plugins import tolerance
 
-    reg = ctx.assets.loc[asset]
-    pcts = planned_points(ctx, asset, points)
-    frame = pd.DataFrame([reg.to_dict()] * len(pcts))
-    frame = frame.assign(test="sheet", source_file="(planned)", line=0, phase="as_found",
-                         point=range(1, len(pcts) + 1), input=[f"{p:g} %" for p in pcts],
-                         input_value=pcts, input_written_unit=q.PERCENT, injection="secondary",
-                         method=plan.get("method") or "direct", connection=plan.get("connection") or "standalone",
-                         direction=None, reading=np.nan, reading_unit="", reading_text="", n_readings=0,
-                         date=ctx.as_of.isoformat())
-    notes: list[str] = []
-    handler = ctx.signal_types.get(str(reg.get("signal")))
-    empty = {"asset": {k: plain(v) for k, v in reg.items()}, "plan": plain(plan), "rows": [], "rule": "",
-             "unit": str(reg.get("output_unit") or ""), "ct_ratio": None, "sections": []}
-    if handler is None:
-        return {**empty, "notes": [f"no plugin handles signal '{reg.get('signal')}', so no expected values "
-                                   "can be given"]}
-    try:  # a signal type from a site plugin may not expect planned points: the rest of the site must still build
-        evaluated, _ = handler.evaluate(frame, ctx)
-        for col in evaluated.columns:
-            frame[col] = evaluated[col].to_numpy()
-    except Exception as exc:
-        return {**empty, "notes": [f"the signal type '{reg.get('signal')}' could not work out the planned points "
-                                   f"({type(exc).__name__}: {exc}); plan them by hand"]}
-    frame["span"] = float(reg["output_max"]) - float(reg["output_min"])
-    frame["mpe"], _ = tolerance.mpe(frame)
-    frame["error"] = 0.0
+    sections = sheet_sections(ctx, plans) if sections is None else sections
+    frame = _planned_frame(ctx, plans, planned_points(ctx, list(plans), points))
+    frame, failed = _evaluate_planned(ctx, frame)
+    notes: dict[str, list[str]] = {a: [] for a in plans}
     rule_name = str(ctx.section("decision").get("rule", "simple"))
-    rule = ctx.decision_rules.get(rule_name)
-    frame["accept"] = frame["mpe"]
-    if rule is not None:
-        missing = [c for c in rule.needs if c not in frame.columns]
-        if missing:
-            notes.append(f"The rule '{rule_name}' needs {', '.join(missing)}, known only after the readings are "
-                         "taken; the window below is the MPE and a reading near its edge must be judged "
-                         "after the run.")
-        else:
-            try:
-                frame["accept"] = rule.decide(frame, ctx)["acceptance_limit"].to_numpy()
-            except (KeyError, ValueError, TypeError) as exc:  # a rule that cannot judge a planned point
-                notes.append(f"The rule '{rule_name}' could not give a window before the test ({exc}); "
-                             "the window shown is the MPE.")
+    if len(frame):
+        frame["span"] = frame["output_max"].astype(float) - frame["output_min"].astype(float)
+        frame["mpe"], _ = tolerance.mpe(frame)
+        frame["error"] = 0.0
+        frame["accept"] = frame["mpe"]
+        rule = ctx.decision_rules.get(rule_name)
+        if rule is not None:
+            missing = [c for c in rule.needs if c not in frame.columns]
+            if missing:
+                for a in plans:
+                    notes[a].append(f"The rule '{rule_name}' needs {', '.join(missing)}, known only after the "
+                                    "readings are taken; the window below is the MPE and a reading near its edge "
+                                    "must be judged after the run.")
+            else:
+                try:
+                    frame["accept"] = rule.decide(frame, ctx)["acceptance_limit"].to_numpy()
+                except (KeyError, ValueError, TypeError) as exc:  # a rule that cannot judge a planned point
+                    for a in plans:
+                        notes[a].append(f"The rule '{rule_name}' could not give a window before the test ({exc}); "
+                                        "the window shown is the MPE.")
+    cols = ("input_value", "injected", "injected_unit", "expected", "accept", "mpe")
+    lists = [frame[c].tolist() if c in frame.columns else [None] * len(frame) for c in cols]
+    where = frame.groupby("asset", sort=False).indices if len(frame) else {}
+    return {a: _sheet(ctx, a, plan, [tuple(col[i] for col in lists) for i in where[a]] if a in where else None,
+                      failed.get(a), notes[a], rule_name, sections.get(a, []))
+            for a, plan in plans.items()}
+
+
+def _sheet(ctx: RunContext, asset: str, plan: dict[str, Any], points: list[tuple[Any, ...]] | None,
+           failed: str | None, notes: list[str], rule_name: str, sections: list[dict[str, Any]]) -> dict[str, Any]:
+    """One sheet from its planned ``points``: (input %, injected, injected unit, expected, window, MPE)."""
+    reg = ctx.assets.loc[asset]
+    if points is None or failed:
+        return {"asset": {k: plain(v) for k, v in reg.items()}, "plan": plain(plan), "rows": [], "rule": "",
+                "unit": str(reg.get("output_unit") or ""), "ct_ratio": None, "sections": [],
+                "notes": [failed or f"no plugin handles signal '{reg.get('signal')}', so no expected values "
+                                    "can be given"]}
+    notes = list(notes)
     meter = plan.get("meter")
     if meter and meter in ctx.instruments.index:
         status = cal_status(ctx.instruments.at[meter, "calibrated"] if "calibrated" in ctx.instruments else None,
@@ -556,22 +542,20 @@ def sheet_data(ctx: RunContext, asset: str, plan: dict[str, Any], points: pd.Dat
     rows = []
     to_amps = q.affine(unit, "A") if unit else None
     ratio = _ratio(reg.get("ct_ratio"))
-    for r in frame.itertuples():
-        row = {"input_pct": plain(r.input_value), "input": plain(getattr(r, "injected", None)),
-               "input_unit": plain(getattr(r, "injected_unit", None)), "expected": plain(r.expected),
-               "low": plain(r.expected - r.accept), "high": plain(r.expected + r.accept), "accept": plain(r.accept),
-               "mpe": plain(r.mpe)}
+    for pct, injected, injected_unit, expected, accept, mpe in points:
+        row = {"input_pct": plain(pct), "input": plain(injected), "input_unit": plain(injected_unit),
+               "expected": plain(expected), "low": plain(expected - accept), "high": plain(expected + accept),
+               "accept": plain(accept), "mpe": plain(mpe)}
         if ratio is not None and row["input"] is not None:
             row["primary"] = row["input"] * ratio
         if ohm and to_amps is not None:
             a, b = to_amps
-            row["v_expected"] = plain((a * r.expected + b) * ohm)
-            row["v_low"] = plain((a * (r.expected - r.accept) + b) * ohm)
-            row["v_high"] = plain((a * (r.expected + r.accept) + b) * ohm)
+            row["v_expected"] = plain((a * expected + b) * ohm)
+            row["v_low"] = plain((a * (expected - accept) + b) * ohm)
+            row["v_high"] = plain((a * (expected + accept) + b) * ohm)
         rows.append(row)
     if ohm and to_amps is None:
         notes.append(f"The output unit {unit} is not a current, so no volts across the shunt are given.")
     ct = plain(reg.get("ct_ratio"))
     return {"asset": {k: plain(v) for k, v in reg.items()}, "plan": plain(plan), "rows": rows, "notes": notes,
-            "rule": rule_name, "ct_ratio": ct, "unit": unit,
-            "sections": sheet_sections(ctx, {asset: plan}).get(asset, []) if sections is None else sections}
+            "rule": rule_name, "ct_ratio": ct, "unit": unit, "sections": sections}

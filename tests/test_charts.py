@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import pandas as pd
-from loopledger.plugins import charts, site_pages
+from loopledger.plugins import charts, page_rows
 
 from tests.evidence import good_points, result_yaml, write_evidence
 
@@ -17,7 +17,7 @@ def test_drift_line_follows_readings_after_an_adjustment(tmp_path, run_folder):
                                          as_left=good_points(left) if left is not None else None)
                for i, (d, f, left) in enumerate(HISTORY)}
     ctx = run_folder(write_evidence(tmp_path / "ev", results, config="as_of = 2025-06-01\n"))
-    data = site_pages.drift_chart_data(ctx, "T-CT1", ctx.points)
+    data = page_rows.drift_charts(ctx, ctx.assets.loc[["T-CT1"]], ctx.points)["T-CT1"]
     pts = pd.DataFrame(data["points"])
     fit = data["fits"][0]
     assert {"trims_pct", "as_left_pct"} <= set(pts.columns)
