@@ -36,6 +36,46 @@ def read_bounded(path: Path, limit: int) -> bytes:
     return data
 
 
+#: parse in worker processes only when at least this many files are new (process start-up costs)
+PARALLEL_MIN = 400
+
+_PARSING: tuple[Any, int] | None = None  # (plugin manager, size limit), handed to forked workers
+
+
+def _parse_one(source: SourceFile) -> tuple[bytes | None, str, Any, str]:
+    """(bytes, sha256, ResultRead or None, what went wrong) for one file; run in a forked worker."""
+    assert _PARSING is not None
+    pm, limit = _PARSING
+    try:
+        data = read_bounded(source.path, limit)
+    except (OSError, ValueError) as exc:
+        return None, "", None, str(exc)
+    sha = hashlib.sha256(data).hexdigest()
+    try:
+        return data, sha, pm.hook.ll_read_result(path=source.path, rel=source.rel, data=data), ""
+    except Exception as exc:  # reported by the caller as a reader bug, as in the serial path
+        return data, sha, None, f"{type(exc).__name__}: {exc}"
+
+
+def parse_ahead(ctx: Any, files: list[SourceFile], workers: int | None = None) -> dict[str, Any]:
+    """Read and parse many files over the machine's cores (forked workers share the plugins without
+    copying); {rel: result of :func:`_parse_one`}. Empty when too few files or fork is not offered."""
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor
+
+    global _PARSING
+    workers = workers if workers is not None else (os.cpu_count() or 1)
+    if workers < 2 or len(files) < PARALLEL_MIN or "fork" not in multiprocessing.get_all_start_methods():
+        return {}
+    _PARSING = (ctx.pm, int(ctx.config["limits"]["max_file_bytes"]))
+    try:
+        with ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork")) as pool:
+            done = pool.map(_parse_one, files, chunksize=max(1, len(files) // (workers * 8)))
+            return {f.rel: r for f, r in zip(files, done, strict=True)}
+    finally:
+        _PARSING = None
+
+
 def read_files(ctx: Any, files: Iterable[SourceFile],
                progress: Callable[[int], None] | None = None,
                parsed: dict[tuple[str, str], Any] | None = None) -> list[Finding]:
@@ -52,32 +92,45 @@ def read_files(ctx: Any, files: Iterable[SourceFile],
     tests: list[dict[str, Any]] = []
     points: list[dict[str, Any]] = []
     header_lines: dict[str, dict[str, int]] = {}
+    files = list(files)
+    known = {rel for rel, _sha in previous}
+    ahead = parse_ahead(ctx, [f for f in files if f.rel not in known])
     for source in files:
         row: dict[str, Any] = {"test": test_id(source.rel), "source_file": source.rel, "sha256": "",
                                "valid": True}
         tests.append(row)
         if progress:
             progress(1)
-        try:
-            data = read_bounded(source.path, int(limits["max_file_bytes"]))
-        except (OSError, ValueError) as exc:
-            findings.append(error(f"cannot read: {exc}", file=source.rel, code="unreadable"))
+        early = ahead.get(source.rel)
+        if early is not None:
+            data, row["sha256"], read, problem = early
+        else:
+            try:
+                data, problem = read_bounded(source.path, int(limits["max_file_bytes"])), ""
+            except (OSError, ValueError) as exc:
+                data, problem = None, str(exc)
+            row["sha256"] = hashlib.sha256(data).hexdigest() if data is not None else ""
+            read = None
+        if data is None:
+            findings.append(error(f"cannot read: {problem}", file=source.rel, code="unreadable"))
             row["valid"] = False
             continue
-        row["sha256"] = hashlib.sha256(data).hexdigest()
         ctx.raw_files[source.rel] = data
         key = (source.rel, row["sha256"])
         try:
-            read = previous.get(key)
-            if read is None:
-                read = ctx.pm.hook.ll_read_result(path=source.path, rel=source.rel, data=data)
-            if read is not None:
-                kept[key] = read
+            if early is None:
+                read = previous.get(key)
+                if read is None:
+                    read = ctx.pm.hook.ll_read_result(path=source.path, rel=source.rel, data=data)
         except Exception as exc:  # a reader plugin's bug must not stop the other files
-            findings.append(error(f"the reader failed on this file ({type(exc).__name__}: {exc}); this is a "
-                                  "bug in a reader plugin, please report it", file=source.rel, code="reader"))
+            problem = f"{type(exc).__name__}: {exc}"
+        if problem:
+            findings.append(error(f"the reader failed on this file ({problem}); this is a bug in a reader plugin, "
+                                  "please report it", file=source.rel, code="reader"))
             row["valid"] = False
             continue
+        if read is not None:
+            kept[key] = read
         if read is None:
             findings.append(error("no plugin reads this kind of file", file=source.rel, code="format"))
             row["valid"] = False

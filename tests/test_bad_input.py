@@ -160,3 +160,29 @@ def test_decimal_comma_split_by_yaml_flow_syntax_is_named(tmp_path, run_folder):
     text = text.replace("- input: 50 %\n  reading: 12,010 mA", "- {input: 50 %, reading: 12,010 mA}")
     errs = _run(tmp_path, "bad.yaml", text, run_folder)
     assert any("split at a comma" in f.message and f.point == "as_found #3" for f in errs), errs
+
+
+def test_parsing_over_several_processes_gives_what_one_process_gives(tmp_path, pm, monkeypatch):
+    """Good, broken, binary and oversized files read in forked workers give the same tables and findings."""
+    from loopledger import load, runner
+
+    files = {f"t{i}.yaml": result_yaml(as_found=good_points(0.01 * i), date=f"2026-03-0{i + 1}") for i in range(4)}
+    files["broken.yaml"] = "asset: T-CT1\ndate: [2026-03-01\n"
+    ev = write_evidence(tmp_path / "ev", files, config="[limits]\nmax_file_bytes = 4000\n")
+    (ev / "results" / "binary.csv").write_bytes(b"\x00\xff\xfe" * 50)
+    (ev / "results" / "huge.yaml").write_text("remarks: " + "x" * 5000 + "\n", encoding="utf-8")
+
+    def judged() -> tuple[Any, Any, list[str]]:
+        ctx = runner.run(runner.RunOptions(ev), pm)
+        return ctx.tests, ctx.points, sorted(f.format() for f in ctx.findings)
+
+    serial = judged()
+    monkeypatch.setattr(load, "PARALLEL_MIN", 1)
+    ahead: list[dict[str, Any]] = []
+    real = load.parse_ahead
+    monkeypatch.setattr(load, "parse_ahead", lambda ctx, files, workers=2: ahead.append(real(ctx, files, workers))
+                        or ahead[-1])
+    parallel = judged()
+    assert len(ahead[0]) == 7, "the files were not parsed in worker processes"
+    assert parallel[2] == serial[2] and any("huge.yaml" in f and "limit" in f for f in serial[2])
+    assert parallel[0].equals(serial[0]) and parallel[1].equals(serial[1])
