@@ -1,16 +1,18 @@
 """Publish: the static HTML handbook of every asset's test history, and the ``sheet`` command.
 
 Pages: ``index.html`` (fleet status at ``as_of``), ``assets/<asset>.html``,
-``tests/<test>.html`` (one evidence sheet per test), ``sheets/<asset>.html``
-(printable test sheet to take to site), ``overdue.html``, ``failures.html``,
-``instruments.html``, SVG charts under ``charts/`` and a copy of each original
-result file under ``files/``. Page data comes from :mod:`site_pages`, charts from
-:mod:`charts`; templates and CSS live in the site/ theme.
+``tests/<test>.html`` (one evidence sheet per test, its chart drawn into it as inline
+SVG so the page is one self-contained file), ``sheets/<asset>.html`` (printable test
+sheet to take to site), ``overdue.html``, ``failures.html``, ``instruments.html``, and
+a copy of each original result file under ``files/``. Page data comes from
+:mod:`site_pages` and :mod:`page_rows`, charts from :mod:`charts`; templates and CSS
+live in the site/ theme.
 
-The site is built in a staging folder and swapped into place whole. A manifest
-(``.manifest.json`` in the site) keeps a hash of each page's inputs; a page whose
-hash is unchanged is copied from the previous site instead of being rendered.
-Pages to render are spread over the machine's cores when there are many.
+The site is built in a staging folder and swapped into place whole. The fleet is
+split into batches (each asset with its tests), made in forked worker processes
+when there are many pages. A manifest (``.manifest.json`` in the site) keeps a hash
+of each page's inputs and of each copied file; an unchanged page or file is hard-linked
+from the previous site instead of being rendered or written again.
 """
 
 from __future__ import annotations
@@ -138,39 +140,31 @@ def _theme_digest() -> str:
 
 @dataclass
 class Job:
-    """One page to write: its template and data, the charts it owns (``rel`` -> kind, data, title) and
-    the charts it only shows (``refs``: another page owns the file; their data makes the text alternative)."""
+    """One page to write: its template and data, and the charts it shows inline (page-data key -> kind,
+    data, title; the chart's SVG and text alternative are drawn when the page is rendered)."""
 
     rel: str
     template: str
     data: dict[str, Any]
     charts: dict[str, tuple[str, dict[str, Any], str]] = field(default_factory=dict)
-    refs: dict[str, tuple[str, dict[str, Any]]] = field(default_factory=dict)
 
     def digest(self, theme: str) -> str:
-        blob = json.dumps([theme, self.rel, self.template, self.data, self.charts, self.refs], sort_keys=True,
+        blob = json.dumps([theme, self.rel, self.template, self.data, self.charts], sort_keys=True,
                           ensure_ascii=False, default=str, allow_nan=False)
         return hashlib.sha256(blob.encode("utf-8")).hexdigest()
 
 
-def render_job(job: Job) -> dict[str, bytes]:
-    """The files of one page: the HTML and the SVG charts it owns."""
+def render_job(job: Job) -> bytes:
+    """One page's HTML, its charts drawn into it as inline SVG (a test page is one self-contained file)."""
     from loopledger.plugins import charts
 
-    out: dict[str, bytes] = {}
-    alts: dict[str, str] = {}
-    for rel, (kind, data, title) in sorted(job.charts.items()):
-        draw = charts.error_chart if kind == "error" else charts.drift_chart
-        out[rel] = draw(data, title).encode("utf-8")
-    shown = {**{rel: (kind, data) for rel, (kind, data, _title) in job.charts.items()}, **job.refs}
-    for rel, (kind, data) in shown.items():
-        alts[rel] = charts.error_alt(data) if kind == "error" else charts.drift_alt(data)
     page = dict(job.data)
-    for key in ("latest_chart", "drift_chart", "chart"):  # text alternatives: made here, from the hashed data
-        if isinstance(page.get(key), dict):
-            page[key] = {**page[key], "alt": alts.get(page[key]["src"], "")}
-    out[job.rel] = environment().get_template(job.template).render(**page).encode("utf-8")
-    return out
+    for key, (kind, data, title) in job.charts.items():
+        if kind == "error":
+            page[key] = {"svg": charts.error_chart(data, title), "alt": charts.error_alt(data)}
+        else:
+            page[key] = {"svg": charts.drift_chart(data, title), "alt": charts.drift_alt(data)}
+    return environment().get_template(job.template).render(**page).encode("utf-8")
 
 
 def _depth(rel: str) -> str:
@@ -205,9 +199,8 @@ def prepare(ctx: RunContext) -> Shared:
                   points, by_asset, pr.registry_rows(ctx), pr.instrument_rows(ctx))
 
 
-def _job(sh: Shared, rel: str, template: str, data: dict[str, Any], charts: dict[str, Any] | None = None,
-         refs: dict[str, Any] | None = None) -> Job:
-    return Job(rel, template, {**sh.common, **data, "root": _depth(rel), "page_rel": rel}, charts or {}, refs or {})
+def _job(sh: Shared, rel: str, template: str, data: dict[str, Any], charts: dict[str, Any] | None = None) -> Job:
+    return Job(rel, template, {**sh.common, **data, "root": _depth(rel), "page_rel": rel}, charts or {})
 
 
 def fleet_jobs(ctx: RunContext, sh: Shared) -> list[Job]:
@@ -243,31 +236,22 @@ def batch_jobs(ctx: RunContext, sh: Shared, asset_ids: list[Any], test_ids: list
     plans = sp.default_plans(ctx, list(assets["asset"]), tests)
     sheets = sp.sheets(ctx, plans, points, sp.sheet_sections(ctx, plans))
     out: list[Job] = []
-    for name, ident, last_page in zip(assets["page"], assets["asset"], assets["last_page"], strict=True):
+    for name, ident, last_date in zip(assets["page"], assets["asset"], assets["last_date"], strict=True):
         data = asset_pages[ident]
         charts: dict[str, Any] = {}
-        refs: dict[str, Any] = {}
-        if data["latest_chart"]:  # the latest test's own chart (same points, same title): drawn once, on its page
-            rel = f"charts/test-{last_page}.svg"
-            refs[rel] = ("error", data["latest_chart"])
-            data["latest_chart"] = {"src": rel}
+        if data["latest_chart"]:  # the same chart as the latest test's page
+            charts["latest_chart"] = ("error", data.pop("latest_chart"), f"{ident}: test of {last_date}")
         if data["drift_chart"]:
-            rel = f"charts/{name}-history.svg"
-            charts[rel] = ("drift", data["drift_chart"], f"{ident}: as-found error by year")
-            data["drift_chart"] = {"src": rel}
-        out.append(_job(sh, f"assets/{name}.html", "asset.html", data, charts, refs))
+            charts["drift_chart"] = ("drift", data.pop("drift_chart"), f"{ident}: as-found error by year")
+        out.append(_job(sh, f"assets/{name}.html", "asset.html", data, charts))
         out.append(_job(sh, f"sheets/{name}.html", "sheet.html", {"sheet": sheets[str(ident)],
                                                                    "asset_page": f"{name}.html"}))
     for tid, page, asset, date, remarks in zip(tests["test"], tests["page"], tests["asset"], tests["date"],
                                                tests["remarks"] if "remarks" in tests else [None] * len(tests),
                                                strict=True):
         data = dict(test_pages[tid])
-        if data["chart"]:
-            rel = f"charts/test-{page}.svg"
-            data["chart"] = {"src": rel}
-            charts = {rel: ("error", test_pages[tid]["chart"], f"{asset}: test of {date}")}
-        else:
-            charts = {}
+        chart = data.pop("chart")
+        charts = {"chart": ("error", chart, f"{asset}: test of {date}")} if chart else {}
         data["remarks_html"] = render_markdown(remarks)
         data["has_asset"] = asset in ctx.assets.index
         out.append(_job(sh, f"tests/{page}.html", "test.html", data, charts))
@@ -330,19 +314,15 @@ _CURRENT: _Build | None = None
 
 
 def _emit(b: _Build, job: Job) -> tuple[dict[str, Any], bool]:
-    """Write one page's files into the staging folder: linked from the live site when the page's inputs
-    are unchanged, else rendered. Returns its manifest entry and whether it was rendered."""
+    """Write one page into the staging folder: linked from the live site when its inputs are unchanged,
+    else rendered. Returns its manifest entry and whether it was rendered."""
     digest = job.digest(b.theme)
-    files = sorted([job.rel, *job.charts])
-    entry = {"hash": digest, "files": files}
+    entry = {"hash": digest}
     prev = b.old_pages.get(job.rel)
-    if b.previous is not None and prev and prev.get("hash") == digest and prev.get("files") == files and \
-            all((b.previous / f).is_file() for f in files):
-        for f in files:
-            _reuse(b.previous / f, b.folder / f)
+    if b.previous is not None and prev and prev.get("hash") == digest and (b.previous / job.rel).is_file():
+        _reuse(b.previous / job.rel, b.folder / job.rel)
         return entry, False
-    for rel, data in render_job(job).items():
-        _write(b.folder / rel, data)
+    _write(b.folder / job.rel, render_job(job))
     return entry, True
 
 
