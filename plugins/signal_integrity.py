@@ -143,15 +143,18 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
 def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
     if "ne43_band" not in ctx.points:
         return {}
-    pts = ctx.points[ctx.points["test"].isin(tests)]
-    per_test = pd.DataFrame({"n": pts.groupby("test", sort=False).size(),
-                             "banded": pts["ne43_band"].ne("n/a").groupby(pts["test"], sort=False).any()})
-    odd = pts["ne43_band"].isin(OUTSIDE) | pts["clipped"]
-    shown = per_test[per_test["banded"]]  # a page for tests with a 4-20 mA output only
+    columns = ["test", "phase", "point", "ne43_band", "clipped", "measured", "output_unit", "output_min", "output_max"]
+    pts = ctx.points.loc[ctx.points["test"].isin(tests), columns]  # the columns first: the table is wide
+    count = pts["test"].value_counts(sort=False).to_dict()
+    banded = pd.unique(pts.loc[pts["ne43_band"] != "n/a", "test"])  # a page for tests with a 4-20 mA output only
     out = {str(test): [Section(title="Signal integrity (NAMUR NE 43)", kind="text", order=45,
-                               text=f"All {n} readings lie in the NE 43 measuring range 3.8-20.5 mA; no clipping.")]
-           for test, n in zip(shown.index, shown["n"].tolist(), strict=True)}
-    bad = pts[odd & pts["test"].isin(shown.index)].sort_values(["test", "phase", "point"])
+                               text=f"All {count[test]} readings lie in the NE 43 measuring range 3.8-20.5 mA; "
+                                    "no clipping.")]
+           for test in banded}
+    bad = pts[(pts["ne43_band"].isin(OUTSIDE) | pts["clipped"]) & pts["test"].isin(banded)]
+    if bad.empty:
+        return out
+    bad = bad.sort_values(["test", "phase", "point"])
     ma, _ = output_ma(bad)
     rows = grouped(bad["test"].tolist(), [
         [str(p.phase).replace("_", "-"), p.point, f"{m:.3f} mA", p.ne43_band,
