@@ -29,10 +29,11 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from loopledger.context import RunContext
-from loopledger.contracts import Section, each
+from loopledger.contracts import Section
 from loopledger.findings import Finding, error
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import history
+from loopledger.plugins._cells import cells, grouped
 
 DAYS_PER_YEAR = 365.25
 DEFAULTS: dict[str, Any] = {"min_tests": 3, "significance": 0.05, "horizon_years": 100.0}
@@ -157,12 +158,8 @@ def compute(ctx: RunContext) -> pd.DataFrame:
     return ctx.extras["drift_assets"]  # type: ignore[no-any-return]
 
 
-def _num(value: object, fmt: str) -> str:
-    return "—" if value is None or pd.isna(value) else format(value, fmt)  # type: ignore[arg-type]
-
-
-def _date(value: object) -> str:
-    return value if isinstance(value, str) and value else "—"
+def _dates(values: pd.Series) -> list[str]:
+    return [v if isinstance(v, str) and v else "—" for v in values.tolist()]
 
 
 @hookimpl
@@ -192,21 +189,20 @@ def ll_configure(config: dict[str, Any]) -> list[Finding]:
 
 @hookimpl
 def ll_asset_sections(ctx: RunContext, assets: list[str]) -> dict[str, list[Section]]:
-    return each(assets, lambda asset: asset_sections(ctx, asset))
-
-
-def asset_sections(ctx: RunContext, asset: str) -> list[Section]:
     compute(ctx)
-    mine = history.records_of(ctx, "drift_fits", asset)
-    if not mine:
-        return []
-    rows = [[f"{r['input_pct']:g} %", str(r["n"]), _num(r["slope_pct_per_year"], "+.4f"), _num(r["stderr"], ".4f"),
-             _num(r["p_value"], ".3f"), _num(r["fitted_now_pct"], "+.3f"), _num(r["mpe_pct"], ".3f"), r["status"],
-             _date(r["predicted_acceptance_limit"]), _date(r["predicted_out_of_tolerance"])] for r in mine]
-    return [Section(title="Drift per test point (as-found error vs time, reset at each adjustment)", kind="table",
-                    columns=["Point", "Tests", "Drift % span/yr", "Std error", "p", "Fitted error at last test % span",
-                             "MPE % span", "Trend", "Reaches acceptance limit", "Reaches MPE"],
-                    rows=rows, order=32)]
+    fits = ctx.extras["drift_fits"]
+    mine = fits[fits["asset"].isin(assets)]
+    columns = zip(cells(mine["input_pct"], "%g %%"), [str(v) for v in mine["n"].tolist()],
+                  cells(mine["slope_pct_per_year"], "%+.4f"), cells(mine["stderr"], "%.4f"),
+                  cells(mine["p_value"], "%.3f"), cells(mine["fitted_now_pct"], "%+.3f"),
+                  cells(mine["mpe_pct"], "%.3f"), mine["status"].tolist(),
+                  _dates(mine["predicted_acceptance_limit"]), _dates(mine["predicted_out_of_tolerance"]), strict=True)
+    return {asset: [Section(title="Drift per test point (as-found error vs time, reset at each adjustment)",
+                            kind="table", rows=rows, order=32,
+                            columns=["Point", "Tests", "Drift % span/yr", "Std error", "p",
+                                     "Fitted error at last test % span", "MPE % span", "Trend",
+                                     "Reaches acceptance limit", "Reaches MPE"])]
+            for asset, rows in grouped(mine["asset"], map(list, columns)).items()}
 
 
 @hookimpl

@@ -29,7 +29,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 from loopledger.context import RunContext
-from loopledger.contracts import Section, each
+from loopledger.contracts import Section
 from loopledger.findings import Finding, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins.burden import fmt
@@ -189,18 +189,18 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
 
 @hookimpl
 def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
-    return each(tests, lambda test: test_sections(ctx, test))
-
-
-def test_sections(ctx: RunContext, test: str) -> list[Section]:
     sig = ctx.extras.get("fault_signatures")
-    if sig is None or test not in sig.index.get_level_values("test"):
-        return []
-    rows = sig.xs(test, level="test")
-    found = [(str(phase).replace("_", "-"), f"{r['signature']}: {r['detail']}")
-             for phase, r in rows.iterrows() if r["signature"]]
-    if not found:
-        return [Section(title="Fault signature", kind="text", order=46,
-                        text="No fault pattern found (signatures are read only when a point fails, "
-                             "except for unsteady repeats).")]
-    return [Section(title="Fault signature", kind="facts", rows=found, order=46)]
+    if sig is None:
+        return {}
+    mine = sig[sig.index.get_level_values("test").isin(tests)]
+    found: dict[str, list[tuple[str, str]]] = {}
+    for (test, phase), label, detail in zip(mine.index, mine["signature"].tolist(), mine["detail"].tolist(),
+                                            strict=True):
+        facts = found.setdefault(str(test), [])
+        if label:
+            facts.append((str(phase).replace("_", "-"), f"{label}: {detail}"))
+    return {test: [Section(title="Fault signature", kind="facts", rows=facts, order=46) if facts else
+                   Section(title="Fault signature", kind="text", order=46,
+                           text="No fault pattern found (signatures are read only when a point fails, "
+                                "except for unsteady repeats).")]
+            for test, facts in found.items()}

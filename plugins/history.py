@@ -14,14 +14,13 @@ test's verdict, adjusted flag, technician, method and instruments.
 
 from __future__ import annotations
 
-from typing import Any
-
 import numpy as np
 import pandas as pd
 from loopledger.context import RunContext
-from loopledger.contracts import Section, each
+from loopledger.contracts import Section
 from loopledger.findings import Finding
 from loopledger.hookspecs import hookimpl
+from loopledger.plugins._cells import cells, grouped, texts
 
 #: input % is matched between tests to the nearest multiple of this step (% of range), so a set
 #: point injected at 24.8 % one year and 25.1 % the next is one test point
@@ -79,50 +78,42 @@ def _assemble(points: pd.DataFrame, tests: pd.DataFrame) -> pd.DataFrame:
     return out.sort_values(["asset", "date", "test", "input_pct"], kind="stable").reset_index(drop=True)[COLUMNS]
 
 
-def records_of(ctx: RunContext, name: str, value: str, by: str = "asset") -> list[dict[str, Any]]:
-    """The rows of ``ctx.extras[name]`` whose ``by`` column is ``value``, as dicts (NaN kept).
+def asset_tables(hist: pd.DataFrame) -> dict[str, tuple[list[str], list[list[str]]]]:
+    """Columns and rows of the history table of each asset page (newest test first), for all at once.
 
-    Grouped once per run and kept: pages are built one asset / one test at a time, and filtering
-    the whole table per page would cost pages × rows.
+    ``hist`` is (a selection of) the history table, in its (asset, date, test, input_pct) order.
+    A row per test (date, verdict, technician, rig), a column per test point of the asset (its
+    inputs in order), each cell ``as-found / as-left``; "" where a test has no such point.
     """
-    cache = ctx.extras.setdefault("_grouped", {})
-    if (name, by) not in cache:
-        frame = ctx.extras.get(name)
-        groups: dict[str, list[dict[str, Any]]] = {}
-        if frame is not None and not frame.empty:
-            for rec in frame.to_dict("records"):
-                groups.setdefault(str(rec[by]), []).append(rec)
-        cache[(name, by)] = groups
-    return cache[(name, by)].get(value, [])  # type: ignore[no-any-return]
-
-
-def _missing(value: object) -> bool:
-    return value is None or (isinstance(value, float) and np.isnan(value)) or value is pd.NaT
-
-
-def _fmt(value: Any) -> str:
-    return "—" if _missing(value) else f"{value:+.3f}"
-
-
-def _text(value: object) -> str:
-    return "" if _missing(value) else str(value)
-
-
-def asset_table(records: list[dict[str, Any]]) -> tuple[list[str], list[list[str]]]:
-    """Columns and rows of the history table on an asset page (newest test first)."""
-    inputs = sorted({r["input_pct"] for r in records})
-    columns = ["Date", "Verdict", "Technician", "Rig", *[f"{x:g} %: found / left" for x in inputs]]
-    tests: dict[tuple[str, str], dict[str, Any]] = {}
-    for r in records:
-        entry = tests.setdefault((str(r["date"]), str(r["test"])), {"first": r, "cells": {}})
-        entry["cells"][r["input_pct"]] = f"{_fmt(r['as_found_pct'])} / {_fmt(r['as_left_pct'])}"
-    rows = []
-    for (date, _test), entry in sorted(tests.items(), reverse=True):
-        first = entry["first"]
-        rig = ", ".join(x for x in (_text(first[k]) for k in ("method", "source", "meter", "shunt")) if x)
-        rows.append([date, _text(first["verdict"]), _text(first["technician"]), rig,
-                     *[entry["cells"].get(x, "") for x in inputs]])
-    return columns, rows
+    asset, names = pd.factorize(hist["asset"])  # 0, 0, ..., 1, 1, ...: each asset's points are together
+    first = ~hist["test"].duplicated().to_numpy()  # each test's first point
+    test_of = first.cumsum() - 1  # each point's test, counting tests in table order
+    owner = asset[first]  # each test's asset
+    begin = np.searchsorted(owner, np.arange(len(names)), side="left")  # each asset's tests, oldest first
+    end = np.searchsorted(owner, np.arange(len(names)), side="right")
+    at = begin[owner] + end[owner] - 1 - np.arange(len(owner))  # row of each test: newest first
+    col = hist["input_pct"].groupby(asset).rank(method="dense").to_numpy(dtype=int) - 1  # column of each point
+    width = int(col.max()) + 1 if len(col) else 0
+    grid = np.full((len(owner), 4 + width), "", dtype=object)
+    heads = hist[first]
+    text = {f: texts(heads[f]) for f in ("date", "verdict", "technician", "method", "source", "meter", "shunt")}
+    grid[at, 0] = text["date"]
+    grid[at, 1] = text["verdict"]
+    grid[at, 2] = text["technician"]
+    grid[at, 3] = [", ".join(filter(None, rig))
+                   for rig in zip(text["method"], text["source"], text["meter"], text["shunt"], strict=True)]
+    grid[at[test_of], 4 + col] = [f"{a} / {b}" for a, b in zip(cells(hist["as_found_pct"], "%+.3f"),
+                                                               cells(hist["as_left_pct"], "%+.3f"), strict=True)]
+    rows = grid.tolist()
+    # each asset's inputs in order: one point per (asset, column)
+    _, one = np.unique(asset * width + col, return_index=True)
+    inputs = grouped(asset[one].tolist(), hist["input_pct"].to_numpy()[one].tolist())
+    out = {}
+    for a, name in enumerate(names.tolist()):
+        xs = inputs[str(a)]
+        out[str(name)] = (["Date", "Verdict", "Technician", "Rig", *[f"{x:g} %: found / left" for x in xs]],
+                          [r[:4 + len(xs)] for r in rows[begin[a]:end[a]]])
+    return out
 
 
 @hookimpl(tryfirst=True)
@@ -133,14 +124,7 @@ def ll_history(ctx: RunContext) -> list[Finding]:
 
 @hookimpl
 def ll_asset_sections(ctx: RunContext, assets: list[str]) -> dict[str, list[Section]]:
-    return each(assets, lambda asset: asset_sections(ctx, asset))
-
-
-def asset_sections(ctx: RunContext, asset: str) -> list[Section]:
-    assemble(ctx)
-    mine = records_of(ctx, "history", asset)
-    if not mine:
-        return []
-    columns, rows = asset_table(mine)
-    return [Section(title="Test history: error at each test point (% of span)", kind="table", columns=columns,
-                    rows=rows, order=30)]
+    hist = assemble(ctx)
+    return {asset: [Section(title="Test history: error at each test point (% of span)", kind="table",
+                            columns=columns, rows=rows, order=30)]
+            for asset, (columns, rows) in asset_tables(hist[hist["asset"].isin(assets)]).items()}

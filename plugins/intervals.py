@@ -28,7 +28,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from loopledger.context import RunContext
-from loopledger.contracts import Section, each
+from loopledger.contracts import Section
 from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import drift, history
@@ -201,13 +201,17 @@ def _text(value: Any, fmt: str = "") -> str:
     return format(value, fmt) if fmt else str(value)
 
 
-def _when(row: pd.Series, ctx: RunContext) -> str:
-    predicted = row["predicted_out_of_tolerance"]
+def _months(value: Any) -> str:
+    return "—" if pd.isna(value) else f"{value:g} months"
+
+
+def _when(row: Any, ctx: RunContext) -> str:
+    predicted = row.predicted_out_of_tolerance
     if not isinstance(predicted, str) or not predicted:
         return ""
     if predicted <= ctx.as_of.isoformat():
         return f" — already passed on {ctx.as_of.isoformat()}: test it now"
-    return " — before the next due date" if row["predicted_before_due"] else ""
+    return " — before the next due date" if row.predicted_before_due else ""
 
 
 @hookimpl(trylast=True)
@@ -261,51 +265,41 @@ def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
 
 @hookimpl
 def ll_asset_sections(ctx: RunContext, assets: list[str]) -> dict[str, list[Section]]:
-    return each(assets, lambda asset: asset_sections(ctx, asset))
-
-
-def asset_sections(ctx: RunContext, asset: str) -> list[Section]:
     table = ctx.extras.get("assets_summary")
-    if table is None or asset not in table.index:
-        return []
-    r = table.loc[asset]
-    rate = ("—" if pd.isna(r["drift_pct_span_per_year"]) else
-            f"{r['drift_pct_span_per_year']:+.4f} ± {_text(r['drift_stderr'], '.4f')} % of span per year "
-            f"(worst point {r['drift_input_pct']:g} %)")
-    reliability = ctx.extras.get("eopr", pd.DataFrame())
-    mine = reliability[(reliability["group_by"] == "signal") & (reliability["group"] == r["signal"])]
-    fleet = (f"{mine['eopr'].iloc[0]:.0%} in tolerance as found ({int(mine['in_tolerance'].iloc[0])} of "
-             f"{int(mine['n'].iloc[0])} tests, signal type {r['signal']})" if len(mine) else "—")
-    rows = [
-        ("Last test", _text(r["last_test"])), ("Latest verdict", _text(r["verdict"])),
-        ("Interval in force", f"{_text(r['interval_months'], 'g')} months"),
-        ("Next due", _text(r["next_due"])),
-        ("Overdue on " + ctx.as_of.isoformat(), "yes" if r["overdue"] else "no"),
-        ("Drift rate", rate), ("Trend", _text(r["drift_status"])),
-        ("Predicted to reach the acceptance limit", _text(r["predicted_acceptance_limit"])),
-        ("Predicted to reach the MPE", _text(r["predicted_out_of_tolerance"]) + _when(r, ctx)),
-        ("Staircase interval (ILAC-G24 / OIML D 10)", f"{_text(r['staircase_months'], 'g')} months"),
-        ("Interval allowed by drift", f"{_text(r['drift_months'], 'g')} months"),
-        ("Recommended interval", f"{_text(r['recommended_interval_months'], 'g')} months "
-                                 f"({r['interval_basis'] or 'no basis'})"),
-        ("Fleet reliability", fleet),
-    ]
-    return [Section(title="Due date, drift and interval", kind="facts", rows=rows, order=20)]
+    if table is None:
+        return {}
+    reliability = ctx.extras.get("eopr", pd.DataFrame(columns=["group_by"]))
+    by_signal = reliability[reliability["group_by"] == "signal"].drop_duplicates("group")
+    fleet = {g: f"{e:.0%} in tolerance as found ({int(k)} of {int(n)} tests, signal type {g})"
+             for g, e, k, n in zip(by_signal["group"], by_signal["eopr"], by_signal["in_tolerance"], by_signal["n"],
+                                   strict=True)}
+    overdue_on = "Overdue on " + ctx.as_of.isoformat()
+    return {str(r.Index): [Section(title="Due date, drift and interval", kind="facts", order=20, rows=[
+        ("Last test", _text(r.last_test)), ("Latest verdict", _text(r.verdict)),
+        ("Interval in force", _months(r.interval_months)),
+        ("Next due", _text(r.next_due)),
+        (overdue_on, "yes" if r.overdue else "no"),
+        ("Drift rate", "—" if pd.isna(r.drift_pct_span_per_year) else
+         f"{r.drift_pct_span_per_year:+.4f} ± {_text(r.drift_stderr, '.4f')} % of span per year "
+         f"(worst point {r.drift_input_pct:g} %)"),
+        ("Trend", _text(r.drift_status)),
+        ("Predicted to reach the acceptance limit", _text(r.predicted_acceptance_limit)),
+        ("Predicted to reach the MPE", _text(r.predicted_out_of_tolerance) + _when(r, ctx)),
+        ("Staircase interval (ILAC-G24 / OIML D 10)", _months(r.staircase_months)),
+        ("Interval allowed by drift", _months(r.drift_months)),
+        ("Recommended interval", f"{_months(r.recommended_interval_months)} ({r.interval_basis or 'no basis'})"),
+        ("Fleet reliability", fleet.get(r.signal, "—")),
+    ])] for r in table[table.index.isin(assets)].itertuples()}
 
 
 @hookimpl
 def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
-    return each(tests, lambda test: test_sections(ctx, test))
-
-
-def test_sections(ctx: RunContext, test: str) -> list[Section]:
     if "global_false_accept" not in ctx.tests.columns:
-        return []
-    values = ctx.extras.setdefault("_false_accept", ctx.tests.set_index("test")["global_false_accept"].to_dict())
-    v = float(values.get(test, np.nan))
-    if np.isnan(v):
-        return []
+        return {}
+    mine = ctx.tests[ctx.tests["test"].isin(tests)].drop_duplicates("test", keep="last")
+    mine = mine[mine["global_false_accept"].astype(float).notna()]
     limit = float(settings(ctx)["false_accept_limit"])
-    return [Section(title="Global false-accept probability", kind="facts", order=60, rows=[
-        ("Probability (bivariate normal, fleet EOPR as prior)", f"{v:.2%}"),
-        ("Target", f"≤ {limit:.0%}" + (" — exceeded" if v > limit else " — met"))])]
+    met = {False: f"≤ {limit:.0%} — met", True: f"≤ {limit:.0%} — exceeded"}
+    return {str(test): [Section(title="Global false-accept probability", kind="facts", order=60, rows=[
+        ("Probability (bivariate normal, fleet EOPR as prior)", f"{v:.2%}"), ("Target", met[v > limit])])]
+        for test, v in zip(mine["test"], mine["global_false_accept"].astype(float).tolist(), strict=True)}

@@ -29,14 +29,17 @@ from itertools import combinations
 
 import numpy as np
 import pandas as pd
-from loopledger.context import RunContext, rows_of
-from loopledger.contracts import Section, each
+from loopledger.context import RunContext
+from loopledger.contracts import Section
 from loopledger.findings import Finding
 from loopledger.hookspecs import hookimpl
+from loopledger.plugins._cells import cells
 
 TEST_COLUMNS = ["zero_error_pct", "span_error_pct", "nonlin_terminal_pct", "nonlin_independent_pct",
                 "hysteresis_pct", "nonrepeatability_pct", "trim_zero", "trim_span", "worst_after_trim_pct"]
 KEYS = ["test", "phase"]
+#: the phases a page shows, in this order
+PHASES = ("as_found", "as_left")
 #: inputs closer than this (in % of range) count as the same test point
 SAME_INPUT = 1e-6
 #: sets longer than this use the linear programme rather than every three-point reference
@@ -218,21 +221,19 @@ LABELS = {"zero_error_pct": "Zero error", "span_error_pct": "Span error",
 
 @hookimpl
 def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
-    return each(tests, lambda test: test_sections(ctx, test))
-
-
-def test_sections(ctx: RunContext, test: str) -> list[Section]:
     table = ctx.extras.get("analysis")
     if table is None:
-        return []
-    mine = rows_of(table, "test", test)
-    if mine.empty:
-        return []
-    phases = [p for p in ("as_found", "as_left") if p in set(mine["phase"])]
-    rows = []
-    for col in TEST_COLUMNS:
-        values = [mine.loc[mine["phase"] == p, col].iloc[0] for p in phases]
-        signed = col in SIGNED
-        rows.append([LABELS[col], *("—" if pd.isna(v) else f"{v:+.3f} %" if signed else f"{v:.3f} %" for v in values)])
-    return [Section(title="Linearity, hysteresis and trim (% of output span; ISA-51.1 terms)", kind="table",
-                    columns=["Quantity", *(p.replace("_", "-") for p in phases)], rows=rows, order=30)]
+        return {}
+    mine = table[table["test"].isin(tests)]
+    # each value as the page shows it, one column at a time over the whole batch
+    text = {col: cells(mine[col], "%+.3f %%" if col in SIGNED else "%.3f %%") for col in TEST_COLUMNS}
+    by_test: dict[str, dict[str, int]] = {}  # test -> phase -> row of ``mine``
+    for i, (test, phase) in enumerate(zip(mine["test"].tolist(), mine["phase"].tolist(), strict=True)):
+        by_test.setdefault(str(test), {}).setdefault(phase, i)
+    out = {}
+    for test, rows_at in by_test.items():
+        phases = [p for p in PHASES if p in rows_at]
+        rows = [[LABELS[col], *(text[col][rows_at[p]] for p in phases)] for col in TEST_COLUMNS]
+        out[test] = [Section(title="Linearity, hysteresis and trim (% of output span; ISA-51.1 terms)", kind="table",
+                             columns=["Quantity", *(p.replace("_", "-") for p in phases)], rows=rows, order=30)]
+    return out

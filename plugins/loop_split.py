@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import pandas as pd
 from loopledger.context import RunContext
-from loopledger.contracts import Section, each
+from loopledger.contracts import Section
 from loopledger.findings import Finding
 from loopledger.hookspecs import hookimpl
 
@@ -61,20 +61,19 @@ def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
 
 @hookimpl
 def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
-    return each(tests, lambda test: test_sections(ctx, test))
-
-
-def test_sections(ctx: RunContext, test: str) -> list[Section]:
     """On the page of either test of a pair: the split, point by point."""
     table = ctx.extras.get("loop_split")
     if not isinstance(table, pd.DataFrame) or table.empty:
-        return []
-    rows = table[(table["loop_test"] == test) | (table["device_test"] == test)]
-    if rows.empty:
-        return []
-    body = [[r.phase.replace("_", "-"), f"{r.input_pct:g}", r.device_test, r.loop_test,
-             f"{r.device_error_pct:+.3f}", f"{r.loop_error_pct:+.3f}", f"{r.card_error_pct:+.3f}"]
-            for r in rows.itertuples()]
-    return [Section("Loop split: transmitter and input card (% of span)", kind="table", order=60,
-                    columns=["Phase", "Input %", "Transmitter test", "Loop test", "Transmitter error",
-                             "Loop error", "Card share (loop − transmitter)"], rows=body)]
+        return {}
+    wanted = set(tests)
+    mine = table[table["loop_test"].isin(wanted) | table["device_test"].isin(wanted)]
+    body: dict[str, list[list[str]]] = {}
+    for r in mine.itertuples():
+        row = [r.phase.replace("_", "-"), f"{r.input_pct:g}", r.device_test, r.loop_test,
+               f"{r.device_error_pct:+.3f}", f"{r.loop_error_pct:+.3f}", f"{r.card_error_pct:+.3f}"]
+        for test in {r.device_test, r.loop_test} & wanted:
+            body.setdefault(str(test), []).append(list(row))  # each page its own rows
+    return {test: [Section("Loop split: transmitter and input card (% of span)", kind="table", order=60,
+                           columns=["Phase", "Input %", "Transmitter test", "Loop test", "Transmitter error",
+                                    "Loop error", "Card share (loop − transmitter)"], rows=rows)]
+            for test, rows in body.items()}

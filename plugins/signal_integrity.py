@@ -18,10 +18,11 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from loopledger import quantities as q
-from loopledger.context import RunContext, rows_of
-from loopledger.contracts import Section, each
+from loopledger.context import RunContext
+from loopledger.contracts import Section
 from loopledger.findings import Finding, warning
 from loopledger.hookspecs import hookimpl
+from loopledger.plugins._cells import grouped
 
 #: NAMUR NE 43 limits, mA
 MEASURE_LOW, MEASURE_HIGH = 3.8, 20.5
@@ -140,22 +141,26 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
 
 @hookimpl
 def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
-    return each(tests, lambda test: test_sections(ctx, test))
-
-
-def test_sections(ctx: RunContext, test: str) -> list[Section]:
     if "ne43_band" not in ctx.points:
-        return []
-    pts = rows_of(ctx.points, "test", test).sort_values(["phase", "point"])
-    if pts.empty or (pts["ne43_band"] == "n/a").all():
-        return []
-    ma, _ = output_ma(pts)
-    odd = pts["ne43_band"].isin(OUTSIDE) | pts["clipped"]
-    if not odd.any():
-        return [Section(title="Signal integrity (NAMUR NE 43)", kind="text", order=45,
-                        text=f"All {len(pts)} readings lie in the NE 43 measuring range 3.8-20.5 mA; no clipping.")]
-    rows = [[str(p.phase).replace("_", "-"), p.point, f"{m:.3f} mA", p.ne43_band,
-             "clipped at the top" if p.clipped else band_words(m, p.ne43_band)]
-            for p, m in zip(pts[odd].itertuples(), ma[odd], strict=True)]
-    return [Section(title="Signal integrity (NAMUR NE 43)", kind="table", order=45,
-                    columns=["Phase", "#", "Output", "NE 43 band", "What it means"], rows=rows)]
+        return {}
+    columns = ["test", "phase", "point", "ne43_band", "clipped", "measured", "output_unit", "output_min", "output_max"]
+    pts = ctx.points.loc[ctx.points["test"].isin(tests), columns]  # the columns first: the table is wide
+    count = pts["test"].value_counts(sort=False).to_dict()
+    banded = pd.unique(pts.loc[pts["ne43_band"] != "n/a", "test"])  # a page for tests with a 4-20 mA output only
+    out = {str(test): [Section(title="Signal integrity (NAMUR NE 43)", kind="text", order=45,
+                               text=f"All {count[test]} readings lie in the NE 43 measuring range 3.8-20.5 mA; "
+                                    "no clipping.")]
+           for test in banded}
+    bad = pts[(pts["ne43_band"].isin(OUTSIDE) | pts["clipped"]) & pts["test"].isin(banded)]
+    if bad.empty:
+        return out
+    bad = bad.sort_values(["test", "phase", "point"])
+    ma, _ = output_ma(bad)
+    rows = grouped(bad["test"].tolist(), [
+        [str(p.phase).replace("_", "-"), p.point, f"{m:.3f} mA", p.ne43_band,
+         "clipped at the top" if p.clipped else band_words(m, p.ne43_band)]
+        for p, m in zip(bad.itertuples(), ma.tolist(), strict=True)])
+    for test, body in rows.items():
+        out[test] = [Section(title="Signal integrity (NAMUR NE 43)", kind="table", order=45,
+                             columns=["Phase", "#", "Output", "NE 43 band", "What it means"], rows=body)]
+    return out

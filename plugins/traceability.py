@@ -26,9 +26,10 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 from loopledger.context import RunContext
-from loopledger.contracts import Command, Section, each
+from loopledger.contracts import Command, Section
 from loopledger.findings import Finding, warning
 from loopledger.hookspecs import hookimpl
+from loopledger.plugins._cells import grouped
 
 ROLES = ("source", "meter", "shunt")
 USES_COLUMNS = ["test", "source_file", "date", "role", "instrument", "calibrated", "due", "status"]
@@ -56,12 +57,6 @@ def uses(tests: pd.DataFrame, instruments: pd.DataFrame) -> pd.DataFrame:
          long["calibrated"].notna() & (when < long["calibrated"]), long["calibrated"].isna() & long["due"].isna()],
         ["unknown", "past-due", "before-calibration", "no-dates"], default="ok")
     return long.sort_values(["source_file", "role"], kind="stable").reset_index(drop=True)[USES_COLUMNS]
-
-
-def _day(value: object) -> str:
-    if value is None or value is pd.NaT or (isinstance(value, float) and np.isnan(value)):
-        return ""
-    return value.strftime("%Y-%m-%d") if hasattr(value, "strftime") else str(value)
 
 
 def describe(table: pd.DataFrame) -> pd.Series:
@@ -106,23 +101,26 @@ def ll_history(ctx: RunContext) -> list[Finding]:
     return check(ctx)
 
 
+#: how a page words each status of :func:`uses`
+STATUS_WORDS = {"ok": "within calibration", "past-due": "PAST DUE on the test date",
+                "before-calibration": "before the calibration on record", "no-dates": "no dates on record"}
+
+
 @hookimpl
 def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
-    return each(tests, lambda test: test_sections(ctx, test))
-
-
-def test_sections(ctx: RunContext, test: str) -> list[Section]:
-    from loopledger.plugins.history import records_of
-
-    mine = records_of(ctx, "reference_uses", test, by="test")
-    if not mine:
-        return []
-    label = {"ok": "within calibration", "past-due": "PAST DUE on the test date",
-             "before-calibration": "before the calibration on record", "no-dates": "no dates on record"}
-    rows = [[r["role"], r["instrument"], _day(r["calibrated"]) or "—", _day(r["due"]) or "—",
-             label.get(r["status"], r["status"])] for r in mine]
-    return [Section(title="Reference instruments on the test date", kind="table", order=40,
-                    columns=["Role", "Instrument", "Calibrated", "Due", "Status"], rows=rows)]
+    table = ctx.extras.get("reference_uses")
+    if table is None:
+        return {}
+    mine = table[table["test"].isin(tests)]
+    shown = pd.DataFrame({
+        "role": mine["role"], "instrument": mine["instrument"],
+        **{col: pd.to_datetime(mine[col]).dt.strftime("%Y-%m-%d").fillna("—") for col in ("calibrated", "due")},
+        "status": mine["status"].map(STATUS_WORDS).fillna(mine["status"]),
+    })
+    rows = grouped(mine["test"].tolist(), shown.to_numpy().tolist())
+    return {test: [Section(title="Reference instruments on the test date", kind="table", order=40,
+                           columns=["Role", "Instrument", "Calibrated", "Due", "Status"], rows=body)]
+            for test, body in rows.items()}
 
 
 # --- loopledger impacted ------------------------------------------------------------------------------

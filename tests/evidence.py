@@ -84,3 +84,18 @@ def good_points(offset_ma: float = 0.0, shunt: bool = False) -> list[tuple[str, 
 def blocks(results: list[Any], key: str) -> list[Any]:
     """The sections a batch page hook's answers (one ``{id: sections}`` per plugin) give one page."""
     return [s for found in results for s in (found or {}).get(key, [])]
+
+
+def batch_and_alone(hook: Any, ctx: Any, ids: list[str], arg: str = "tests") -> dict[str, Any]:
+    """Ask a batch page hook for ``ids`` together, then for each alone; return the batch answer.
+
+    Asserts that every page gets the same sections either way (a hook working over the rows of a whole
+    batch must not mix one page's rows into another's), that no page outside the batch is answered, and
+    that an empty batch gets nothing.
+    """
+    together = hook(ctx=ctx, **{arg: ids})
+    assert set(together) <= set(ids)
+    for key in ids:
+        assert together.get(key, []) == hook(ctx=ctx, **{arg: [key]}).get(key, []), key
+    assert hook(ctx=ctx, **{arg: []}) == {}
+    return together

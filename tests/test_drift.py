@@ -16,7 +16,7 @@ from loopledger.cli import main
 from loopledger.plugins import drift
 from scipy import stats
 
-from tests.evidence import good_points, result_yaml, write_evidence
+from tests.evidence import CT_ASSET, batch_and_alone, good_points, result_yaml, write_evidence
 
 MPE_MA = 0.08  # class 0.5 on a 16 mA span (the fixture asset)
 SPAN_MA = 16.0
@@ -122,6 +122,21 @@ def test_pipeline_fit_matches_linregress(tmp_path, run_folder):
     points = ctx.extras["drift_points"]
     last = points[(points["input_pct"] == 50) & (points["date"] == "2025-02-04")].iloc[0]
     assert last["baseline_pct"] == pytest.approx(0.004 / SPAN_MA * 100, rel=1e-6)
+
+
+def test_each_asset_page_of_a_batch_shows_its_own_fits(tmp_path, run_folder):
+    """The page's rate at 50 % is scipy.stats.linregress's slope; an asset tested once has too few tests."""
+    offsets = [("2021-02-01", 0.010, None), ("2022-02-03", 0.022, None), ("2023-02-01", 0.035, None)]
+    files = {**_files(offsets), "other.yaml": result_yaml(asset="T-CT2", date="2024-02-01",
+                                                          as_found=good_points(0.01))}
+    ev = write_evidence(tmp_path / "ev", files, assets=[CT_ASSET, {**CT_ASSET, "asset": "T-CT2"}])
+    pages = batch_and_alone(drift.ll_asset_sections, run_folder(ev), ["T-CT1", "T-CT2"], arg="assets")
+    rows = {asset: {row[0]: row for row in sections[0].rows} for asset, sections in pages.items()}
+    ref = stats.linregress(_years([o[0] for o in offsets]), [o[1] / SPAN_MA * 100 for o in offsets])
+    assert rows["T-CT1"]["50 %"][1] == "3"
+    assert float(rows["T-CT1"]["50 %"][2]) == pytest.approx(ref.slope, abs=5e-5)  # shown to 4 decimals
+    assert [row[1] for row in rows["T-CT2"].values()] == ["1"] * 5
+    assert {row[7] for row in rows["T-CT2"].values()} == {"too few tests"}
 
 
 def test_cli_writes_drift_tables(tmp_path):

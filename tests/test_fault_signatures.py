@@ -8,8 +8,9 @@ from __future__ import annotations
 
 import yaml
 from loopledger.cli import main
+from loopledger.plugins import fault_signatures
 
-from tests.evidence import CT_ASSET, good_points, result_yaml, write_evidence
+from tests.evidence import CT_ASSET, batch_and_alone, good_points, result_yaml, write_evidence
 
 PCTS = (0, 25, 50, 75, 100)
 
@@ -100,6 +101,18 @@ def test_as_left_signature_follows_as_found(tmp_path, run_folder):
     text = result_yaml(as_found=good_points(0.2), as_left=_ma([4 + 16 * p / 100 * 1.02 for p in PCTS]))
     _, sig = _signature(tmp_path, run_folder, text, assets=[CT_ASSET])
     assert sig == "zero offset; as-left: span"
+
+
+def test_each_test_page_of_a_batch_shows_its_own_signature(tmp_path, run_folder):
+    """+0.2 mA everywhere is beyond the ±0.08 mA MPE: a zero offset; +0.01 mA passes and shows no pattern."""
+    ev = write_evidence(tmp_path / "ev", {
+        "offset.yaml": result_yaml(date="2025-04-14", as_found=good_points(0.2), as_left=good_points(0.01)),
+        "fine.yaml": result_yaml(date="2026-04-14", as_found=good_points(0.01))})
+    pages = batch_and_alone(fault_signatures.ll_test_sections, run_folder(ev), ["fine", "offset"])
+    (offset,), (fine,) = pages["offset"], pages["fine"]
+    assert offset.kind == "facts" and [phase for phase, _ in offset.rows] == ["as-found"]
+    assert offset.rows[0][1].startswith("zero offset: a constant offset of about +0.2 mA")
+    assert fine.kind == "text" and fine.text.startswith("No fault pattern found")
 
 
 def test_cli_run_shows_signature_and_burden_on_the_test_page(tmp_path):

@@ -10,8 +10,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from loopledger.cli import main
+from loopledger.plugins import history
 
-from tests.evidence import good_points, result_yaml, write_evidence
+from tests.evidence import CT_ASSET, batch_and_alone, good_points, result_yaml, write_evidence
 
 
 def test_points_written_in_amps_and_percent_are_one_test_point(tmp_path, run_folder):
@@ -65,3 +66,22 @@ def test_set_points_a_little_off_nominal_are_one_test_point(tmp_path, run_folder
     hist = run_folder(ev).extras["history"]
     assert list(hist["input_pct"]) == [25.0, 25.0]
     assert list(hist["as_found_pct"].round(6)) == [round(0.01 / 16 * 100, 6), round(0.02 / 16 * 100, 6)]
+
+
+def test_each_asset_page_of_a_batch_shows_its_own_tests_and_points(tmp_path, run_folder):
+    """Error in % of span = error / 16 mA × 100: +0.096 mA is +0.600 %, +0.008 mA +0.050 %, +0.016 mA +0.100 %."""
+    other = {**CT_ASSET, "asset": "T-CT2"}
+    three = [(f"{pct} %", f"{4 + 16 * pct / 100 + 0.016:.4f} mA") for pct in (0, 50, 100)]
+    ev = write_evidence(tmp_path / "ev", {
+        "a.yaml": result_yaml(date="2024-05-01", as_found=good_points(0.096), as_left=good_points(0.008)),
+        "b.yaml": result_yaml(date="2025-05-01", as_found=good_points(0.016)),
+        "c.yaml": result_yaml(asset="T-CT2", date="2025-02-01", as_found=three)},
+        assets=[CT_ASSET, other])
+    pages = batch_and_alone(history.ll_asset_sections, run_folder(ev), ["T-CT1", "T-CT2"], arg="assets")
+    (one,), (two,) = pages["T-CT1"], pages["T-CT2"]
+    assert one.columns[4:] == [f"{p} %: found / left" for p in (0, 25, 50, 75, 100)]
+    assert [row[0] for row in one.rows] == ["2025-05-01", "2024-05-01"]  # newest first
+    assert one.rows[1][4:] == ["+0.600 / +0.050"] * 5
+    assert one.rows[0][4:] == ["+0.100 / —"] * 5  # no as-left in 2025
+    assert two.columns[4:] == ["0 %: found / left", "50 %: found / left", "100 %: found / left"]
+    assert two.rows == [["2025-02-01", "pass", "T. Tester", "direct, SRC-1, DMM-1", *["+0.100 / —"] * 3]]

@@ -10,7 +10,7 @@ from loopledger.hookspecs import hookimpl
 from loopledger.plugins import intervals
 from scipy import stats
 
-from tests.evidence import CT_ASSET, good_points, result_yaml, write_evidence
+from tests.evidence import CT_ASSET, batch_and_alone, good_points, result_yaml, write_evidence
 
 RULE = {"extend_within": 0.8, "extend_factor": 1.5, "shorten_factor": 0.5, "min_months": 1, "max_months": 100}
 
@@ -50,6 +50,23 @@ def test_overdue_is_judged_on_as_of(tmp_path, run_folder):
     assert on_the_day.at["T-CT3", "overdue"] and on_the_day.at["T-CT3", "verdict"] == "untested"
     day_after = run_folder(ev, as_of="2026-06-02").extras["assets_summary"]
     assert day_after.at["T-CT1", "overdue"]
+
+
+def test_each_asset_page_of_a_batch_shows_its_own_due_date(tmp_path, run_folder):
+    """The same dates as above, on the pages: next due = last test + 12 calendar months (common practice)."""
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(date="2025-06-01", as_found=good_points(0.01)),
+                                          "b.yaml": result_yaml(asset="T-CT2", date="2025-01-31",
+                                                                as_found=good_points(0.01))},
+                        assets=_two_assets())
+    ctx = run_folder(ev, as_of="2026-06-01")
+    pages = batch_and_alone(intervals.ll_asset_sections, ctx, ["T-CT1", "T-CT2", "T-CT3"], arg="assets")
+    facts = {asset: dict(sections[0].rows) for asset, sections in pages.items()}
+    assert (facts["T-CT1"]["Last test"], facts["T-CT1"]["Next due"]) == ("2025-06-01", "2026-06-01")
+    assert (facts["T-CT2"]["Last test"], facts["T-CT2"]["Next due"]) == ("2025-01-31", "2026-01-31")
+    assert [facts[a]["Overdue on 2026-06-01"] for a in ("T-CT1", "T-CT2", "T-CT3")] == ["no", "yes", "yes"]
+    assert facts["T-CT3"]["Latest verdict"] == "untested" and facts["T-CT3"]["Next due"] == "—"
+    # EOPR of the signal type: both tests found in tolerance
+    assert facts["T-CT2"]["Fleet reliability"].startswith("100% in tolerance as found (2 of 2 tests")
 
 
 def test_drift_shortens_the_recommended_interval(tmp_path, run_folder):
@@ -136,8 +153,10 @@ def test_false_accept_per_test_where_u_exists_and_flag_above_2_percent(tmp_path,
     flagged = [f.file for f in ctx.findings if f.code == "false-accept"]
     assert sorted(flagged) == ["results/a.yaml", "results/b.yaml"]
     test_b = ctx.tests.set_index("source_file").at["results/b.yaml", "test"]
-    (section,) = intervals.ll_test_sections(ctx=ctx, tests=[test_b])[test_b]
-    assert section.rows[1] == ("Target", "≤ 2% — exceeded")
+    pages = batch_and_alone(intervals.ll_test_sections, ctx, list(ctx.tests["test"]))
+    (section,) = pages[test_b]
+    assert section.rows == [("Probability (bivariate normal, fleet EOPR as prior)", f"{expected:.2%}"),
+                            ("Target", "≤ 2% — exceeded")]
 
 
 def test_bad_interval_settings_are_a_configuration_error(tmp_path):

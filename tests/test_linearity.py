@@ -12,10 +12,11 @@ import pandas as pd
 import pytest
 import yaml
 from loopledger.cli import main
+from loopledger.plugins import linearity
 from loopledger.plugins.linearity import analyse, minimax_lines
 from scipy.optimize import linprog
 
-from tests.evidence import result_yaml, write_evidence
+from tests.evidence import batch_and_alone, good_points, result_yaml, write_evidence
 
 
 def table(errors, inputs=(0, 25, 50, 75, 100), directions=None, test="t", phase="as_found"):
@@ -100,3 +101,17 @@ def test_cli_run_exports_the_analysis(tmp_path):
     assert (out / "data" / "analysis.csv").is_file()
     page = next((out / "handbook" / "tests").glob("*.html")).read_text(encoding="utf-8")
     assert "Non-linearity, terminal-based" in page
+
+
+def test_each_test_page_of_a_batch_shows_its_own_phases(tmp_path, run_folder):
+    """Zero error = error at 0 % input / span × 100 (% of span, common practice): a constant offset of
+    +0.016 mA on the 16 mA span is +0.100 %, one of −0.032 mA is −0.200 %, the as-left +0.008 mA +0.050 %."""
+    ev = write_evidence(tmp_path / "ev", {
+        "a.yaml": result_yaml(date="2025-04-14", as_found=good_points(0.016), as_left=good_points(0.008)),
+        "b.yaml": result_yaml(date="2026-04-14", as_found=good_points(-0.032))})
+    pages = batch_and_alone(linearity.ll_test_sections, run_folder(ev), ["a", "b", "no-such-test"])
+    assert set(pages) == {"a", "b"}
+    (a,), (b,) = pages["a"], pages["b"]
+    assert a.columns == ["Quantity", "as-found", "as-left"] and b.columns == ["Quantity", "as-found"]
+    assert a.rows[0] == ["Zero error", "+0.100 %", "+0.050 %"]
+    assert b.rows[0] == ["Zero error", "-0.200 %"]

@@ -5,8 +5,9 @@ from __future__ import annotations
 import pandas as pd
 import pytest
 from loopledger.cli import main
+from loopledger.plugins import loop_split
 
-from tests.evidence import blocks, write_evidence
+from tests.evidence import batch_and_alone, blocks, write_evidence
 from tests.signal_checks import asset, result_doc
 
 ASSETS = [asset("T-LOOP", "process-transmitter", (0, 10, "bar"), (4, 20, "mA"), counts_min=0, counts_max=16000,
@@ -58,3 +59,12 @@ def test_both_test_pages_get_the_split(tmp_path, run_folder, pm):
     split = [s for s in sections if s.title.startswith("Loop split")]
     assert len(split) == 1 and split[0].kind == "table" and len(split[0].rows) == 6
     assert {row[-1] for row in split[0].rows} == {"+0.100", "-0.060"}
+
+
+def test_each_test_page_of_a_batch_gets_only_its_own_pairs(tmp_path, run_folder):
+    ctx = run_folder(_evidence(tmp_path))
+    pages = batch_and_alone(loop_split.ll_test_sections, ctx, ["device", "loop", "shown"])
+    assert [len(pages[t][0].rows) for t in ("device", "loop", "shown")] == [6, 3, 3]
+    assert {row[3] for row in pages["loop"][0].rows} == {"loop"}
+    assert [row[-1] for row in pages["loop"][0].rows] == ["+0.100"] * 3  # 0.2 % − 0.1 % of span
+    assert [row[-1] for row in pages["shown"][0].rows] == ["-0.060"] * 3

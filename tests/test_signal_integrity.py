@@ -5,9 +5,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from loopledger.cli import main
+from loopledger.plugins import signal_integrity
 from loopledger.plugins.signal_integrity import classify
 
-from tests.evidence import CT_ASSET, good_points, result_yaml, write_evidence
+from tests.evidence import CT_ASSET, batch_and_alone, good_points, result_yaml, write_evidence
 
 
 @pytest.mark.parametrize(("ma", "band"), [
@@ -39,6 +40,25 @@ def test_zero_and_failure_currents_are_named_not_just_large_errors(tmp_path, run
     assert "broken loop" in words["as_found #3"]
     assert "failure signal" in words["as_found #5"]
     assert ctx.tests.iloc[0]["fault_signature"] == "broken loop"
+
+
+def test_each_test_page_of_a_batch_names_its_own_readings(tmp_path, run_folder):
+    """NE 43: 0 mA is no loop current, 3.5 mA a low failure signal; a 0-10 V output has no NE 43 page."""
+    points = good_points()
+    points[2] = ("50 %", "0.000 mA")
+    points[4] = ("100 %", "3.500 mA")
+    volts = {**CT_ASSET, "asset": "T-V1", "output_min": 0, "output_max": 10, "output_unit": "V"}
+    ev = write_evidence(tmp_path / "ev", {
+        "good.yaml": result_yaml(as_found=good_points(0.01)), "bad.yaml": result_yaml(as_found=points),
+        "volts.yaml": result_yaml(asset="T-V1", as_found=[(f"{p} %", f"{p / 10:.3f} V") for p in (0, 50, 100)])},
+        assets=[CT_ASSET, volts])
+    pages = batch_and_alone(signal_integrity.ll_test_sections, run_folder(ev), ["bad", "good", "volts"])
+    assert set(pages) == {"bad", "good"}
+    (good,), (bad,) = pages["good"], pages["bad"]
+    assert good.kind == "text" and good.text.startswith("All 5 readings lie in the NE 43 measuring range")
+    assert [row[:4] for row in bad.rows] == [["as-found", 3, "0.000 mA", "failure-low"],
+                                             ["as-found", 5, "3.500 mA", "failure-low"]]
+    assert "broken loop" in bad.rows[0][4] and "failure signal" in bad.rows[1][4]
 
 
 def test_voltage_outputs_have_no_ne43_band(tmp_path, run_folder):
