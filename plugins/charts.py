@@ -22,7 +22,6 @@ from loopledger.plugins.svgplot import BOTTOM, LEFT, RIGHT, TOP, KeyEntry
 PHASES = {"as_found": ("As found", sp.MARKERS[0], "#000", "", False),
           "as_left": ("As left", sp.MARKERS[1], "#4a4a4a", "6 3", True)}
 ACCEPT_DASH = "5 2"
-DAY = np.timedelta64(1, "D")
 
 
 def _column(points: list[dict[str, Any]], name: str) -> np.ndarray:
