@@ -3,7 +3,7 @@
 Standard library only, on purpose: a rerun over an unchanged evidence folder
 decides "nothing changed" from file sizes, modification times and (where those
 moved) SHA-256 hashes, then reprints the previous summary and exits with the
-previous code, without importing pandas, pandera, pint or matplotlib.
+previous code, without importing pandas, pandera, pint or numpy.
 
 The cache lives in ``OUT/.loopledger-cache`` (or the folder ``--cache`` names),
 never in the evidence folder. Every cache file carries a format version and a

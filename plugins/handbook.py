@@ -123,17 +123,15 @@ def _theme_digest() -> str:
     root = importlib.resources.files("loopledger.site")
     import jinja2
     import markdown
-    import matplotlib
     import nh3
 
-    versions = [FORMAT, matplotlib.__version__, jinja2.__version__, markdown.__version__,
-                getattr(nh3, "__version__", "")]
+    versions = [FORMAT, jinja2.__version__, markdown.__version__, getattr(nh3, "__version__", "")]
     h = hashlib.sha256(json.dumps(versions).encode())
     for folder in ("templates", "static"):
         for item in sorted(root.joinpath(folder).iterdir(), key=lambda p: p.name):
             if item.is_file():
                 h.update(item.name.encode() + b"\0" + item.read_bytes())
-    for module in ("charts.py", "handbook.py"):
+    for module in ("charts.py", "svgplot.py", "handbook.py"):
         h.update(importlib.resources.files("loopledger.plugins").joinpath(module).read_bytes())
     return h.hexdigest()
 

@@ -432,7 +432,7 @@ def test_verdicts_are_words_not_only_colour(tmp_path, run_folder):
     for word in ("Pass", "Fail", "Not tested", "Overdue"):
         assert f"{word}</span>" in index
     test_page = (tmp_path / "site" / "tests" / "b_two.html").read_text(encoding="utf-8")
-    assert '<th scope="col">Decision</th>' in test_page and 'aria-label="Chart of error against input.' in test_page
+    assert '<th scope="col">Decision</th>' in test_page and '<desc>Chart of error against input.' in test_page
 
 
 def test_invalid_files_get_an_evidence_page_with_their_findings(tmp_path):
