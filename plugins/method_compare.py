@@ -159,18 +159,23 @@ def planned(ctx: RunContext, plans: dict[str, dict[str, Any]]) -> pd.DataFrame:
     if pts.empty or "mpe" not in pts.columns:
         return pd.DataFrame(columns=[*COLUMNS, "asset"])
     pts = pts[pts["asset"].isin(list(plans))]
-    latest = pts.sort_values(["date", "test"], kind="stable").drop_duplicates("asset", keep="last")
+    tests = pts[["asset", "date", "test"]].drop_duplicates()
+    latest = tests.sort_values(["date", "test"], kind="stable").drop_duplicates("asset", keep="last")
     pts = pts[(pts["test"] == pts["asset"].map(latest.set_index("asset")["test"])) & pts["measured"].notna()]
     ohms = _shunts(ctx)
     rigs: dict[str, tuple[str, str | None, float, str]] = {}  # asset -> method, shunt id, Ω, label
+    shunt_for: dict[Any, tuple[str, str | None, float, str] | None] = {}  # the registry shunt for each Ω asked
     for asset in pd.unique(pts["asset"]):
         plan = plans[asset]
         if plan.get("method") == "shunt":
             wanted = plan.get("shunt_ohm")
-            match = ohms[np.isclose(ohms, float(wanted))] if wanted is not None else ohms
-            if len(match):
-                ident, value = str(match.index[0]), float(match.iloc[0])
-                rigs[asset] = ("shunt", ident, value, f"shunt {ident} ({value:g} Ω)")
+            if wanted not in shunt_for:
+                match = ohms[np.isclose(ohms, float(wanted))] if wanted is not None else ohms
+                ident, value = (str(match.index[0]), float(match.iloc[0])) if len(match) else ("", np.nan)
+                shunt_for[wanted] = ("shunt", ident, value, f"shunt {ident} ({value:g} Ω)") if len(match) else None
+            found = shunt_for[wanted]
+            if found is not None:
+                rigs[asset] = found
         elif plan.get("method") == "direct":
             rigs[asset] = ("direct", None, np.nan, "direct")
     pts = pts[pts["asset"].isin(list(rigs))]
