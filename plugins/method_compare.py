@@ -158,16 +158,17 @@ def planned(ctx: RunContext, plans: dict[str, dict[str, Any]]) -> pd.DataFrame:
     pts = ctx.points
     if pts.empty or "mpe" not in pts.columns:
         return pd.DataFrame(columns=[*COLUMNS, "asset"])
-    pts = pts[pts["asset"].isin(list(plans))]
-    tests = pts[["asset", "date", "test"]].drop_duplicates()
-    latest = tests.sort_values(["date", "test"], kind="stable").drop_duplicates("asset", keep="last")
-    pts = pts[(pts["test"] == pts["asset"].map(latest.set_index("asset")["test"])) & pts["measured"].notna()]
+    keys = pts[["asset", "date", "test"]]
+    keys = keys[keys["asset"].isin(list(plans))].drop_duplicates()
+    latest = keys.sort_values(["date", "test"], kind="stable").drop_duplicates("asset", keep="last")
     ohms = _shunts(ctx)
     rigs: dict[str, tuple[str, str | None, float, str]] = {}  # asset -> method, shunt id, Ω, label
     shunt_for: dict[Any, tuple[str, str | None, float, str] | None] = {}  # the registry shunt for each Ω asked
-    for asset in pd.unique(pts["asset"]):
+    for asset in latest["asset"]:
         plan = plans[asset]
-        if plan.get("method") == "shunt":
+        if plan.get("method") == "direct":
+            rigs[asset] = ("direct", None, np.nan, "direct")
+        elif plan.get("method") == "shunt":
             wanted = plan.get("shunt_ohm")
             if wanted not in shunt_for:
                 match = ohms[np.isclose(ohms, float(wanted))] if wanted is not None else ohms
@@ -176,19 +177,18 @@ def planned(ctx: RunContext, plans: dict[str, dict[str, Any]]) -> pd.DataFrame:
             found = shunt_for[wanted]
             if found is not None:
                 rigs[asset] = found
-        elif plan.get("method") == "direct":
-            rigs[asset] = ("direct", None, np.nan, "direct")
-    pts = pts[pts["asset"].isin(list(rigs))]
+    latest = latest[latest["asset"].isin(list(rigs))].set_index("asset")["test"]
+    pts = pts[(pts["test"] == pts["asset"].map(latest)) & pts["measured"].notna()]
     if pts.empty:
         return pd.DataFrame(columns=[*COLUMNS, "asset"])
     rig = pd.DataFrame.from_dict(rigs, orient="index", columns=["method", "shunt", "ohm", "label"])
     rig = rig.reindex(pts["asset"].to_numpy()).set_axis(pts.index)
     meters = pd.Series({a: plans[a].get("meter") for a in rigs}, dtype=object).reindex(pts["asset"].to_numpy())
-    pts = pts.assign(meter=pts["meter"].where(~meters.astype(bool).to_numpy(), meters.to_numpy()))
     shunt = rig["method"] == "shunt"
     amps = q.convert(pts["measured"], pts["output_unit"], "A")
     alt = _as_read_by(pts, rig["method"], rig["shunt"].where(shunt, None), (amps * rig["ohm"]).where(
         shunt, pts["measured"]), pts["output_unit"].where(~shunt, "V"))
+    alt["meter"] = alt["meter"].where(~meters.astype(bool).to_numpy(), meters.to_numpy())  # the planned meter
     table = _evaluate(ctx, alt, rig["label"])
     return table.assign(asset=pts["asset"].to_numpy(), input_pct=pts["input_pct"].to_numpy(),
                         mpe=pts["mpe"].to_numpy(), output_unit=pts["output_unit"].to_numpy())

@@ -91,25 +91,26 @@ def percent(p: object) -> str:
 
 
 def each_value(values: Any, one: Callable[[Any], str]) -> np.ndarray:
-    """``one(v)`` for each of ``values`` (an object array), called once per distinct number.
+    """``one(v)`` for each of ``values``, as an object array, calling ``one`` once per distinct value.
 
-    The numbers on a batch of pages repeat a lot (divisors, sensitivities, k, ν), so formatting
-    each distinct one once is most of the saving; non-numeric columns are formatted value by value.
+    The values on a batch of pages repeat a lot (phases, components, divisors, k, ν), so
+    formatting each distinct one once is most of the saving. Numbers are told apart by their
+    bits (-0.0 and 0.0 print differently); an object column is grouped only when it holds
+    nothing but strings (1, 1.0 and True would hash alike), else formatted value by value.
     """
     arr = np.asarray(values)
     if arr.dtype.kind == "f":
-        # distinct by bit pattern, so that -0.0 and 0.0 (formatted differently) stay apart
-        codes, uniq = pd.factorize(arr.astype(np.float64).view(np.int64))
-        texts = np.array([one(v) for v in uniq.view(np.float64).tolist()], dtype=object)
-        return texts[codes] if len(arr) else np.array([], dtype=object)
-    if arr.dtype.kind in "iub":
-        codes, uniq = pd.factorize(arr)
-        texts = np.array([one(v) for v in uniq.tolist()], dtype=object)
-        return texts[codes] if len(arr) else np.array([], dtype=object)
-    codes, uniq = pd.factorize(arr, use_na_sentinel=False)
-    if all(type(v) is str for v in uniq):  # no two distinct values can have been taken for one
-        return np.array([one(v) for v in uniq], dtype=object)[codes] if len(arr) else np.array([], dtype=object)
-    return np.array([one(v) for v in arr.tolist()], dtype=object)
+        codes, bits = pd.factorize(arr.astype(np.float64).view(np.int64))
+        distinct = bits.view(np.float64).tolist()
+    elif arr.dtype.kind in "iub":
+        codes, found = pd.factorize(arr)
+        distinct = found.tolist()
+    else:
+        codes, found = pd.factorize(arr, use_na_sentinel=False)
+        if not all(type(v) is str for v in found):
+            return np.array([one(v) for v in arr.tolist()], dtype=object)
+        distinct = list(found)
+    return np.array([one(v) for v in distinct], dtype=object)[codes]
 
 
 def fmt_all(values: Any, digits: int = 4) -> np.ndarray:
@@ -123,6 +124,7 @@ def phase_texts(values: Any) -> np.ndarray:
 
 
 def texts(values: Any) -> np.ndarray:
+    """``str`` of each value."""
     return each_value(values, str)
 
 
