@@ -30,7 +30,7 @@ import numpy as np
 import pandas as pd
 from loopledger import quantities as q
 from loopledger.context import RunContext
-from loopledger.contracts import Command, Section, each
+from loopledger.contracts import Command, Section
 from loopledger.findings import Finding, note, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import conductors
@@ -337,39 +337,39 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
 
 @hookimpl
 def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
-    return each(tests, lambda test: test_sections(ctx, test))
-
-
-def test_sections(ctx: RunContext, test: str) -> list[Section]:
     terms = ctx.extras.get("burden")
-    if terms is None or test not in terms.index:
-        return []
-    row = next(terms.loc[[test]].itertuples())
-    return [Section(title="Loop burden", kind="facts", rows=term_rows(row), order=40)]
+    if terms is None or not len(terms):
+        return {}
+    mine = terms[terms.index.isin(tests)]
+    mine = mine[~mine.index.duplicated()]
+    return {str(test): [Section(title="Loop burden", kind="facts", rows=term_rows(row), order=40)]
+            for test, row in zip(mine.index, mine.itertuples(), strict=True)}
 
 
-def plan_rig(ctx: RunContext, asset: str, plan: dict[str, Any]) -> pd.DataFrame:
-    """A one-row rig frame from a planned rig (the ``plan`` of ``ll_sheet_sections``)."""
-    method = plan.get("method") or ("shunt" if plan.get("shunt_ohm") else "direct" if plan.get("meter") else "display")
-    return pd.DataFrame([{
-        "asset": asset, "method": method, "connection": plan.get("connection") or "standalone",
-        "ambient_c": plan.get("ambient_c"), "meter": plan.get("meter"), "shunt": plan.get("shunt"),
-        "shunt_ohm": plan.get("shunt_ohm")}])
+def plan_rigs(plans: dict[str, dict[str, Any]]) -> pd.DataFrame:
+    """A rig frame (one row per asset) from planned rigs (the ``plans`` of ``ll_sheet_sections``)."""
+    rows = []
+    for asset, plan in plans.items():
+        method = plan.get("method") or ("shunt" if plan.get("shunt_ohm") else "direct" if plan.get("meter")
+                                        else "display")
+        rows.append({"asset": asset, "method": method, "connection": plan.get("connection") or "standalone",
+                     "ambient_c": plan.get("ambient_c"), "meter": plan.get("meter"), "shunt": plan.get("shunt"),
+                     "shunt_ohm": plan.get("shunt_ohm")})
+    return pd.DataFrame(rows, columns=[*RIG_COLUMNS, "shunt_ohm"])
 
 
 @hookimpl
 def ll_sheet_sections(ctx: RunContext, plans: dict[str, dict[str, Any]]) -> dict[str, list[Section]]:
-    return each(plans, lambda asset: sheet_sections(ctx, asset, plans[asset]))
-
-
-def sheet_sections(ctx: RunContext, asset: str, plan: dict[str, Any]) -> list[Section]:
-    if asset not in ctx.assets.index:
-        return []
-    row = next(analyse(ctx, plan_rig(ctx, asset, plan)).itertuples())
-    sections = [Section(title="Loop burden of the planned rig", kind="facts", rows=term_rows(row), order=40)]
-    if row.burden_status in ("exceeds", "low-margin"):
-        sections.append(Section(title="Before you connect", kind="text", text=summary(row), order=41))
-    return sections
+    known = {str(a): p for a, p in plans.items() if a in ctx.assets.index}
+    if not known:
+        return {}
+    out: dict[str, list[Section]] = {}
+    for row in analyse(ctx, plan_rigs(known)).itertuples():
+        sections = [Section(title="Loop burden of the planned rig", kind="facts", rows=term_rows(row), order=40)]
+        if row.burden_status in ("exceeds", "low-margin"):
+            sections.append(Section(title="Before you connect", kind="text", text=summary(row), order=41))
+        out[str(row.asset)] = sections
+    return out
 
 
 # --- `loopledger loop` ----------------------------------------------------------------
@@ -419,7 +419,7 @@ def _run(args: argparse.Namespace, out: Callable[[str], Any] | None = None) -> i
     plan = {"method": "shunt" if args.shunt else "direct" if args.meter else "display", "shunt_ohm": shunt_ohm,
             "shunt": shunt_id, "meter": args.meter, "connection": "in-loop" if args.in_loop else "standalone",
             "ambient_c": args.ambient}
-    row = next(analyse(ctx, plan_rig(ctx, args.asset, plan)).itertuples())
+    row = next(analyse(ctx, plan_rigs({args.asset: plan})).itertuples())
     rig = (f"shunt {args.shunt}" if args.shunt else f"meter {args.meter}" if args.meter
            else "no instrument in series")
     out(f"Loop burden of {args.asset}: {rig}, {plan['connection']}, {args.ambient:g} °C\n")

@@ -18,18 +18,19 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from loopledger import quantities as q
-from loopledger.context import RunContext, rows_of
-from loopledger.contracts import Section, each
+from loopledger.context import RunContext
+from loopledger.contracts import Section
 from loopledger.findings import Finding
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import budget
 from loopledger.plugins.conformity import MIN_TUR
-from loopledger.plugins.uncertainty import fmt
+from loopledger.plugins.uncertainty import fmt_all, phase_texts, rows_by, texts
 
 COLUMNS = ["test", "phase", "point", "alternative", "method", "shunt", "U", "tur"]
 
 
-def _as_read_by(pts: pd.DataFrame, method: str, shunt: str | None, reading: pd.Series, unit: str) -> pd.DataFrame:
+def _as_read_by(pts: pd.DataFrame, method: Any, shunt: Any, reading: pd.Series, unit: Any) -> pd.DataFrame:
+    """``pts`` as they would have been read with ``method`` (a name or one per point), and so on."""
     alt = pts.copy()
     alt["method"] = method
     alt["shunt"] = shunt
@@ -42,25 +43,29 @@ def _as_read_by(pts: pd.DataFrame, method: str, shunt: str | None, reading: pd.S
     return alt
 
 
+def _shunts(ctx: RunContext) -> pd.Series:
+    """The resistance of each shunt in the registry (Ω by id, NaN where unreadable)."""
+    from loopledger.plugins.reading_methods import shunt_ohms
+
+    shunts = ctx.instruments[ctx.instruments["kind"] == "shunt"] if not ctx.instruments.empty else pd.DataFrame()
+    ids = pd.Series(shunts.index, index=shunts.index, dtype=object)
+    return shunt_ohms(ctx, ids) if len(shunts) else pd.Series(dtype=float)
+
+
 def alternatives(ctx: RunContext, pts: pd.DataFrame) -> pd.DataFrame:
     """U and TUR of every point of ``pts`` under each alternative method (long table, :data:`COLUMNS`)."""
     current = pts["output_unit"].map(lambda u: q.same_dimension(str(u), "A"))
     amps = q.convert(pts["measured"], pts["output_unit"], "A")
     frames: list[pd.DataFrame] = []
     direct = pts[(pts["method"] == "direct") & current & pts["meter"].notna()]
-    shunts = ctx.instruments[ctx.instruments["kind"] == "shunt"] if not ctx.instruments.empty else pd.DataFrame()
-    for ident in shunts.index if len(direct) else []:
-        from loopledger.plugins.reading_methods import shunt_ohms
-
-        ohms = shunt_ohms(ctx, pd.Series([ident], dtype=object)).iloc[0]
+    for ident, ohms in _shunts(ctx).items() if len(direct) else []:
         if not np.isfinite(ohms):
             continue
         alt = _as_read_by(direct, "shunt", str(ident), amps[direct.index] * ohms, "V")
         frames.append(_evaluate(ctx, alt, f"shunt {ident} ({ohms:g} Ω) on {_meters(direct)} volts"))
     shunted = pts[(pts["method"] == "shunt") & current & pts["meter"].notna()]
     if len(shunted):
-        alt = _as_read_by(shunted, "direct", None, shunted["measured"], "")
-        alt["reading_unit"] = shunted["output_unit"]
+        alt = _as_read_by(shunted, "direct", None, shunted["measured"], shunted["output_unit"])
         frames.append(_evaluate(ctx, alt, f"direct on {_meters(shunted)} current range"))
     frames = [f for f in frames if len(f)]
     return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(columns=COLUMNS)
@@ -70,7 +75,8 @@ def _meters(pts: pd.DataFrame) -> str:
     return "/".join(sorted(str(m) for m in pd.unique(pts["meter"].dropna())))
 
 
-def _evaluate(ctx: RunContext, alt: pd.DataFrame, label: str) -> pd.DataFrame:
+def _evaluate(ctx: RunContext, alt: pd.DataFrame, label: Any) -> pd.DataFrame:
+    """U and TUR of each point of ``alt`` by the uncertainty stage's budget; ``label`` names the rig(s)."""
     _, per, problems = budget.compute(ctx, alt)
     frame = alt[["test", "phase", "point", "method", "shunt"]].copy()
     frame["alternative"] = label
@@ -94,92 +100,112 @@ def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
     return {} if table is None else {"method_comparison": table.sort_values(["test", "phase", "point"], kind="stable")}
 
 
-def comparison_rows(ctx: RunContext, test: str) -> tuple[list[str], list[list[str]]]:
-    """(columns, rows) comparing the method used with each alternative, point by point."""
+def comparison_tables(ctx: RunContext, tests: list[str]) -> dict[str, tuple[list[str], list[list[str]]]]:
+    """(columns, rows) comparing the method used with each alternative, point by point, for each test."""
     table = ctx.extras.get("method_comparison")
-    pts = rows_of(ctx.points, "test", test).sort_values(["phase", "point"])
-    if table is None or pts.empty:
-        return [], []
-    mine = rows_of(table, "test", test)
-    labels = list(pd.unique(mine["alternative"]))
-    if not labels:
-        return [], []
-    used = str(pts["method"].iloc[0])
-    columns = ["Phase", "#", f"U as read ({used})", "TUR"]
-    for label in labels:
-        columns += [f"U with {label}", "TUR"]
-    rows = []
-    for r in pts.itertuples():
-        row = [str(r.phase).replace("_", "-"), str(r.point), fmt(r.U), fmt(r.tur, 3)]
-        for label in labels:
-            hit = mine[(mine["alternative"] == label) & (mine["phase"] == r.phase) & (mine["point"] == r.point)]
-            row += [fmt(hit["U"].iloc[0]), fmt(hit["tur"].iloc[0], 3)] if len(hit) else ["—", "—"]
-        rows.append(row)
-    return columns, rows
+    if table is None or ctx.points.empty:
+        return {}
+    pts = ctx.points[ctx.points["test"].isin(tests)].sort_values(["test", "phase", "point"], kind="stable")
+    mine = table[table["test"].isin(tests)]
+    if pts.empty or mine.empty:
+        return {}
+    # each test's alternatives in the order met, numbered 0, 1, ...
+    labels = mine.drop_duplicates(["test", "alternative"])[["test", "alternative"]]
+    labels = labels.assign(rank=labels.groupby("test", sort=False).cumcount())
+    hits = mine.drop_duplicates(["test", "alternative", "phase", "point"]).merge(labels, on=["test", "alternative"])
+    columns = [phase_texts(pts["phase"]), texts(pts["point"]), fmt_all(pts["U"]), fmt_all(pts["tur"], 3)]
+    keys = pts[["test", "phase", "point"]]
+    for rank in range(int(labels["rank"].max()) + 1):
+        hit = keys.merge(hits[hits["rank"] == rank], on=["test", "phase", "point"], how="left")
+        found = hit["alternative"].notna().to_numpy()
+        columns += [np.where(found, fmt_all(hit["U"]), "—"), np.where(found, fmt_all(hit["tur"], 3), "—")]
+    names = labels.groupby("test", sort=False)["alternative"].agg(list)
+    used = pts.drop_duplicates("test").set_index("test")["method"].astype(str)
+    out = {}
+    for test, rows in rows_by(pts["test"], columns).items():
+        if test not in names.index:
+            continue
+        heads = ["Phase", "#", f"U as read ({used[test]})", "TUR"]
+        for label in names[test]:
+            heads += [f"U with {label}", "TUR"]
+        out[test] = (heads, [row[:len(heads)] for row in rows])
+    return out
+
+
+def comparison_rows(ctx: RunContext, test: str) -> tuple[list[str], list[list[str]]]:
+    """(columns, rows) of :func:`comparison_tables` for one test (``loopledger explain``)."""
+    return comparison_tables(ctx, [test]).get(str(test), ([], []))
 
 
 @hookimpl
 def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
-    return each(tests, lambda test: test_sections(ctx, test))
+    found = comparison_tables(ctx, tests)
+    if not found:
+        return {}
+    first = ctx.points[ctx.points["test"].isin(list(found))].drop_duplicates("test")
+    units = dict(zip(first["test"].astype(str), first["output_unit"].astype(str), strict=True))
+    return {test: [Section(title=f"Method comparison: U ({units[test]}) and TUR with the other rig the registry "
+                                 "allows", kind="table", columns=columns, rows=rows, order=25)]
+            for test, (columns, rows) in found.items() if rows}
 
 
-def test_sections(ctx: RunContext, test: str) -> list[Section]:
-    if ctx.points.empty:
-        return []
-    columns, rows = comparison_rows(ctx, test)
-    if not rows:
-        return []
-    unit = str(rows_of(ctx.points, "test", test)["output_unit"].iloc[0])
-    return [Section(title=f"Method comparison: U ({unit}) and TUR with the other rig the registry allows",
-                    kind="table", columns=columns, rows=rows, order=25)]
+def planned(ctx: RunContext, plans: dict[str, dict[str, Any]]) -> pd.DataFrame:
+    """U and TUR at the points of each asset's latest test, had they been read with its planned rig.
 
-
-def planned(ctx: RunContext, asset: str, plan: dict[str, Any]) -> pd.DataFrame:
-    """U and TUR at the points of the asset's latest test, had they been read with the planned rig."""
-    pts = rows_of(ctx.points, "asset", asset) if not ctx.points.empty else ctx.points
+    One frame of all the assets' points as the planned rigs would read them, through one budget;
+    an ``asset`` column says whose each row is. Assets whose rig cannot be evaluated are left out.
+    """
+    pts = ctx.points
     if pts.empty or "mpe" not in pts.columns:
-        return pd.DataFrame(columns=COLUMNS)
-    latest = pts.sort_values(["date", "test"]).iloc[-1]["test"]
-    pts = pts[(pts["test"] == latest) & pts["measured"].notna()]
-    if plan.get("meter"):
-        pts = pts.assign(meter=plan["meter"])
-    method = plan.get("method")
-    if method == "shunt":
-        from loopledger.plugins.reading_methods import shunt_ohms
-
-        shunts = ctx.instruments[ctx.instruments["kind"] == "shunt"] if not ctx.instruments.empty else pd.DataFrame()
-        ids = pd.Series(shunts.index, index=shunts.index, dtype=object)
-        ohms = shunt_ohms(ctx, ids) if len(shunts) else pd.Series(dtype=float)
-        wanted = plan.get("shunt_ohm")
-        match = ohms[np.isclose(ohms, float(wanted))] if wanted is not None else ohms
-        if match.empty:
-            return pd.DataFrame(columns=COLUMNS)
-        ident, value = str(match.index[0]), float(match.iloc[0])
-        amps = q.convert(pts["measured"], pts["output_unit"], "A")
-        return _evaluate(ctx, _as_read_by(pts, "shunt", ident, amps * value, "V"), f"shunt {ident} ({value:g} Ω)")
-    if method == "direct":
-        alt = _as_read_by(pts, "direct", None, pts["measured"], "")
-        alt["reading_unit"] = pts["output_unit"]
-        return _evaluate(ctx, alt, "direct")
-    return pd.DataFrame(columns=COLUMNS)
+        return pd.DataFrame(columns=[*COLUMNS, "asset"])
+    keys = pts[["asset", "date", "test"]]
+    keys = keys[keys["asset"].isin(list(plans))].drop_duplicates()
+    latest = keys.sort_values(["date", "test"], kind="stable").drop_duplicates("asset", keep="last")
+    ohms = _shunts(ctx)
+    rigs: dict[str, tuple[str, str | None, float, str]] = {}  # asset -> method, shunt id, Ω, label
+    shunt_for: dict[Any, tuple[str, str | None, float, str] | None] = {}  # the registry shunt for each Ω asked
+    for asset in latest["asset"]:
+        plan = plans[asset]
+        if plan.get("method") == "direct":
+            rigs[asset] = ("direct", None, np.nan, "direct")
+        elif plan.get("method") == "shunt":
+            wanted = plan.get("shunt_ohm")
+            if wanted not in shunt_for:
+                match = ohms[np.isclose(ohms, float(wanted))] if wanted is not None else ohms
+                ident, value = (str(match.index[0]), float(match.iloc[0])) if len(match) else ("", np.nan)
+                shunt_for[wanted] = ("shunt", ident, value, f"shunt {ident} ({value:g} Ω)") if len(match) else None
+            found = shunt_for[wanted]
+            if found is not None:
+                rigs[asset] = found
+    latest = latest[latest["asset"].isin(list(rigs))].set_index("asset")["test"]
+    pts = pts[(pts["test"] == pts["asset"].map(latest)) & pts["measured"].notna()]
+    if pts.empty:
+        return pd.DataFrame(columns=[*COLUMNS, "asset"])
+    rig = pd.DataFrame.from_dict(rigs, orient="index", columns=["method", "shunt", "ohm", "label"])
+    rig = rig.reindex(pts["asset"].to_numpy()).set_axis(pts.index)
+    meters = pd.Series({a: plans[a].get("meter") for a in rigs}, dtype=object).reindex(pts["asset"].to_numpy())
+    shunt = rig["method"] == "shunt"
+    amps = q.convert(pts["measured"], pts["output_unit"], "A")
+    alt = _as_read_by(pts, rig["method"], rig["shunt"].where(shunt, None), (amps * rig["ohm"]).where(
+        shunt, pts["measured"]), pts["output_unit"].where(~shunt, "V"))
+    alt["meter"] = alt["meter"].where(~meters.astype(bool).to_numpy(), meters.to_numpy())  # the planned meter
+    table = _evaluate(ctx, alt, rig["label"])
+    return table.assign(asset=pts["asset"].to_numpy(), input_pct=pts["input_pct"].to_numpy(),
+                        mpe=pts["mpe"].to_numpy(), output_unit=pts["output_unit"].to_numpy())
 
 
 @hookimpl
 def ll_sheet_sections(ctx: RunContext, plans: dict[str, dict[str, Any]]) -> dict[str, list[Section]]:
-    return each(plans, lambda asset: sheet_sections(ctx, asset, plans[asset]))
-
-
-def sheet_sections(ctx: RunContext, asset: str, plan: dict[str, Any]) -> list[Section]:
-    table = planned(ctx, asset, plan)
+    table = planned(ctx, {str(a): p for a, p in plans.items()})
     if table.empty:
-        return []
-    pts = rows_of(ctx.points, "test", table["test"].iloc[0]).set_index(["phase", "point"])
-    rows = []
-    for r in table.itertuples():
-        mpe = pts.at[(r.phase, r.point), "mpe"]
-        rows.append([str(r.phase).replace("_", "-"), str(r.point), fmt(pts.at[(r.phase, r.point), "input_pct"], 3),
-                     fmt(mpe), fmt(r.U), fmt(r.tur, 3), "yes" if r.tur >= MIN_TUR else "no"])
-    unit = str(pts["output_unit"].iloc[0])
-    return [Section(title=f"Expected U ({unit}) and TUR with the planned rig: {table['alternative'].iloc[0]}",
-                    kind="table", columns=["Phase", "#", "Input %", "MPE ±", "U", "TUR", f"TUR ≥ {MIN_TUR:g}:1"],
-                    rows=rows, order=40)]
+        return {}
+    first = table.drop_duplicates("asset")
+    names = dict(zip(first["asset"], zip(first["output_unit"].astype(str), first["alternative"], strict=True),
+                     strict=True))
+    ok = np.where(table["tur"].to_numpy(dtype=float) >= MIN_TUR, "yes", "no")
+    columns = [phase_texts(table["phase"]), texts(table["point"]), fmt_all(table["input_pct"], 3),
+               fmt_all(table["mpe"]), fmt_all(table["U"]), fmt_all(table["tur"], 3), ok]
+    return {asset: [Section(
+        title=f"Expected U ({names[asset][0]}) and TUR with the planned rig: {names[asset][1]}",
+        kind="table", columns=["Phase", "#", "Input %", "MPE ±", "U", "TUR", f"TUR ≥ {MIN_TUR:g}:1"],
+        rows=rows, order=40)] for asset, rows in rows_by(table["asset"], columns).items()}

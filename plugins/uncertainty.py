@@ -12,10 +12,13 @@ error that makes the file invalid under a rule that needs U.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
+from typing import Any
 
+import numpy as np
 import pandas as pd
-from loopledger.context import RunContext, rows_of
-from loopledger.contracts import Section, each
+from loopledger.context import RunContext
+from loopledger.contracts import Section
 from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import budget
@@ -87,20 +90,68 @@ def percent(p: object) -> str:
     return "< 0.001 %" if value < 0.001 else f"{value:.3g} %"
 
 
-def point_rows(pts: pd.DataFrame) -> list[list[str]]:
-    cols = ["phase", "point", "u", "k", "nu_eff", "U", "mpe", "tur", "risk", "acceptance_limit", "decision"]
-    rows = []
-    for r in pts.reindex(columns=cols).itertuples(index=False):
-        rows.append([str(r.phase).replace("_", "-"), str(r.point), fmt(r.u), fmt(r.k, 3), fmt(r.nu_eff, 3), fmt(r.U),
-                     fmt(r.mpe), fmt(r.tur, 3), percent(r.risk),
-                     fmt(r.acceptance_limit), str(r.decision)])
-    return rows
+def each_value(values: Any, one: Callable[[Any], str]) -> np.ndarray:
+    """``one(v)`` for each of ``values``, as an object array, calling ``one`` once per distinct value.
+
+    The values on a batch of pages repeat a lot (phases, components, divisors, k, ν), so
+    formatting each distinct one once is most of the saving. Numbers are told apart by their
+    bits (-0.0 and 0.0 print differently); an object column is grouped only when it holds
+    nothing but strings (1, 1.0 and True would hash alike), else formatted value by value.
+    """
+    arr = np.asarray(values)
+    if arr.dtype.kind == "f":
+        codes, bits = pd.factorize(arr.astype(np.float64).view(np.int64))
+        distinct = bits.view(np.float64).tolist()
+    elif arr.dtype.kind in "iub":
+        codes, found = pd.factorize(arr)
+        distinct = found.tolist()
+    else:
+        codes, found = pd.factorize(arr, use_na_sentinel=False)
+        if not all(type(v) is str for v in found):
+            return np.array([one(v) for v in arr.tolist()], dtype=object)
+        distinct = list(found)
+    return np.array([one(v) for v in distinct], dtype=object)[codes]
 
 
-def budget_rows(frame: pd.DataFrame) -> list[list[str]]:
-    return [[str(r.phase).replace("_", "-"), str(r.point), str(r.component), str(r.distribution),
-             f"{fmt(r.half_width)} {r.unit}", fmt(r.divisor), fmt(r.sensitivity), fmt(r.contribution), fmt(r.dof, 3)]
-            for r in frame.itertuples(index=False)]
+def fmt_all(values: Any, digits: int = 4) -> np.ndarray:
+    """:func:`fmt` of each value (an object array)."""
+    return each_value(values, lambda v: fmt(v, digits))
+
+
+def phase_texts(values: Any) -> np.ndarray:
+    """Each phase as shown on a page (``as_found`` -> ``as-found``)."""
+    return each_value(values, lambda v: str(v).replace("_", "-"))
+
+
+def texts(values: Any) -> np.ndarray:
+    """``str`` of each value."""
+    return each_value(values, str)
+
+
+def rows_by(keys: pd.Series, columns: list[np.ndarray]) -> dict[str, list[list[str]]]:
+    """Table rows (one per element of the ``columns``) grouped by ``keys``, keeping their order."""
+    if not len(keys):
+        return {}
+    rows = np.column_stack(columns).tolist()
+    groups = keys.groupby(keys.to_numpy(), sort=False).indices
+    return {str(k): [rows[i] for i in idx] for k, idx in groups.items()}
+
+
+def point_rows(pts: pd.DataFrame) -> list[np.ndarray]:
+    """The columns of the per-point table, formatted."""
+    c = pts.reindex(columns=["phase", "point", "u", "k", "nu_eff", "U", "mpe", "tur", "risk", "acceptance_limit",
+                             "decision"])
+    return [phase_texts(c["phase"]), texts(c["point"]), fmt_all(c["u"]), fmt_all(c["k"], 3), fmt_all(c["nu_eff"], 3),
+            fmt_all(c["U"]), fmt_all(c["mpe"]), fmt_all(c["tur"], 3), each_value(c["risk"], percent),
+            fmt_all(c["acceptance_limit"]), texts(c["decision"])]
+
+
+def budget_rows(frame: pd.DataFrame) -> list[np.ndarray]:
+    """The columns of the budget table, formatted."""
+    return [phase_texts(frame["phase"]), texts(frame["point"]), texts(frame["component"]),
+            texts(frame["distribution"]), fmt_all(frame["half_width"]) + " " + texts(frame["unit"]),
+            fmt_all(frame["divisor"]), fmt_all(frame["sensitivity"]), fmt_all(frame["contribution"]),
+            fmt_all(frame["dof"], 3)]
 
 
 @hookimpl
@@ -119,26 +170,32 @@ def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
 
 @hookimpl
 def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
-    return each(tests, lambda test: test_sections(ctx, test))
-
-
-def test_sections(ctx: RunContext, test: str) -> list[Section]:
     if ctx.points.empty or "U" not in ctx.points.columns:
-        return []
-    pts = rows_of(ctx.points, "test", test).sort_values(["phase", "point"])
+        return {}
+    pts = ctx.points[ctx.points["test"].isin(tests)]
     if pts.empty:
-        return []
-    unit = str(pts["output_unit"].iloc[0])
-    rule = str(pts["decision_rule"].iloc[0]) if "decision_rule" in pts else ""
-    sections = [Section(
-        title=f"Uncertainty and conformity per point (rule: {rule}; values in {unit})", kind="table",
-        columns=["Phase", "#", "u", "k", "ν_eff", "U (95.45 %)", "MPE ±", "TUR", "Risk", "Acceptance limit",
-                 "Decision"], rows=point_rows(pts), order=20)]
+        return {}
+    first = pts.drop_duplicates("test")
+    units = dict(zip(first["test"].astype(str), first["output_unit"].astype(str), strict=True))
+    rules = dict(zip(first["test"].astype(str), first["decision_rule"].astype(str), strict=True)) \
+        if "decision_rule" in first else {}
+    pts = pts.sort_values(["test", "phase", "point"], kind="stable")
+    points = rows_by(pts["test"], point_rows(pts))
     frame = ctx.extras.get("budget")
+    terms: dict[str, list[list[str]]] = {}
     if frame is not None:
-        mine = rows_of(frame, "test", test).sort_values(["phase", "point"], kind="stable")
-        sections.append(Section(
-            title=f"Uncertainty budget (contributions u_i in {unit})", kind="table",
-            columns=["Phase", "#", "Component", "Distribution", "Half-width", "Divisor", "Sensitivity", "u_i", "ν"],
-            rows=budget_rows(mine), order=21))
-    return sections
+        mine = frame[frame["test"].isin(tests)].sort_values(["test", "phase", "point"], kind="stable")
+        terms = rows_by(mine["test"], budget_rows(mine))
+    out: dict[str, list[Section]] = {}
+    for test, rows in points.items():
+        unit, rule = units[test], rules.get(test, "")
+        out[test] = [Section(
+            title=f"Uncertainty and conformity per point (rule: {rule}; values in {unit})", kind="table",
+            columns=["Phase", "#", "u", "k", "ν_eff", "U (95.45 %)", "MPE ±", "TUR", "Risk", "Acceptance limit",
+                     "Decision"], rows=rows, order=20)]
+        if frame is not None:
+            out[test].append(Section(
+                title=f"Uncertainty budget (contributions u_i in {unit})", kind="table",
+                columns=["Phase", "#", "Component", "Distribution", "Half-width", "Divisor", "Sensitivity", "u_i",
+                         "ν"], rows=terms.get(test, []), order=21))
+    return out

@@ -143,3 +143,45 @@ def test_cli_loop_checks_a_planned_rig(tmp_path, capsys):
     assert main(["loop", "T-CT1", "--meter", "DMM-1", "--in-loop", "--evidence", str(ev)]) == 0
     assert main(["loop", "NOPE", "--evidence", str(ev)]) == 3
     assert main(["loop", "T-CT1", "--shunt", "banana", "--evidence", str(ev)]) == 3
+
+
+def test_a_batch_gives_each_test_and_sheet_the_sections_it_gets_alone(tmp_path, run_folder, pm):
+    """Pages asked for together get what each gets alone: each its own rig and its own drive limit."""
+    assets = [{**CT_ASSET, "max_load_ohm": 500}, {**CT_ASSET, "asset": "T-CT2", "max_load_ohm": 750},
+              {**CT_ASSET, "asset": "T-CT3", "max_load_ohm": None, "power": None}]
+    results = {"a.yaml": result_yaml(as_found=good_points()),
+               "b.yaml": result_yaml(asset="T-CT2", method="shunt", as_found=good_points(shunt=True)),
+               "c.yaml": result_yaml(asset="T-CT2", date="2026-05-01", connection="in-loop",
+                                     as_found=good_points())}
+    ctx = _ctx(tmp_path, run_folder, assets=assets, results=results)
+    tests = list(ctx.tests["test"])
+    together = pm.hook.ll_test_sections(ctx=ctx, tests=tests)
+    loops = {}
+    for test in tests:
+        [mine] = [s for s in blocks(together, test) if s.title == "Loop burden"]
+        assert [mine] == [s for s in blocks(pm.hook.ll_test_sections(ctx=ctx, tests=[test]), test)
+                          if s.title == "Loop burden"]
+        loops[str(ctx.tests.set_index("test").at[test, "method"]), str(ctx.tests.set_index("test").at[
+            test, "connection"])] = dict(mine.rows)["Loop resistance"]
+    # direct on DMM-1 (1.8 mV/mA = 1.8 Ω); across SH-100; in-loop adds 250 Ω and 2 × 50 m of 1.5 mm² (1.21 Ω)
+    assert loops["direct", "standalone"].startswith("1.8 Ω")
+    assert loops["shunt", "standalone"].startswith("100.0 Ω")
+    assert loops["direct", "in-loop"].startswith("253.0 Ω")
+    plans = {"T-CT1": {"method": "shunt", "shunt_ohm": 610.0, "connection": "standalone"},  # over 500 Ω
+             "T-CT2": {"method": "shunt", "shunt_ohm": 100.0, "connection": "in-loop"},
+             "T-CT3": {"method": "direct", "meter": "DMM-1", "connection": "standalone"},
+             "NOT-IN-REGISTRY": {"method": "direct"}}
+    titles = ("Loop burden of the planned rig", "Before you connect")
+
+    def sheet(found, asset):
+        return [s for s in blocks(found, asset) if s.title in titles]
+
+    together = pm.hook.ll_sheet_sections(ctx=ctx, plans=plans)
+    for asset, plan in plans.items():
+        assert sheet(together, asset) == sheet(pm.hook.ll_sheet_sections(ctx=ctx, plans={asset: plan}), asset)
+    assert not sheet(together, "NOT-IN-REGISTRY")
+    first = sheet(together, "T-CT1")
+    assert dict(first[0].rows)["Margin"].endswith("(exceeds)") and [s.title for s in first] == list(titles)
+    assert dict(sheet(together, "T-CT2")[0].rows)["Loop resistance"].startswith("351.2 Ω")  # 100 + 250 + 1.21
+    assert [s.title for s in sheet(together, "T-CT2")] == [titles[0]]
+    assert dict(sheet(together, "T-CT3")[0].rows)["Status"].startswith("unknown")  # no drive limit known

@@ -15,7 +15,7 @@ import pandas as pd
 import pytest
 from loopledger.cli import main
 
-from tests.evidence import INSTRUMENTS, blocks, result_yaml, write_evidence
+from tests.evidence import CT_ASSET, INSTRUMENTS, blocks, good_points, result_yaml, write_evidence
 
 RIG = copy.deepcopy(INSTRUMENTS)
 RIG["CAL-1"] = {"kind": "source", "range": "1 A", "accuracy": "0.01 %rdg"}
@@ -62,3 +62,42 @@ def test_planned_rig_on_the_site_sheet(tmp_path, run_folder):
     none = blocks(ctx.pm.hook.ll_sheet_sections(ctx=ctx, plans={"T-CT1": {
         "method": "shunt", "shunt_ohm": 250.0, "meter": "DMM-1", "connection": "standalone"}}), "T-CT1")
     assert not any("TUR" in s.title for s in none)
+
+
+def fleet(tmp_path):
+    """Two assets (class 0.5 and class 0.2), read directly and across the shunt, with 1 to 5 points."""
+    second = {**CT_ASSET, "asset": "T-CT2", "accuracy": "0.2"}
+    files = {
+        "a1.yaml": result_yaml(as_found=good_points(0.002), instruments={"source": "CAL-1", "meter": "DMM-1"}),
+        "a2.yaml": result_yaml(method="shunt", date="2026-05-02", as_found=good_points(0.004, shunt=True)[:3],
+                               instruments={"source": "CAL-1", "meter": "DMM-1", "shunt": "SH-100"}),
+        "b1.yaml": result_yaml(asset="T-CT2", date="2026-03-01", as_found=[("50 %", "12.011 mA")],
+                               instruments={"source": "CAL-1", "meter": "DMM-1"}),
+        "b2.yaml": result_yaml(asset="T-CT2", date="2026-06-01", method="shunt", as_found=good_points(shunt=True)[1:],
+                               instruments={"source": "CAL-1", "meter": "DMM-1", "shunt": "SH-100"}),
+    }
+    return write_evidence(tmp_path / "ev", files, assets=[CT_ASSET, second], instruments=RIG)
+
+
+def test_a_batch_gives_each_test_and_sheet_the_sections_it_gets_alone(tmp_path, run_folder):
+    """Pages asked for together get what each gets alone, with rows for its own points only."""
+    ctx = run_folder(fleet(tmp_path))
+    hook = ctx.pm.hook
+    tests = list(ctx.tests["test"])
+    together = hook.ll_test_sections(ctx=ctx, tests=tests)
+    for test in tests:
+        mine = [s for s in blocks(together, test) if s.title.startswith("Method comparison")]
+        assert mine == [s for s in blocks(hook.ll_test_sections(ctx=ctx, tests=[test]), test)
+                        if s.title.startswith("Method comparison")]
+        n_points = int((ctx.points["test"] == test).sum())
+        assert len(mine) == 1 and len(mine[0].rows) == n_points
+    plans = {"T-CT1": {"method": "shunt", "shunt_ohm": 100.0, "meter": "DMM-1", "connection": "standalone"},
+             "T-CT2": {"method": "direct", "meter": "DMM-1", "connection": "standalone"}}
+    sheets = hook.ll_sheet_sections(ctx=ctx, plans=plans)
+    for asset, plan in plans.items():
+        mine = [s for s in blocks(sheets, asset) if "TUR" in s.title]
+        assert mine == [s for s in blocks(hook.ll_sheet_sections(ctx=ctx, plans={asset: plan}), asset)
+                        if "TUR" in s.title]
+        latest = ctx.tests[ctx.tests["asset"] == asset].sort_values("date")["test"].iloc[-1]
+        assert len(mine) == 1 and len(mine[0].rows) == int((ctx.points["test"] == latest).sum())
+        assert mine[0].title.endswith("shunt SH-100 (100 Ω)" if plan["method"] == "shunt" else "direct")

@@ -16,7 +16,7 @@ from loopledger.cli import main
 from loopledger.plugins import budget
 from scipy import stats
 
-from tests.evidence import CT_ASSET, INSTRUMENTS, good_points, result_yaml, write_evidence
+from tests.evidence import CT_ASSET, INSTRUMENTS, blocks, good_points, result_yaml, write_evidence
 
 #: a calibrator-grade source and the meter/shunt of the issue's worked point (fixture data)
 RIG = copy.deepcopy(INSTRUMENTS)
@@ -263,3 +263,47 @@ def test_counts_read_from_the_control_system_need_no_meter(tmp_path, run_folder)
     terms = terms_of(ctx)
     assert set(terms.index) == {"display resolution", "source"}
     assert terms.at["display resolution", "contribution"] == pytest.approx(0.5 / math.sqrt(3) * 16 / 4095, rel=1e-6)
+
+
+def test_a_batch_gives_each_test_page_its_own_points_and_terms(tmp_path, run_folder):
+    """Pages asked for together get what each gets alone, built from that test's points only."""
+    files = {"d.yaml": result_yaml(as_found=good_points(0.002), instruments={"source": "CAL-1", "meter": "DMM-1"}),
+             "s.yaml": result_yaml(method="shunt", date="2026-05-01", as_found=good_points(0.004, shunt=True)[:2],
+                                   instruments={"source": "CAL-1", "meter": "DMM-1", "shunt": "SH-100"}),
+             "o.yaml": result_yaml(asset="T-CT2", as_found=[("50 %", "12.011 mA")],
+                                   instruments={"source": "CAL-1", "meter": "DMM-1"})}
+    ev = write_evidence(tmp_path / "ev", files, instruments=RIG,
+                        assets=[CT_ASSET, {**CT_ASSET, "asset": "T-CT2", "accuracy": "0.2"}])
+    ctx = run_folder(ev)
+    hook = ctx.pm.hook
+    tests = list(ctx.tests["test"])
+    titles = ("Uncertainty and conformity per point", "Uncertainty budget")
+
+    def mine(found, test):
+        return [s for s in blocks(found, test) if s.title.startswith(titles)]
+
+    together = hook.ll_test_sections(ctx=ctx, tests=tests)
+    for test in tests:
+        points, terms = mine(together, test)
+        assert [points, terms] == mine(hook.ll_test_sections(ctx=ctx, tests=[test]), test)
+        pts = ctx.points[ctx.points["test"] == test].sort_values(["phase", "point"])
+        assert [row[5] for row in points.rows] == [f"{u:.4g}" for u in pts["U"]]
+        # u is the root sum of squares of the contributions shown (JCGM 100:2008 eq. 10), to 4 digits
+        for row in points.rows:
+            shown = [float(t[7]) for t in terms.rows if t[:2] == row[:2]]
+            assert math.sqrt(sum(c * c for c in shown)) == pytest.approx(float(row[2]), rel=2e-3)
+
+
+def test_page_numbers_follow_the_general_format_with_a_dash_and_infinity():
+    """Python's format-spec 'g' (4 significant digits) for numbers, '—' for missing, '∞' for infinite.
+
+    -0.0 keeps its sign ('-0' in the 'g' format) although it equals 0.0: values are told apart by their bits.
+    """
+    from loopledger.plugins.uncertainty import fmt_all
+
+    values = [1234567.0, 2.5e-05, 0.0, -0.0, np.nan, np.inf, -np.inf, 2.5e-05, 12.0]
+    expected = [format(v, ".4g") if np.isfinite(v) else ("—" if np.isnan(v) else "∞") for v in values]
+    assert expected[3] == "-0"
+    assert list(fmt_all(np.array(values))) == expected
+    assert list(fmt_all(pd.Series([1.5, None, "n/a"], dtype=object))) == ["1.5", "—", "n/a"]
+    assert list(fmt_all(np.array([3, 3, 12345]), 3)) == ["3", "3", "1.23e+04"]
