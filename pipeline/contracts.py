@@ -111,16 +111,6 @@ class Section:
     order: int = 50
 
 
-def each(ids: Any, make: Any) -> dict[str, list[Section]]:
-    """``{id: make(id)}`` over a batch of page ids, leaving out those with nothing to show.
-
-    For a page hook whose blocks are made one page at a time; a hook over many pages should
-    rather work over all their rows at once.
-    """
-    found = {str(i): make(i) for i in ids}
-    return {k: v for k, v in found.items() if v}
-
-
 @dataclass
 class Command:
     """A subcommand a plugin adds to the ``loopledger`` CLI."""
