@@ -25,6 +25,7 @@ import json
 import os
 import shutil
 import sys
+from collections.abc import Iterable
 from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -305,6 +306,7 @@ class _Build:
     folder: Path
     previous: Path | None
     old_pages: dict[str, Any]
+    old_files: dict[str, str]
     theme: str
 
 
@@ -324,8 +326,9 @@ def _emit(b: _Build, job: Job) -> tuple[dict[str, Any], bool]:
     return entry, True
 
 
-def _run_batch(batch: tuple[list[Any], list[Any]]) -> tuple[dict[str, Any], int]:
-    """Make, compare and write the pages of one batch (in a worker process when parallel)."""
+def _run_batch(batch: tuple[list[Any], list[Any]]) -> tuple[dict[str, Any], dict[str, str], int]:
+    """Make, compare and write the pages of one batch and the copies of its tests' result files (in a
+    worker process when parallel): (manifest page entries, manifest file entries, pages rendered)."""
     b = _CURRENT
     assert b is not None, "no build in progress"
     entries: dict[str, Any] = {}
@@ -333,7 +336,37 @@ def _run_batch(batch: tuple[list[Any], list[Any]]) -> tuple[dict[str, Any], int]
     for job in batch_jobs(b.ctx, b.shared, *batch):
         entries[job.rel], made = _emit(b, job)
         rendered += made
-    return entries, rendered
+    tests = b.shared.tests
+    mine = tests[tests["test"].isin(batch[1])] if len(batch[1]) else tests.iloc[0:0]
+    return entries, _copy_files(b, zip(mine["source_file"], mine["sha256"], strict=True)), rendered
+
+
+def _run_fleet(b: _Build) -> tuple[dict[str, Any], dict[str, str], int]:
+    """The pages about the whole fleet (made in this process while the workers make the batches)."""
+    entries: dict[str, Any] = {}
+    rendered = 0
+    for job in fleet_jobs(b.ctx, b.shared):
+        entries[job.rel], made = _emit(b, job)
+        rendered += made
+    return entries, {}, rendered
+
+
+def _copy_files(b: _Build, sources: Iterable[tuple[Any, Any]]) -> dict[str, str]:
+    """A copy of each original result file under ``files/`` (linked from the live site when its SHA-256 is
+    the one recorded there); {copy: SHA-256}."""
+    out: dict[str, str] = {}
+    for source, sha in sources:
+        rel = "files/" + "/".join(page_name(p) for p in str(source).split("/"))
+        if isinstance(sha, str) and sha and b.previous is not None and b.old_files.get(rel) == sha and \
+                (b.previous / rel).is_file():
+            _reuse(b.previous / rel, b.folder / rel)
+            out[rel] = sha
+            continue
+        raw = b.ctx.raw_files.get(source)
+        if raw is not None:
+            _write(b.folder / rel, raw)
+            out[rel] = hashlib.sha256(raw).hexdigest()
+    return out
 
 
 def _fork_pool(workers: int) -> ProcessPoolExecutor | None:
@@ -351,44 +384,33 @@ def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: 
     global _CURRENT
     theme = _theme_digest()
     sh = prepare(ctx)
-    old = _read_manifest(previous) if previous is not None and previous.is_dir() else {}
+    live = previous if previous is not None and previous.is_dir() else None
+    old = _read_manifest(live) if live is not None else {}
     old_pages = old.get("pages", {}) if old.get("theme") == theme else {}
-    b = _Build(ctx, sh, folder, previous if previous is not None and previous.is_dir() else None, old_pages, theme)
-    manifest: dict[str, Any] = {"theme": theme, "pages": {}, "files": {}}
-    stats = BuildStats()
+    old_files = old.get("files", {}) if isinstance(old.get("files"), dict) else {}
+    b = _Build(ctx, sh, folder, live, old_pages, old_files, theme)
     workers = workers if workers is not None else (os.cpu_count() or 1)
     pages = 4 + 2 * len(sh.assets) + len(sh.tests)
     _CURRENT = b
     try:
         pool = _fork_pool(workers) if workers > 1 and pages >= PARALLEL_MIN else None
         if pool is None:
-            done = [_run_batch(batch) for batch in batches(sh, 1)]
+            done = [*(_run_batch(batch) for batch in batches(sh, 1)), _run_fleet(b)]
         else:
             with pool:
-                done = list(pool.map(_run_batch, batches(sh, workers * 4)))
-        for job in fleet_jobs(ctx, sh):
-            entry, made = _emit(b, job)
-            done.append(({job.rel: entry}, int(made)))
+                futures = [pool.submit(_run_batch, batch) for batch in batches(sh, workers * 4)]
+                fleet = _run_fleet(b)
+                done = [*(f.result() for f in futures), fleet]
     finally:
         _CURRENT = None
-    for entries, rendered in done:
+    manifest: dict[str, Any] = {"theme": theme, "pages": {}, "files": {}}
+    stats = BuildStats()
+    for entries, files, rendered in done:
         manifest["pages"].update(entries)
+        manifest["files"].update(files)
         stats.pages += len(entries)
         stats.rendered += rendered
     stats.reused = stats.pages - stats.rendered
-    old_files = old.get("files", {}) if isinstance(old.get("files"), dict) else {}
-    for test in ctx.tests.itertuples():
-        rel = "files/" + "/".join(page_name(p) for p in str(test.source_file).split("/"))
-        sha = getattr(test, "sha256", None)
-        if isinstance(sha, str) and sha and b.previous is not None and old_files.get(rel) == sha and \
-                (b.previous / rel).is_file():
-            _reuse(b.previous / rel, folder / rel)
-            manifest["files"][rel] = sha
-            continue
-        raw = ctx.raw_files.get(test.source_file)
-        if raw is not None:
-            _write(folder / rel, raw)
-            manifest["files"][rel] = hashlib.sha256(raw).hexdigest()
     static = importlib.resources.files("loopledger.site").joinpath("static")
     for name in STATIC:
         _write(folder / name, static.joinpath(name).read_bytes())

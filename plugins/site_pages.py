@@ -12,7 +12,7 @@ from __future__ import annotations
 import datetime as dt
 import math
 import re
-from dataclasses import asdict
+from dataclasses import fields
 from typing import Any
 
 import numpy as np
@@ -89,9 +89,24 @@ def records(frame: pd.DataFrame, columns: list[str] | None = None) -> list[dict[
             for row in frame[cols].itertuples(index=False, name=None)]
 
 
+_SECTION_FIELDS = [f.name for f in fields(Section) if f.name != "rows"]
+
+
+def _cell(value: Any) -> Any:
+    """:func:`plain` with a fast path for text, which most cells of a plugin's block are."""
+    return value if type(value) is str else plain(value)
+
+
+def section_dict(s: Section) -> dict[str, Any]:
+    """A :class:`Section` as a JSON-able dict (rows of pairs or of table cells; no deep copy)."""
+    out = {name: _cell(getattr(s, name)) for name in _SECTION_FIELDS}
+    out["rows"] = [[_cell(v) for v in row] if isinstance(row, (list, tuple)) else _cell(row) for row in s.rows]
+    return out
+
+
 def section_dicts(groups: list[list[Section] | None]) -> list[dict[str, Any]]:
     found = sorted((s for g in groups for s in g or []), key=lambda s: (s.order, s.title))
-    return [plain(asdict(s)) for s in found]
+    return [section_dict(s) for s in found]
 
 
 def merged_sections(results: list[dict[str, list[Section]] | None]) -> dict[str, list[dict[str, Any]]]:
