@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import datetime as dt
-import weakref
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -63,31 +62,3 @@ class RunContext:
             self.tests.loc[self.tests["source_file"].isin(files), "valid"] = False
         if not self.points.empty:
             self.points = self.points[~self.points["source_file"].isin(files)].copy()
-
-
-_GROUPS: dict[int, tuple[weakref.ref[pd.DataFrame], dict[str, dict[Any, Any]]]] = {}
-
-
-def rows_of(frame: pd.DataFrame, column: str, value: Any) -> pd.DataFrame:
-    """The rows of ``frame`` whose ``column`` equals ``value``.
-
-    Page hooks are called once per test or asset; filtering the whole table with a mask each time
-    would cost tests × points. This builds a position index per (frame, column) once and answers
-    each look-up from it. The index is dropped when the frame is garbage-collected; a frame whose
-    rows are reordered or filtered in place after the first look-up must not be passed again
-    (stages replace ``ctx.points`` rather than reorder it).
-    """
-    key = id(frame)
-    entry = _GROUPS.get(key)
-    if entry is None or entry[0]() is not frame:
-        def forget(_ref: weakref.ref[pd.DataFrame], key: int = key) -> None:
-            _GROUPS.pop(key, None)
-
-        entry = (weakref.ref(frame, forget), {})
-        _GROUPS[key] = entry
-    groups = entry[1].get(column)
-    if groups is None:
-        groups = frame.groupby(column, sort=False).indices if len(frame) else {}
-        entry[1][column] = groups
-    positions = groups.get(value)
-    return frame.iloc[positions] if positions is not None else frame.iloc[0:0]
