@@ -16,7 +16,7 @@ import sys
 import tempfile
 from collections.abc import Iterator
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -48,8 +48,62 @@ def write_bytes(path: Path, data: bytes) -> None:
         raise
 
 
+#: how floats are written in the exported tables (ten significant digits)
+FLOAT_FORMAT = "%.10g"
+
+
 def write_csv(path: Path, frame: pd.DataFrame) -> None:
-    write_bytes(path, frame.to_csv(index=False, lineterminator="\n", float_format="%.10g").encode("utf-8"))
+    write_bytes(path, csv_text(frame).encode("utf-8"))
+
+
+def csv_text(frame: pd.DataFrame) -> str:
+    """``frame.to_csv(index=False, lineterminator="\\n", float_format=FLOAT_FORMAT)``, the same text, made
+    column by column and written by the standard library's C csv writer (pandas' own writer formats a
+    large table about three times more slowly). Columns of pandas' own dtypes (dates, nullable numbers,
+    categories) are formatted by pandas itself."""
+    import csv
+    import io
+
+    cells = [_csv_column(frame.iloc[:, i]) for i in range(frame.shape[1])]
+    buf = io.StringIO()
+    writer = csv.writer(buf, lineterminator="\n")
+    writer.writerow([str(c) for c in frame.columns])
+    writer.writerows(zip(*cells, strict=True))
+    if not cells:
+        buf.write("\n" * len(frame))
+    return buf.getvalue()
+
+
+def _csv_column(series: pd.Series) -> list[str]:
+    import numpy as np
+
+    kind = series.dtype.kind if isinstance(series.dtype, np.dtype) else ""
+    values = series.to_numpy().tolist() if kind in "fiub" and kind else []
+    if kind == "f":
+        return ["" if v != v else FLOAT_FORMAT % v for v in values]
+    if kind in ("i", "u"):
+        return [str(v) for v in values]
+    if kind == "b":
+        return ["True" if v else "False" for v in values]
+    if kind == "O":
+        return [_csv_cell(v) for v in series.to_numpy()]
+    # dates, nullable numbers, categories: pandas' own text for them, read back cell by cell
+    import csv
+    import io
+
+    text = series.to_frame().to_csv(index=False, header=False, lineterminator="\n", float_format=FLOAT_FORMAT)
+    rows = list(csv.reader(io.StringIO(text)))
+    return [row[0] if row else "" for row in rows]
+
+
+def _csv_cell(value: Any) -> str:
+    import pandas as pd
+
+    if value is None or value is pd.NaT or value is pd.NA:
+        return ""
+    if isinstance(value, float) and value != value:
+        return ""
+    return str(value)  # as pandas: a float among other kinds of value is written in full
 
 
 def _exchange(a: Path, b: Path) -> bool:
