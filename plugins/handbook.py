@@ -28,6 +28,7 @@ import sys
 from collections.abc import Iterable
 from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
+from functools import lru_cache
 from pathlib import Path
 from typing import Any
 
@@ -65,6 +66,12 @@ def render_markdown(text: Any) -> str:
     """
     if text is None or isinstance(text, float) or not str(text).strip():
         return ""
+    return _remark_html(str(text))
+
+
+@lru_cache(maxsize=4096)
+def _remark_html(text: str) -> str:
+    """One remark's sanitised HTML (kept per text: a fleet's remarks repeat a few standard phrases)."""
     import nh3
 
     md = _markdown()

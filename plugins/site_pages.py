@@ -356,18 +356,18 @@ def findings_of(ctx: RunContext, rel: str) -> list[Any]:
 
 
 def instruments_data(ctx: RunContext, used: pd.DataFrame, tests: pd.DataFrame) -> dict[str, Any]:
+    from loopledger.plugins.page_rows import grouped
+
     inst = ctx.instruments
-    pages = tests.set_index("test")[["page", "asset", "date", "verdict"]] if len(tests) else None
+    by_test = tests.set_index("test") if len(tests) else None
+    joined = used.assign(**{c: used["test"].map(by_test[c]) if by_test is not None else None
+                            for c in ("page", "asset", "verdict")})
+    uses = grouped(joined, "instrument", ["date", "test"],
+                   ["test", "page", "asset", "date", "role", "status", "out_of_cal", "verdict"], ascending=False)
     out = []
     for ident in sorted(set(inst.index.astype(str)) | set(used["instrument"])):
         info = inst.loc[ident] if ident in inst.index else pd.Series(dtype=object)
-        mine = used[used["instrument"] == ident].sort_values(["date", "test"], ascending=False)
-        rows = []
-        for r in mine.itertuples():
-            extra = pages.loc[r.test] if pages is not None else {}
-            rows.append({"test": r.test, "page": plain(extra["page"]), "asset": plain(extra["asset"]),
-                         "date": plain(r.date), "role": r.role, "status": r.status, "out_of_cal": bool(r.out_of_cal),
-                         "verdict": plain(extra["verdict"])})
+        rows = uses.get(ident, [])
         ranges = records(ctx.ranges[ctx.ranges["instrument"] == ident], ["range", "accuracy", "resolution", "burden"]) \
             if len(ctx.ranges) and "instrument" in ctx.ranges.columns else []
         out.append({"id": ident, "known": ident in inst.index, "kind": plain(info.get("kind")),
