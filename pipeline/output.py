@@ -50,6 +50,8 @@ def write_bytes(path: Path, data: bytes) -> None:
 
 #: how floats are written in the exported tables (ten significant digits)
 FLOAT_FORMAT = "%.10g"
+#: rows formatted at a time when writing a table
+CSV_CHUNK = 5000
 
 
 def write_csv(path: Path, frame: pd.DataFrame) -> None:
@@ -59,41 +61,63 @@ def write_csv(path: Path, frame: pd.DataFrame) -> None:
 def csv_text(frame: pd.DataFrame) -> str:
     """``frame.to_csv(index=False, lineterminator="\\n", float_format=FLOAT_FORMAT)``, the same text, made
     column by column and written by the standard library's C csv writer (pandas' own writer formats a
-    large table about three times more slowly). Columns of pandas' own dtypes (dates, nullable numbers,
-    categories) are formatted by pandas itself."""
+    large table about three times more slowly). Dates and nullable numbers are formatted by pandas
+    itself; a table whose cells that cannot be read back falls back
+    to pandas' writer whole."""
+    import csv
+
+    try:
+        return _csv_text(frame)
+    except csv.Error:
+        return frame.to_csv(index=False, lineterminator="\n", float_format=FLOAT_FORMAT)
+
+
+def _csv_text(frame: pd.DataFrame) -> str:
     import csv
     import io
 
-    cells = [_csv_column(frame.iloc[:, i]) for i in range(frame.shape[1])]
     buf = io.StringIO()
     writer = csv.writer(buf, lineterminator="\n")
     writer.writerow([str(c) for c in frame.columns])
-    writer.writerows(zip(*cells, strict=True))
-    if not cells:
+    if not frame.shape[1]:
         buf.write("\n" * len(frame))
+    whole = {i: _pandas_column(frame.iloc[:, i]) for i in range(frame.shape[1]) if _kind(frame.iloc[:, i]) == ""}
+    for start in range(0, len(frame), CSV_CHUNK):  # the cells of a few rows at a time: bounded memory
+        part = frame.iloc[start:start + CSV_CHUNK]
+        columns = (whole[i][start:start + CSV_CHUNK] if i in whole else _csv_column(part.iloc[:, i])
+                   for i in range(part.shape[1]))
+        writer.writerows(zip(*columns, strict=True))
     return buf.getvalue()
 
 
-def _csv_column(series: pd.Series) -> list[str]:
-    import numpy as np
+def _kind(series: pd.Series) -> str:
+    """numpy's kind letter for plain columns, "O" for text, "" for pandas' own dtypes."""
+    import pandas as pd
 
-    kind = series.dtype.kind if isinstance(series.dtype, np.dtype) else ""
-    values = series.to_numpy().tolist() if kind in "fiub" and kind else []
+    if isinstance(series.dtype, pd.StringDtype | pd.CategoricalDtype):  # text: written as its values are
+        return "O"
+    return series.dtype.kind if type(series.dtype).__module__ == "numpy" and series.dtype.kind in "fiubO" else ""
+
+
+def _csv_column(series: pd.Series) -> list[str]:
+    kind = _kind(series)
     if kind == "f":
-        return ["" if v != v else FLOAT_FORMAT % v for v in values]
+        return ["" if v != v else FLOAT_FORMAT % v for v in series.to_numpy().tolist()]
     if kind in ("i", "u"):
-        return [str(v) for v in values]
+        return [str(v) for v in series.to_numpy().tolist()]
     if kind == "b":
-        return ["True" if v else "False" for v in values]
-    if kind == "O":
-        return [_csv_cell(v) for v in series.to_numpy()]
-    # dates, nullable numbers, categories: pandas' own text for them, read back cell by cell
+        return ["True" if v else "False" for v in series.to_numpy().tolist()]
+    return [_csv_cell(v) for v in series.to_numpy(dtype=object)]
+
+
+def _pandas_column(series: pd.Series) -> list[str]:
+    """Dates and nullable numbers: pandas' own text for the whole column (its date format depends
+    on every value), read back cell by cell."""
     import csv
     import io
 
     text = series.to_frame().to_csv(index=False, header=False, lineterminator="\n", float_format=FLOAT_FORMAT)
-    rows = list(csv.reader(io.StringIO(text)))
-    return [row[0] if row else "" for row in rows]
+    return [row[0] if row else "" for row in csv.reader(io.StringIO(text, newline=""))]
 
 
 def _csv_cell(value: Any) -> str:

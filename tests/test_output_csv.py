@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from loopledger import output
 from loopledger.output import FLOAT_FORMAT, csv_text
 
 
@@ -19,7 +20,7 @@ def _pandas(frame: pd.DataFrame) -> str:
     return frame.to_csv(index=False, lineterminator="\n", float_format=FLOAT_FORMAT)
 
 
-def test_every_kind_of_column_matches_pandas():
+def test_every_kind_of_column_matches_pandas(monkeypatch):
     frame = pd.DataFrame({
         "f": [1.5, np.nan, np.inf, -0.0, 1e-12, 123456789.123456],
         "i": np.array([1, -2, 3, 0, 5, 6], dtype=np.int64),
@@ -30,8 +31,10 @@ def test_every_kind_of_column_matches_pandas():
         "stamp": pd.to_datetime(["2026-03-01 10:30", None, "2024-02-29 00:00", "2025-12-31 00:00", "2026-01-01 00:00",
                                 "2026-02-02 00:00"]),
         "nullable": pd.array([1, None, 3, None, 5, 6], dtype="Int64"),
-        "kind": pd.Categorical(["p", "q", None, "p", "q,r", "p"]),
+        "kind": pd.Categorical(["p", "q", None, "p", "q,r", "\r"]),
     })
+    assert csv_text(frame) == _pandas(frame)
+    monkeypatch.setattr(output, "CSV_CHUNK", 4)  # a table longer than one chunk of rows
     assert csv_text(frame) == _pandas(frame)
     assert csv_text(frame.iloc[0:0]) == _pandas(frame.iloc[0:0])
     assert csv_text(pd.DataFrame(index=range(3))) == _pandas(pd.DataFrame(index=range(3)))
@@ -45,4 +48,4 @@ def test_random_rows_match_pandas(rows):
     if frame.empty:
         frame = frame.astype({"value": float, "count": np.int64})
     assert csv_text(frame) == _pandas(frame)
-    assert [r for r in csv.reader(io.StringIO(csv_text(frame)))][0] == ["value", "count", "note"]
+    assert [r for r in csv.reader(io.StringIO(csv_text(frame), newline=""))][0] == ["value", "count", "note"]
