@@ -397,6 +397,22 @@ def test_parallel_rendering_gives_the_same_bytes(tmp_path, run_folder, monkeypat
     assert _tree(tmp_path / "serial") == _tree(tmp_path / "parallel")
 
 
+def test_batches_share_out_every_asset_and_test_once(tmp_path, run_folder):
+    """Each asset goes to one batch with all its tests; a test of an asset missing from the registry too."""
+    stray = result_yaml(asset="T-NOT-LISTED", date="2026-02-01", as_found=good_points())
+    ctx = run_folder(_fleet(tmp_path / "ev", **{"c/stray.yaml": stray}))
+    sh = handbook.prepare(ctx)
+    for n in (1, 2, 3, 8):
+        found = handbook.batches(sh, n)
+        assert 1 <= len(found) <= n
+        assets = [a for batch in found for a in batch[0]]
+        tests = [t for batch in found for t in batch[1]]
+        assert sorted(assets) == sorted(sh.assets.index) and sorted(tests) == sorted(sh.tests["test"])
+        for batch_assets, batch_tests in found:
+            mine = set(sh.tests.loc[sh.tests["asset"].isin(batch_assets), "test"])
+            assert mine <= set(batch_tests)  # an asset's page and its tests' pages are made together
+
+
 # --- accessibility ---------------------------------------------------------------------------------
 
 def _luminance(hex_colour: str) -> float:
