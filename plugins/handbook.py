@@ -191,15 +191,20 @@ class Shared:
     instruments: dict[Any, dict[str, Any]]
 
 
+#: the point columns page data reads besides those a page shows (site_pages.POINT_COLS)
+PAGE_POINT_COLS = ["test", "asset", "date", "phase", "point", "input_pct", "error_pct_span", "mpe", "span"]
+
+
 def prepare(ctx: RunContext) -> Shared:
     rule = str(ctx.section("decision").get("rule", "simple"))
     used = sp.usage(ctx)
     tests = sp.test_table(ctx, used)
     assets = sp.asset_table(ctx, tests)
     points = ctx.points
-    if len(points):  # the chart columns, computed once for every page
+    if len(points):  # only the columns pages show or chart (not a copy of the wide table), computed once
+        keep = [c for c in dict.fromkeys([*PAGE_POINT_COLS, *sp.POINT_COLS]) if c in points.columns]
         extra = sp.chart_columns(points)
-        points = points.assign(**{c: extra[c].to_numpy() for c in sp.CHART_COLS[2:]})
+        points = points[keep].assign(**{c: extra[c].to_numpy() for c in sp.CHART_COLS[2:]})
     by_asset = dict(iter(tests.groupby("asset", sort=False))) if len(tests) else {}
     return Shared({"as_of": ctx.as_of.isoformat(), "cautions": CAUTIONS, "rule": rule}, used, tests, assets,
                   points, by_asset, pr.registry_rows(ctx), pr.instrument_rows(ctx))
