@@ -73,9 +73,16 @@ def parse_one(text: Any) -> Parsed:
 def parse_column(values: pd.Series) -> pd.DataFrame:
     """Vectorised :func:`parse_one`: columns ``value``, ``unit`` and ``problem`` (None when fine)."""
     text = values.astype("string")
-    parts = text.str.extract(_QUANTITY.pattern)
-    value = pd.to_numeric(parts["value"], errors="coerce").astype(float)
-    unit = parts["unit"].fillna("")
+    # each distinct text is parsed once (a column repeats '50 %', 'mA' and the like many times)
+    codes, distinct = pd.factorize(text, use_na_sentinel=True)
+    parts = pd.Series(distinct, dtype="string").str.extract(_QUANTITY.pattern)
+    seen = codes >= 0
+    number = pd.to_numeric(parts["value"], errors="coerce").astype(float).to_numpy()
+    value = pd.Series(np.where(seen, number[np.where(seen, codes, 0)] if len(number) else np.nan, np.nan),
+                      index=values.index, dtype=float)
+    written = parts["unit"].fillna("").to_numpy(dtype=object)
+    unit = pd.Series(np.where(seen, written[np.where(seen, codes, 0)] if len(written) else "", ""),
+                     index=values.index, dtype="string")
     good = value.notna() & (unit != "") & np.isfinite(value.fillna(0.0))
     problem = pd.Series(None, index=values.index, dtype=object)
     for unique in pd.unique(unit[good]):
@@ -85,7 +92,8 @@ def parse_column(values: pd.Series) -> pd.DataFrame:
             unit_check(normalise_unit(str(unique)))
         except ValueError:
             good &= unit != unique
-    unit = unit.map(lambda u: normalise_unit(str(u)) if u else u)
+    normal = {u: normalise_unit(str(u)) if u else u for u in pd.unique(unit)}
+    unit = unit.map(lambda u: normal[u])
     for idx in values.index[~good]:
         try:
             parse_one(values[idx])
