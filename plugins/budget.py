@@ -119,7 +119,8 @@ def _instrument(ctx: RunContext, ids: pd.Series, column: str) -> pd.Series:
     if table.empty or column not in table.columns:
         return pd.Series(None, index=ids.index, dtype=object)
     values = table[column].where(table[column].notna(), None).to_dict()
-    return ids.map(lambda i: values.get(i) if isinstance(i, str) else None)
+    known = {i: values.get(i) if isinstance(i, str) else None for i in pd.unique(ids)}
+    return ids.map(lambda i: known.get(i))  # NaN (never a key twice) is not an id: None, as for any non-text
 
 
 def _relative(text: Any, ohms: float) -> float:
@@ -209,9 +210,11 @@ _DECIMALS = re.compile(r"[+-]?\d+(?:\.(\d*))?")
 
 def written_resolution(text: pd.Series) -> pd.Series:
     """The last digit written (``1234.5 A`` → 0.1; NaN where no number is written)."""
-    parts = text.fillna("").astype(str).str.extract(rf"^\s*({_DECIMALS.pattern})")
-    places = parts[1].fillna("").str.len().astype(float)
-    return pd.Series(np.where(parts[0].notna(), 10.0 ** (-places), np.nan), index=text.index)
+    codes, distinct = pd.factorize(text.fillna("").astype(str))  # each distinct text looked at once
+    parts = pd.Series(distinct, dtype=object).str.extract(rf"^\s*({_DECIMALS.pattern})")
+    places = parts[1].fillna("").str.len().astype(float).to_numpy()
+    step = np.where(parts[0].notna().to_numpy(), 10.0 ** (-places), np.nan)
+    return pd.Series(step[codes] if len(step) else np.full(len(text), np.nan), index=text.index)
 
 
 def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame, pd.Series]:
