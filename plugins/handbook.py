@@ -186,7 +186,6 @@ class Shared:
     tests: pd.DataFrame
     assets: pd.DataFrame
     points: pd.DataFrame
-    tests_by_asset: dict[Any, pd.DataFrame]
     registry: dict[Any, dict[str, Any]]
     instruments: dict[Any, dict[str, Any]]
 
@@ -205,9 +204,8 @@ def prepare(ctx: RunContext) -> Shared:
         keep = [c for c in dict.fromkeys([*PAGE_POINT_COLS, *sp.POINT_COLS]) if c in points.columns]
         extra = sp.chart_columns(points)
         points = points[keep].assign(**{c: extra[c].to_numpy() for c in sp.CHART_COLS[2:]})
-    by_asset = dict(iter(tests.groupby("asset", sort=False))) if len(tests) else {}
     return Shared({"as_of": ctx.as_of.isoformat(), "cautions": CAUTIONS, "rule": rule}, used, tests, assets,
-                  points, by_asset, pr.registry_rows(ctx), pr.instrument_rows(ctx))
+                  points, pr.registry_rows(ctx), pr.instrument_rows(ctx))
 
 
 def _job(sh: Shared, rel: str, template: str, data: dict[str, Any], charts: dict[str, Any] | None = None) -> Job:
@@ -278,15 +276,14 @@ def jobs(ctx: RunContext) -> list[Job]:
 def batches(sh: Shared, n: int) -> list[tuple[list[Any], list[Any]]]:
     """The assets (with their tests) shared out into ``n`` batches of about equal work; tests whose asset
     is not in the registry are shared out too."""
-    load = sh.tests.groupby("asset").size() if len(sh.tests) else pd.Series(dtype=int)
-    cost = (load.reindex(sh.assets.index).fillna(0) + 3).sort_values(ascending=False, kind="stable")
+    mine = sh.tests.groupby("asset", sort=False)["test"].agg(list).to_dict() if len(sh.tests) else {}
+    cost = pd.Series({a: len(mine.get(a, ())) + 3 for a in sh.assets.index}, dtype=float)
     out: list[tuple[list[Any], list[Any]]] = [([], []) for _ in range(max(1, n))]
     work = [0.0] * len(out)
-    for asset, c in cost.items():
+    for asset, c in cost.sort_values(ascending=False, kind="stable").items():
         k = work.index(min(work))
         out[k][0].append(asset)
-        if asset in sh.tests_by_asset:
-            out[k][1].extend(sh.tests_by_asset[asset]["test"])
+        out[k][1].extend(mine.get(asset, ()))
         work[k] += float(c)
     orphans = sh.tests.loc[~sh.tests["asset"].isin(sh.assets.index), "test"] if len(sh.tests) else []
     for i, test in enumerate(orphans):

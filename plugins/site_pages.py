@@ -104,18 +104,14 @@ def section_dict(s: Section) -> dict[str, Any]:
     return out
 
 
-def section_dicts(groups: list[list[Section] | None]) -> list[dict[str, Any]]:
-    found = sorted((s for g in groups for s in g or []), key=lambda s: (s.order, s.title))
-    return [section_dict(s) for s in found]
-
-
 def merged_sections(results: list[dict[str, list[Section]] | None]) -> dict[str, list[dict[str, Any]]]:
     """The answers of a batch page hook (one ``{id: sections}`` per plugin), as each page's sorted blocks."""
     merged: dict[str, list[Section]] = {}
     for found in results:
         for key, blocks in (found or {}).items():
             merged.setdefault(str(key), []).extend(blocks or [])
-    return {key: section_dicts([blocks]) for key, blocks in merged.items()}
+    return {key: [section_dict(s) for s in sorted(blocks, key=lambda s: (s.order, s.title))]
+            for key, blocks in merged.items()}
 
 
 def test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[dict[str, Any]]]:
@@ -471,14 +467,13 @@ def _evaluate_planned(ctx: RunContext, frame: pd.DataFrame) -> tuple[pd.DataFram
             notes.update({a: f"no plugin handles signal '{signal}', so no expected values can be given"
                           for a in rows["asset"].unique()})
             continue
-        groups = [rows]
         try:  # a signal type from a site plugin may not expect planned points: the rest of the site must still build
             evaluated, _ = handler.evaluate(rows, ctx)
             parts.append(rows.assign(**{c: evaluated[c].to_numpy() for c in evaluated.columns}))
             continue
         except Exception:
-            groups = [g for _, g in rows.groupby("asset", sort=False)]
-        for one in groups:  # the batch failed: find which assets, one at a time
+            pass
+        for _, one in rows.groupby("asset", sort=False):  # the batch failed: find which assets, one at a time
             try:
                 evaluated, _ = handler.evaluate(one, ctx)
                 parts.append(one.assign(**{c: evaluated[c].to_numpy() for c in evaluated.columns}))
