@@ -58,6 +58,49 @@ def write_csv(path: Path, frame: pd.DataFrame) -> None:
     write_bytes(path, csv_text(frame).encode("utf-8"))
 
 
+#: write tables in worker processes only when they hold at least this many cells in all
+PARALLEL_CELLS = 500_000
+
+_TABLES: list[tuple[Path, pd.DataFrame]] | None = None  # handed to forked workers, never pickled
+
+
+def _write_group(indices: list[int]) -> None:
+    assert _TABLES is not None, "no tables being written"
+    for i in indices:
+        write_csv(*_TABLES[i])
+
+
+def write_csvs(tables: list[tuple[Path, pd.DataFrame]], workers: int | None = None) -> None:
+    """Write each ``(path, frame)`` as :func:`write_csv` does, over the machine's cores when the tables
+    are large: forked workers share the frames without copying, each takes tables of about equal size
+    (largest first) and writes them itself. Where fork is not offered, or the tables are small, they are
+    written here, one after another. An error in any worker is raised here."""
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor
+
+    global _TABLES
+    workers = workers if workers is not None else (os.cpu_count() or 1)
+    cells = [max(1, frame.size) for _path, frame in tables]
+    if workers < 2 or len(tables) < 2 or sum(cells) < PARALLEL_CELLS or \
+            "fork" not in multiprocessing.get_all_start_methods():
+        for path, frame in tables:
+            write_csv(path, frame)
+        return
+    groups: list[list[int]] = [[] for _ in range(min(workers, len(tables)))]
+    load = [0] * len(groups)
+    for i in sorted(range(len(tables)), key=lambda i: -cells[i]):
+        k = load.index(min(load))
+        groups[k].append(i)
+        load[k] += cells[i]
+    _TABLES = tables
+    try:
+        with ProcessPoolExecutor(len(groups), mp_context=multiprocessing.get_context("fork")) as pool:
+            for done in [pool.submit(_write_group, g) for g in groups]:
+                done.result()
+    finally:
+        _TABLES = None
+
+
 def csv_text(frame: pd.DataFrame) -> str:
     """``frame.to_csv(index=False, lineterminator="\\n", float_format=FLOAT_FORMAT)``, the same text, made
     column by column and written by the standard library's C csv writer (pandas' own writer formats a

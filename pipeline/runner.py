@@ -117,15 +117,13 @@ def export(ctx: RunContext, out: Path) -> list[Path]:
     The tables are written into a staging folder swapped in whole, so data/
     always holds the tables of one complete run.
     """
-    from loopledger.output import staged_dir, write_csv
+    from loopledger.output import staged_dir, write_csvs
 
-    written = []
+    tables = {name: frame for found in ctx.pm.hook.ll_export_tables(ctx=ctx)
+              for name, frame in (found or {}).items()}  # one file per name (a later plugin's wins, as before)
     with staged_dir(out / "data") as folder:
-        for tables in ctx.pm.hook.ll_export_tables(ctx=ctx):
-            for name, frame in (tables or {}).items():
-                write_csv(folder / f"{name}.csv", frame)
-                written.append(out / "data" / f"{name}.csv")
-    return written
+        write_csvs([(folder / f"{name}.csv", frame) for name, frame in tables.items()])
+    return [out / "data" / f"{name}.csv" for name in tables]
 
 
 def publish(ctx: RunContext, out: Path) -> None:

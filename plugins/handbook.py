@@ -37,8 +37,10 @@ from loopledger.context import RunContext
 from loopledger.contracts import Command
 from loopledger.findings import Finding
 from loopledger.hookspecs import hookimpl
+from loopledger.plugins import page_html
 from loopledger.plugins import page_rows as pr
 from loopledger.plugins import site_pages as sp
+from loopledger.plugins.page_html import num as _num
 from loopledger.plugins.site_pages import CAUTIONS, page_name
 
 __all__ = ["CAUTIONS", "page_name", "render_markdown", "build", "environment"]
@@ -109,8 +111,11 @@ def environment() -> Any:
         )
         env.filters["num"] = _num
         env.filters["signed"] = lambda v, d=3: _num(v, d, sign=True)
+        env.filters["point_rows"] = page_html.point_rows
         env.filters["g"] = _g
-        env.filters["phase"] = lambda v: {"as_found": "as found", "as_left": "as left"}.get(v, v or "")
+        env.filters["phase"] = page_html.phase
+        env.filters["blocks_html"] = page_html.blocks_html
+        env.globals["verdict"] = page_html.verdict
         _ENV = env
     return _ENV
 
@@ -119,12 +124,6 @@ def _g(value: Any) -> str:
     return "—" if value is None or value == "" else (f"{value:g}" if isinstance(value, float) else str(value))
 
 
-def _num(value: Any, digits: int = 4, sign: bool = False) -> str:
-    if value is None or value == "":
-        return "—"
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
-        return str(value)
-    return f"{value:+.{digits}f}" if sign else f"{value:.{digits}f}"
 
 
 def _theme_digest() -> str:
@@ -139,7 +138,7 @@ def _theme_digest() -> str:
         for item in sorted(root.joinpath(folder).iterdir(), key=lambda p: p.name):
             if item.is_file():
                 h.update(item.name.encode() + b"\0" + item.read_bytes())
-    for module in ("charts.py", "svgplot.py", "handbook.py"):
+    for module in ("charts.py", "svgplot.py", "handbook.py", "page_html.py"):
         h.update(importlib.resources.files("loopledger.plugins").joinpath(module).read_bytes())
     return h.hexdigest()
 

@@ -10,6 +10,7 @@ import io
 
 import numpy as np
 import pandas as pd
+import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from loopledger import output
@@ -49,3 +50,21 @@ def test_random_rows_match_pandas(rows):
         frame = frame.astype({"value": float, "count": np.int64})
     assert csv_text(frame) == _pandas(frame)
     assert [r for r in csv.reader(io.StringIO(csv_text(frame), newline=""))][0] == ["value", "count", "note"]
+
+
+def test_tables_written_by_workers_match_pandas(tmp_path, monkeypatch):
+    """Large exports are shared out to forked workers; each file is still pandas' text for its table, every
+    table is written once, and a table that cannot be written stops the export with its error."""
+    monkeypatch.setattr(output, "PARALLEL_CELLS", 1)  # small tables, parallel path
+    rng = np.random.default_rng(7)
+    frames = {f"t{i}": pd.DataFrame({"x": rng.normal(size=50 * (i + 1)), "n": np.arange(50 * (i + 1)),
+                                     "tag": ["a,b" if j % 3 else None for j in range(50 * (i + 1))]})
+              for i in range(5)}
+    output.write_csvs([(tmp_path / f"{name}.csv", frame) for name, frame in frames.items()], workers=2)
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted(f"{name}.csv" for name in frames)
+    for name, frame in frames.items():
+        assert (tmp_path / f"{name}.csv").read_text(encoding="utf-8") == _pandas(frame)
+    blocked = tmp_path / "not-a-folder"
+    blocked.write_text("a file where a folder should be", encoding="utf-8")
+    with pytest.raises(OSError):
+        output.write_csvs([(tmp_path / "ok.csv", frames["t0"]), (blocked / "t.csv", frames["t1"])], workers=2)
