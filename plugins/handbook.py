@@ -3,16 +3,18 @@
 Pages: ``index.html`` (fleet status at ``as_of``), ``assets/<asset>.html``,
 ``tests/<test>.html`` (one evidence sheet per test, its chart drawn into it as inline
 SVG so the page is one self-contained file), ``sheets/<asset>.html`` (printable test
-sheet to take to site), ``overdue.html``, ``failures.html``, ``instruments.html``, and
-a copy of each original result file under ``files/``. Page data comes from
+sheet to take to site), ``overdue.html``, ``failures.html`` and ``instruments.html``.
+Each test page carries its result file exactly as read (shown as text, and as a
+download link holding the bytes), so one file is the whole evidence of one test;
+the site holds no separate copies. Page data comes from
 :mod:`site_pages` and :mod:`page_rows`, charts from :mod:`charts`; templates and CSS
 live in the site/ theme.
 
 The site is built in a staging folder and swapped into place whole. The fleet is
 split into batches (each asset with its tests), made in forked worker processes
 when there are many pages. A manifest (``.manifest.json`` in the site) keeps a hash
-of each page's inputs and of each copied file; an unchanged page or file is hard-linked
-from the previous site instead of being rendered or written again.
+of each page's inputs; an unchanged page is hard-linked from the previous site
+instead of being rendered or written again.
 """
 
 from __future__ import annotations
@@ -25,7 +27,6 @@ import json
 import os
 import shutil
 import sys
-from collections.abc import Iterable
 from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
 from functools import lru_cache
@@ -254,13 +255,14 @@ def batch_jobs(ctx: RunContext, sh: Shared, asset_ids: list[Any], test_ids: list
         out.append(_job(sh, f"assets/{name}.html", "asset.html", data, charts))
         out.append(_job(sh, f"sheets/{name}.html", "sheet.html", {"sheet": sheets[str(ident)],
                                                                    "asset_page": f"{name}.html"}))
-    for tid, page, asset, date, remarks in zip(tests["test"], tests["page"], tests["asset"], tests["date"],
-                                               tests["remarks"] if "remarks" in tests else [None] * len(tests),
-                                               strict=True):
+    for tid, page, asset, date, source, remarks in zip(
+            tests["test"], tests["page"], tests["asset"], tests["date"], tests["source_file"],
+            tests["remarks"] if "remarks" in tests else [None] * len(tests), strict=True):
         data = dict(test_pages[tid])
         chart = data.pop("chart")
         charts = {"chart": ("error", chart, f"{asset}: test of {date}")} if chart else {}
         data["remarks_html"] = render_markdown(remarks)
+        data["original"] = pr.original_file(ctx.raw_files.get(source), source)
         data["has_asset"] = asset in ctx.assets.index
         out.append(_job(sh, f"tests/{page}.html", "test.html", data, charts))
     return out
@@ -314,7 +316,6 @@ class _Build:
     folder: Path
     previous: Path | None
     old_pages: dict[str, Any]
-    old_files: dict[str, str]
     theme: str
 
 
@@ -334,9 +335,9 @@ def _emit(b: _Build, job: Job) -> tuple[dict[str, Any], bool]:
     return entry, True
 
 
-def _run_batch(batch: tuple[list[Any], list[Any]]) -> tuple[dict[str, Any], dict[str, str], int]:
-    """Make, compare and write the pages of one batch and the copies of its tests' result files (in a
-    worker process when parallel): (manifest page entries, manifest file entries, pages rendered)."""
+def _run_batch(batch: tuple[list[Any], list[Any]]) -> tuple[dict[str, Any], int]:
+    """Make, compare and write the pages of one batch (in a worker process when parallel): (manifest page
+    entries, pages rendered)."""
     b = _CURRENT
     assert b is not None, "no build in progress"
     entries: dict[str, Any] = {}
@@ -344,37 +345,17 @@ def _run_batch(batch: tuple[list[Any], list[Any]]) -> tuple[dict[str, Any], dict
     for job in batch_jobs(b.ctx, b.shared, *batch):
         entries[job.rel], made = _emit(b, job)
         rendered += made
-    tests = b.shared.tests
-    mine = tests[tests["test"].isin(batch[1])] if len(batch[1]) else tests.iloc[0:0]
-    return entries, _copy_files(b, zip(mine["source_file"], mine["sha256"], strict=True)), rendered
+    return entries, rendered
 
 
-def _run_fleet(b: _Build) -> tuple[dict[str, Any], dict[str, str], int]:
+def _run_fleet(b: _Build) -> tuple[dict[str, Any], int]:
     """The pages about the whole fleet (made in this process while the workers make the batches)."""
     entries: dict[str, Any] = {}
     rendered = 0
     for job in fleet_jobs(b.ctx, b.shared):
         entries[job.rel], made = _emit(b, job)
         rendered += made
-    return entries, {}, rendered
-
-
-def _copy_files(b: _Build, sources: Iterable[tuple[Any, Any]]) -> dict[str, str]:
-    """A copy of each original result file under ``files/`` (linked from the live site when its SHA-256 is
-    the one recorded there); {copy: SHA-256}."""
-    out: dict[str, str] = {}
-    for source, sha in sources:
-        rel = "files/" + "/".join(page_name(p) for p in str(source).split("/"))
-        if isinstance(sha, str) and sha and b.previous is not None and b.old_files.get(rel) == sha and \
-                (b.previous / rel).is_file():
-            _reuse(b.previous / rel, b.folder / rel)
-            out[rel] = sha
-            continue
-        raw = b.ctx.raw_files.get(source)
-        if raw is not None:
-            _write(b.folder / rel, raw)
-            out[rel] = hashlib.sha256(raw).hexdigest()
-    return out
+    return entries, rendered
 
 
 def _fork_pool(workers: int) -> ProcessPoolExecutor | None:
@@ -395,8 +376,7 @@ def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: 
     live = previous if previous is not None and previous.is_dir() else None
     old = _read_manifest(live) if live is not None else {}
     old_pages = old.get("pages", {}) if old.get("theme") == theme else {}
-    old_files = old.get("files", {}) if isinstance(old.get("files"), dict) else {}
-    b = _Build(ctx, sh, folder, live, old_pages, old_files, theme)
+    b = _Build(ctx, sh, folder, live, old_pages, theme)
     workers = workers if workers is not None else (os.cpu_count() or 1)
     pages = 4 + 2 * len(sh.assets) + len(sh.tests)
     _CURRENT = b
@@ -411,11 +391,10 @@ def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: 
                 done = [*(f.result() for f in futures), fleet]
     finally:
         _CURRENT = None
-    manifest: dict[str, Any] = {"theme": theme, "pages": {}, "files": {}}
+    manifest: dict[str, Any] = {"theme": theme, "pages": {}}
     stats = BuildStats()
-    for entries, files, rendered in done:
+    for entries, rendered in done:
         manifest["pages"].update(entries)
-        manifest["files"].update(files)
         stats.pages += len(entries)
         stats.rendered += rendered
     stats.reused = stats.pages - stats.rendered
@@ -429,7 +408,16 @@ def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: 
 def _reuse(source: Path, target: Path) -> None:
     """A file of the live site into the staging folder: a hard link (no copy) where the file system
     allows, else a copy. Files are never written in place, so a link never changes the live site."""
-    target.parent.mkdir(parents=True, exist_ok=True)
+    try:
+        os.link(source, target)
+    except FileNotFoundError:
+        target.parent.mkdir(parents=True, exist_ok=True)
+        _link_or_copy(source, target)
+    except OSError:
+        shutil.copyfile(source, target)
+
+
+def _link_or_copy(source: Path, target: Path) -> None:
     try:
         os.link(source, target)
     except OSError:
@@ -437,10 +425,18 @@ def _reuse(source: Path, target: Path) -> None:
 
 
 def _write(path: Path, data: bytes) -> None:
-    path.parent.mkdir(parents=True, exist_ok=True)
-    if path.is_symlink() or path.exists():
-        path.unlink()  # never write through a link into the live site
-    path.write_bytes(data)
+    """Write a new file into the staging folder. Opened exclusively (one call where the folder exists):
+    a name already there, which may be a link to a live page, is removed first, never written through."""
+    try:
+        fh = open(path, "xb")
+    except FileNotFoundError:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        fh = open(path, "xb")
+    except FileExistsError:
+        path.unlink()
+        fh = open(path, "xb")
+    with fh:
+        fh.write(data)
 
 
 def _clear_leftovers(out: Path) -> None:

@@ -9,6 +9,7 @@ None), which the incremental build hashes.
 
 from __future__ import annotations
 
+import base64
 import math
 from typing import Any
 
@@ -190,3 +191,23 @@ def drift_charts(ctx: RunContext, assets: pd.DataFrame, points: pd.DataFrame) ->
     end = ctx.as_of.isoformat()
     return {a: {"points": series.get(a, []), "fits": lines.get(a, []), "mpe_pct": _plain(mpe.get(a)), "end": end}
             for a in charted}
+
+
+#: the file as read is shown as text in its test page up to this size (always offered for download)
+SHOW_ORIGINAL_BYTES = 65_536
+
+
+def original_file(raw: bytes | None, rel: Any) -> dict[str, Any] | None:
+    """A result file exactly as read, for its test page: name, size, the bytes in base64 (a download
+    link), and the text where the file is UTF-8 without NUL characters and not over
+    :data:`SHOW_ORIGINAL_BYTES`. None where the file could not be read."""
+    if raw is None:
+        return None
+    text = None
+    if len(raw) <= SHOW_ORIGINAL_BYTES and b"\0" not in raw:
+        try:
+            text = raw.decode("utf-8")
+        except UnicodeDecodeError:
+            text = None
+    return {"name": str(rel).rsplit("/", 1)[-1], "bytes": len(raw), "base64": base64.b64encode(raw).decode("ascii"),
+            "text": text}

@@ -201,14 +201,12 @@ def reference_flags(ctx: RunContext, used: pd.DataFrame) -> pd.DataFrame:
 
 
 def test_table(ctx: RunContext, used: pd.DataFrame | None = None) -> pd.DataFrame:
-    """ctx.tests with page names, file-copy paths and reference flags."""
+    """ctx.tests with page names and reference flags."""
     tests = ctx.tests.copy()
     if tests.empty:
-        return tests.assign(page=[], asset_page=[], file_copy=[], reference_out_of_cal=[], reference_issues=[])
+        return tests.assign(page=[], asset_page=[], reference_out_of_cal=[], reference_issues=[])
     tests["page"] = tests["test"].map(page_name)
     tests["asset_page"] = tests["asset"].map(lambda a: page_name(a) if isinstance(a, str) and a else "")
-    tests["file_copy"] = tests["source_file"].map(
-        lambda rel: "files/" + "/".join(page_name(p) for p in str(rel).split("/")))
     flags = reference_flags(ctx, usage(ctx) if used is None else used)
     tests["reference_out_of_cal"] = flags["reference_out_of_cal"].reindex(tests["test"]).to_numpy()
     tests["reference_issues"] = flags["reference_issues"].reindex(tests["test"]).to_numpy()

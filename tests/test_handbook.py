@@ -2,7 +2,10 @@
 
 from __future__ import annotations
 
+import base64
 import datetime as dt
+import hashlib
+import html
 import os
 import re
 import signal
@@ -170,6 +173,7 @@ class _Audit(HTMLParser):
         self.scripts: list[str] = []
         self.handlers: list[str] = []
         self.external: list[str] = []
+        self.downloads: list[str] = []
         self.text: list[str] = []
 
     def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
@@ -178,7 +182,10 @@ class _Audit(HTMLParser):
         for name, value in attrs:
             if name.startswith("on"):
                 self.handlers.append(f"{tag} {name}")
-            if name in ("src", "href", "action", "srcset", "poster", "data") and value and (
+            if tag == "a" and name == "href" and "download" in dict(attrs) and value and \
+                    re.fullmatch(r"data:application/octet-stream;base64,[A-Za-z0-9+/=]*", value):
+                self.downloads.append(value)  # bytes held in the page, saved as a file, never shown or run
+            elif name in ("src", "href", "action", "srcset", "poster", "data") and value and (
                     ":" in value.split("/")[0] or value.startswith("//")):
                 self.external.append(value)
 
@@ -199,7 +206,7 @@ def test_hostile_remark_renders_as_harmless_text(tmp_path):
     assert main(["run", str(ev), "--out", str(tmp_path / "out")]) == 0
     page = (tmp_path / "out" / "handbook" / "tests" / "r.html").read_text(encoding="utf-8")
     audit = _audit(page)
-    assert audit.scripts == [] and audit.handlers == [] and audit.external == []
+    assert audit.scripts == [] and audit.handlers == [] and audit.external == [] and len(audit.downloads) == 1
     shown = "".join(audit.text)
     # the remark is shown as the text that was written, tags, image and link syntax included
     assert '<script>alert("x")</script>' in shown and "<img src=x onerror=alert(1)>" in shown
@@ -215,6 +222,7 @@ def test_site_refers_to_nothing_outside_itself(tmp_path):
     for page in pages:
         audit = _audit(page.read_text(encoding="utf-8"))
         assert audit.external == [], page
+        assert len(audit.downloads) == (1 if page.parent.name == "tests" else 0), page
         assert audit.scripts in ([], ["filter.js"]), page
         for target in _links(page):
             assert (page.parent / target).resolve().is_file(), f"{page}: broken link {target}"
@@ -230,7 +238,7 @@ def _links(page: Path) -> list[str]:
 
         def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
             for name, value in attrs:
-                if name in ("href", "src") and value:
+                if name in ("href", "src") and value and not value.startswith("data:"):
                     self.found.append(value.split("#")[0])
 
     parser = Links()
@@ -459,4 +467,38 @@ def test_invalid_files_get_an_evidence_page_with_their_findings(tmp_path):
     assert "Invalid file" in page and "twelve mA" in page and "line 12" in page
     assert "could not be judged (1)" in (site / "index.html").read_text(encoding="utf-8")
     assert "c_bad.html" in (site / "failures.html").read_text(encoding="utf-8")
-    assert (site / "files" / "results" / "c" / "bad.yaml").read_bytes() == (ev / "results/c/bad.yaml").read_bytes()
+    assert _embedded(page) == (ev / "results/c/bad.yaml").read_bytes()
+
+
+def _embedded(page: str) -> bytes:
+    """The bytes a test page offers for download (its data: link)."""
+    found = re.search(r'href="data:application/octet-stream;base64,([A-Za-z0-9+/=]*)"', page)
+    assert found, "the page has no download link for its file"
+    return base64.b64decode(found.group(1), validate=True)
+
+
+def test_every_test_page_carries_its_file_exactly_as_read(tmp_path):
+    """Reference: hashlib's SHA-256 and base64 decoding of the evidence files themselves. Each page's
+    download link holds the file's bytes, the page shows their SHA-256, and a UTF-8 file is shown as text
+    (escaped); a file that is not UTF-8 is offered for download only."""
+    latin = result_yaml(asset="T-CT3", as_found=[("50 %", "12.01 mA")])
+    latin = latin.replace("technician: ", "technician: Jos\u00e9 ")
+    ev = _fleet(tmp_path / "ev", **{"c/latin.yaml": "", "c/binary.yaml": ""})
+    (ev / "results/c/latin.yaml").write_bytes(latin.encode("latin-1"))
+    (ev / "results/c/binary.yaml").write_bytes(b"\x00\x01\x02 not text \xff")
+    main(["run", str(ev), "--out", str(tmp_path / "out")])
+    site = tmp_path / "out" / "handbook"
+    pages = sorted((site / "tests").glob("*.html"))
+    assert len(pages) == len(list((ev / "results").rglob("*.*")))
+    for page_path in pages:
+        page = page_path.read_text(encoding="utf-8")
+        source = re.search(r"<dt>File</dt><dd>([^<]*)</dd>", page).group(1)
+        raw = (ev / html.unescape(source)).read_bytes()
+        assert _embedded(page) == raw, source
+        assert hashlib.sha256(raw).hexdigest() in page, source
+        shown = re.search(r"<pre>(.*?)</pre>", page, re.S)
+        if page_path.stem in ("c_latin", "c_binary"):
+            assert shown is None, "a file that is not UTF-8 is not shown as text"
+        else:
+            assert html.unescape(shown.group(1)) == raw.decode("utf-8"), source
+    assert not (site / "files").exists(), "no separate copies"
