@@ -60,16 +60,15 @@ def _parse_one(source: SourceFile) -> tuple[bytes | None, str, Any, str]:
 def parse_ahead(ctx: Any, files: list[SourceFile], workers: int | None = None) -> dict[str, Any]:
     """Read and parse many files over the machine's cores (forked workers share the plugins without
     copying); {rel: result of :func:`_parse_one`}. Empty when too few files or fork is not offered."""
-    import multiprocessing
-    from concurrent.futures import ProcessPoolExecutor
+    from loopledger.forking import can_fork, fork_pool
 
     global _PARSING
     workers = workers if workers is not None else (os.cpu_count() or 1)
-    if workers < 2 or len(files) < PARALLEL_MIN or "fork" not in multiprocessing.get_all_start_methods():
+    if workers < 2 or len(files) < PARALLEL_MIN or not can_fork():
         return {}
     _PARSING = (ctx.pm, int(ctx.config["limits"]["max_file_bytes"]))
     try:
-        with ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork")) as pool:
+        with fork_pool(workers) as pool:
             done = pool.map(_parse_one, files, chunksize=max(1, len(files) // (workers * 8)))
             return {f.rel: r for f, r in zip(files, done, strict=True)}
     finally:

@@ -75,14 +75,12 @@ def write_csvs(tables: list[tuple[Path, pd.DataFrame]], workers: int | None = No
     are large: forked workers share the frames without copying, each takes tables of about equal size
     (largest first) and writes them itself. Where fork is not offered, or the tables are small, they are
     written here, one after another. An error in any worker is raised here."""
-    import multiprocessing
-    from concurrent.futures import ProcessPoolExecutor
+    from loopledger.forking import can_fork, fork_pool
 
     global _TABLES
     workers = workers if workers is not None else (os.cpu_count() or 1)
     cells = [max(1, frame.size) for _path, frame in tables]
-    if workers < 2 or len(tables) < 2 or sum(cells) < PARALLEL_CELLS or \
-            "fork" not in multiprocessing.get_all_start_methods():
+    if workers < 2 or len(tables) < 2 or sum(cells) < PARALLEL_CELLS or not can_fork():
         for path, frame in tables:
             write_csv(path, frame)
         return
@@ -94,7 +92,7 @@ def write_csvs(tables: list[tuple[Path, pd.DataFrame]], workers: int | None = No
         load[k] += cells[i]
     _TABLES = tables
     try:
-        with ProcessPoolExecutor(len(groups), mp_context=multiprocessing.get_context("fork")) as pool:
+        with fork_pool(len(groups)) as pool:
             for done in [pool.submit(_write_group, g) for g in groups]:
                 done.result()
     finally:

@@ -27,7 +27,6 @@ import json
 import os
 import shutil
 import sys
-from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
 from functools import lru_cache
 from pathlib import Path
@@ -37,6 +36,7 @@ import pandas as pd
 from loopledger.context import RunContext
 from loopledger.contracts import Command
 from loopledger.findings import Finding
+from loopledger.forking import can_fork, fork_pool
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import page_html
 from loopledger.plugins import page_rows as pr
@@ -358,16 +358,6 @@ def _run_fleet(b: _Build) -> tuple[dict[str, Any], int]:
     return entries, rendered
 
 
-def _fork_pool(workers: int) -> ProcessPoolExecutor | None:
-    """A pool of forked workers (they share the run's tables without copying), or None where fork is not
-    offered (the build then runs in this process)."""
-    import multiprocessing
-
-    if "fork" not in multiprocessing.get_all_start_methods():
-        return None
-    return ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context("fork"))
-
-
 def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: int | None = None) -> BuildStats:
     """Write the whole site into ``folder``; reuse unchanged pages from ``previous`` (the live site)."""
     global _CURRENT
@@ -381,11 +371,10 @@ def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: 
     pages = 4 + 2 * len(sh.assets) + len(sh.tests)
     _CURRENT = b
     try:
-        pool = _fork_pool(workers) if workers > 1 and pages >= PARALLEL_MIN else None
-        if pool is None:
+        if workers < 2 or pages < PARALLEL_MIN or not can_fork():  # in this process
             done = [*(_run_batch(batch) for batch in batches(sh, 1)), _run_fleet(b)]
-        else:
-            with pool:
+        else:  # forked workers share the run's tables without copying them
+            with fork_pool(workers) as pool:
                 futures = [pool.submit(_run_batch, batch) for batch in batches(sh, workers * 4)]
                 fleet = _run_fleet(b)
                 done = [*(f.result() for f in futures), fleet]

@@ -15,11 +15,22 @@ from __future__ import annotations
 from typing import Any
 
 from jinja2 import ChainableUndefined
+from loopledger.contracts import Section
+from loopledger.plugins.site_pages import plain
 from markupsafe import Markup, escape
 
 #: what a row's missing value is (as in a template: prints as "", is falsy)
 MISSING = ChainableUndefined()
 PHASES = {"as_found": "as found", "as_left": "as left"}
+
+
+#: markupsafe's escapes, applied to plain text in one C call (no Markup object per cell)
+_ESCAPES = str.maketrans({"&": "&amp;", "<": "&lt;", ">": "&gt;", "'": "&#39;", '"': "&#34;"})
+
+
+def _esc(v: Any) -> str:
+    """``str(escape(v))``, quicker for plain text, which most cells are."""
+    return v.translate(_ESCAPES) if type(v) is str else str(escape(v))
 
 
 def num(value: Any, digits: int = 4, sign: bool = False) -> str:
@@ -44,8 +55,8 @@ VERDICT_MARKS = {"pass": "✓", "fail": "✗", "adjusted": "↻", "invalid": "!"
 
 def verdict(v: Any) -> Markup:
     """A verdict as a badge: class ``v-<verdict>``, a mark and the verdict's words."""
-    return Markup(f'<span class="verdict v-{escape(v or "none")}"><span aria-hidden="true">'
-                  f'{escape(VERDICT_MARKS.get(v, "·"))} </span>{escape(VERDICT_WORDS.get(v, v or "—"))}</span>')
+    return Markup(f'<span class="verdict v-{_esc(v or "none")}"><span aria-hidden="true">'
+                  f'{_esc(VERDICT_MARKS.get(v, "·"))} </span>{_esc(VERDICT_WORDS.get(v, v or "—"))}</span>')
 
 
 def _item(row: Any, i: int) -> Any:
@@ -56,40 +67,65 @@ def _item(row: Any, i: int) -> Any:
         return ""
 
 
-def block_html(s: dict[str, Any]) -> str:
-    """One plugin block (a :class:`~loopledger.contracts.Section` as a dict) as a page section."""
-    kind = s.get("kind")
-    parts = ['<section class="plugin-section">\n  <h2>', escape(s.get("title")), "</h2>\n"]
+def _same(v: Any) -> Any:
+    return v
+
+
+def _cell(v: Any) -> Any:
+    """A cell as the page data would hold it (:func:`site_pages.plain`: NaN as None, numpy as Python)."""
+    return v if type(v) is str else plain(v)
+
+
+def _row(row: Any, cell: Any) -> Any:
+    return [cell(v) for v in row] if isinstance(row, (list, tuple)) else cell(row)
+
+
+def _block(get: Any, cell: Any) -> str:
+    kind = get("kind")
+    parts = ['<section class="plugin-section">\n  <h2>', _esc(cell(get("title"))), "</h2>\n"]
     if kind == "facts":
         parts.append('  <dl class="facts">')
-        for pair in s.get("rows") or []:
-            parts += ["<dt>", escape(_item(pair, 0)), "</dt><dd>", escape(_item(pair, 1)), "</dd>"]
+        for pair in get("rows") or []:
+            pair = _row(pair, cell)
+            parts += ["<dt>", _esc(_item(pair, 0)), "</dt><dd>", _esc(_item(pair, 1)), "</dd>"]
         parts.append("</dl>\n")
     elif kind == "table":
         parts.append('  <div class="scroll"><table><thead><tr>')
-        for c in s.get("columns") or []:
-            parts += ['<th scope="col">', escape(c), "</th>"]
+        for c in get("columns") or []:
+            parts += ['<th scope="col">', _esc(cell(c)), "</th>"]
         parts.append("</tr></thead>\n  <tbody>")
-        for row in s.get("rows") or []:
+        for row in get("rows") or []:
             parts.append("<tr>")
-            for v in row:
-                parts += ["<td>", escape(v), "</td>"]
+            for v in _row(row, cell):
+                parts += ["<td>", _esc(v), "</td>"]
             parts.append("</tr>")
         parts.append("</tbody></table></div>\n")
     elif kind == "text":
-        parts += ["<p>", escape(s.get("text")), "</p>\n"]
+        parts += ["<p>", _esc(cell(get("text"))), "</p>\n"]
     elif kind in ("html", "svg"):
-        parts += ["<figure>", str(s.get("html"))]
-        if s.get("alt"):
-            parts += ["<figcaption>", escape(s.get("alt")), "</figcaption>"]
+        parts += ["<figure>", str(cell(get("html")))]
+        alt = cell(get("alt"))
+        if alt:
+            parts += ["<figcaption>", _esc(alt), "</figcaption>"]
         parts.append("</figure>\n")
     parts.append("</section>")
     return "".join(parts)
 
 
+def block_html(s: dict[str, Any]) -> str:
+    """One plugin block, as a dict of page data (:func:`site_pages.section_dict`), as a page section."""
+    return _block(s.get, _same)
+
+
 def blocks_html(sections: Any) -> Markup:
-    """A page's plugin blocks, in the order given."""
+    """A page's plugin blocks (dicts of page data), in the order given."""
     return Markup("".join(block_html(s) for s in sections or []))
+
+
+def sections_html(sections: list[Section] | None) -> Markup:
+    """A page's plugin blocks straight from the plugins' :class:`Section` objects: the same HTML as
+    :func:`blocks_html` of their page-data dicts, without making the dicts."""
+    return Markup("".join(_block(lambda name, s=s: getattr(s, name, None), _cell) for s in sections or []))
 
 
 def point_rows(points: list[dict[str, Any]] | None, point_cols: Any, rule: Any) -> Markup:
@@ -99,20 +135,20 @@ def point_rows(points: list[dict[str, Any]] | None, point_cols: Any, rule: Any) 
     out: list[str] = []
     for p in points or []:
         g = p.get
-        out += ['<tr class="d-', escape(g("decision", MISSING)), '">\n<td>', escape(phase(g("phase", MISSING))),
-                "</td><td>", escape(g("point", MISSING)), "</td><td>", escape(g("input", MISSING)), "</td><td>",
-                escape(num(g("input_pct", MISSING), 1)), "</td><td>", escape(g("reading_text", MISSING) or "—"),
-                "</td>\n<td>", escape(num(g("expected", MISSING))), "</td><td>", escape(num(g("measured", MISSING))),
-                "</td><td>", escape(num(g("error", MISSING), 4, sign=True)), "</td><td>",
-                escape(num(g("error_pct_span", MISSING), 3, sign=True)), "</td>\n<td>",
-                escape(num(g("mpe", MISSING))), "</td><td>", escape(num(g("acceptance_limit", MISSING))), "</td>\n"]
+        out += ['<tr class="d-', _esc(g("decision", MISSING)), '">\n<td>', _esc(phase(g("phase", MISSING))),
+                "</td><td>", _esc(g("point", MISSING)), "</td><td>", _esc(g("input", MISSING)), "</td><td>",
+                _esc(num(g("input_pct", MISSING), 1)), "</td><td>", _esc(g("reading_text", MISSING) or "—"),
+                "</td>\n<td>", _esc(num(g("expected", MISSING))), "</td><td>", _esc(num(g("measured", MISSING))),
+                "</td><td>", _esc(num(g("error", MISSING), 4, sign=True)), "</td><td>",
+                _esc(num(g("error_pct_span", MISSING), 3, sign=True)), "</td>\n<td>",
+                _esc(num(g("mpe", MISSING))), "</td><td>", _esc(num(g("acceptance_limit", MISSING))), "</td>\n"]
         if with_u:
             k = g("k", MISSING)
-            out += ["<td>", escape(num(g("U", MISSING))), f" (k={escape(num(k, 2))})" if k else "", "</td>"]
+            out += ["<td>", _esc(num(g("U", MISSING))), f" (k={_esc(num(k, 2))})" if k else "", "</td>"]
         if with_tur:
-            out += ["<td>", escape(num(g("tur", MISSING), 1)), "</td>"]
+            out += ["<td>", _esc(num(g("tur", MISSING), 1)), "</td>"]
         if with_band:
-            out += ["<td>", escape(g("ne43_band", MISSING) or "—"), "</td>"]
-        out += ["<td>", verdict(g("decision", MISSING)), "</td><td>", escape(g("decision_rule", MISSING) or rule),
+            out += ["<td>", _esc(g("ne43_band", MISSING) or "—"), "</td>"]
+        out += ["<td>", verdict(g("decision", MISSING)), "</td><td>", _esc(g("decision_rule", MISSING) or rule),
                 "</td>\n</tr>\n"]
     return Markup("".join(out))

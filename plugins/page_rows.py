@@ -16,7 +16,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from loopledger.context import RunContext
+from loopledger.contracts import Section
 from loopledger.plugins import site_pages as sp
+from loopledger.plugins.page_html import sections_html
 
 
 def column_lists(frame: pd.DataFrame, columns: list[str] | None = None) -> dict[str, list[Any]]:
@@ -111,9 +113,10 @@ def _rig(used: pd.DataFrame, instruments: dict[Any, dict[str, Any]]) -> dict[Any
 
 def test_pages(ctx: RunContext, tests: pd.DataFrame, points: pd.DataFrame, used: pd.DataFrame,
                registry: dict[Any, dict[str, Any]], instruments: dict[Any, dict[str, Any]],
-               blocks: dict[str, list[dict[str, Any]]]) -> dict[Any, dict[str, Any]]:
+               blocks: dict[str, list[Section]]) -> dict[Any, dict[str, Any]]:
     """Each test's evidence page: ``tests`` (rows of :func:`site_pages.test_table`), their ``points``
-    (with the chart columns), their rows of :func:`site_pages.usage`, and the plugins' ``blocks``."""
+    (with the chart columns), their rows of :func:`site_pages.usage`, and the plugins' ``blocks`` (as
+    the HTML of the page's plugin sections)."""
     pts_cols = [c for c in sp.POINT_COLS if c in points.columns]
     mine = points[points["test"].isin(tests["test"])] if len(points) else points
     table = grouped(mine, "test", ["phase", "point"], pts_cols)
@@ -134,7 +137,7 @@ def test_pages(ctx: RunContext, tests: pd.DataFrame, points: pd.DataFrame, used:
                           "message": f.message, "stage": f.stage}
                          for f in sp.findings_of(ctx, str(head["source_file"]))],
             "chart": {"points": chart} if chart else None,
-            "sections": blocks.get(str(tid), []) if head.get("valid") else []}
+            "sections": sections_html(blocks.get(str(tid)) if head.get("valid") else None)}
     return out
 
 
@@ -143,7 +146,7 @@ STATUS_COLS = [*sp.ASSET_COLS, "drift_pct_span_per_year", "recommended_interval_
 
 def asset_pages(ctx: RunContext, assets: pd.DataFrame, tests: pd.DataFrame, points: pd.DataFrame,
                 registry: dict[Any, dict[str, Any]], latest: dict[Any, dict[str, Any] | None],
-                blocks: dict[str, list[dict[str, Any]]]) -> dict[Any, dict[str, Any]]:
+                blocks: dict[str, list[Section]]) -> dict[Any, dict[str, Any]]:
     """Each asset's page: ``assets`` (rows of :func:`site_pages.asset_table`), their ``tests`` and
     ``points``, the error chart of each test (``latest``: test id -> chart data) and the plugins' blocks."""
     history = grouped(tests[tests["asset"].isin(assets["asset"])] if len(tests) else tests, "asset",
@@ -154,7 +157,7 @@ def asset_pages(ctx: RunContext, assets: pd.DataFrame, tests: pd.DataFrame, poin
     for ident, st in zip(assets["asset"], status, strict=True):
         out[ident] = {"asset": registry[ident], "status": st, "tests": history.get(ident, []),
                       "latest_chart": latest.get(st["last_test"]) if st["last_test"] is not None else None,
-                      "drift_chart": drift.get(ident), "sections": blocks.get(str(ident), [])}
+                      "drift_chart": drift.get(ident), "sections": sections_html(blocks.get(str(ident)))}
     return out
 
 

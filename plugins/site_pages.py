@@ -58,6 +58,8 @@ def page_name(ident: Any) -> str:
 
 def plain(value: Any) -> Any:
     """A JSON-able Python value: NaN/NaT -> None, numpy scalars -> Python, dates -> 'YYYY-MM-DD'."""
+    if type(value) is str:
+        return value
     if value is None or value is pd.NaT:
         return None
     if isinstance(value, (pd.Timestamp, dt.datetime)):
@@ -104,22 +106,27 @@ def section_dict(s: Section) -> dict[str, Any]:
     return out
 
 
-def merged_sections(results: list[dict[str, list[Section]] | None]) -> dict[str, list[dict[str, Any]]]:
-    """The answers of a batch page hook (one ``{id: sections}`` per plugin), as each page's sorted blocks."""
+def sorted_sections(results: list[dict[str, list[Section]] | None]) -> dict[str, list[Section]]:
+    """The answers of a batch page hook (one ``{id: sections}`` per plugin), as each page's blocks in
+    page order."""
     merged: dict[str, list[Section]] = {}
     for found in results:
         for key, blocks in (found or {}).items():
             merged.setdefault(str(key), []).extend(blocks or [])
-    return {key: [section_dict(s) for s in sorted(blocks, key=lambda s: (s.order, s.title))]
-            for key, blocks in merged.items()}
+    return {key: sorted(blocks, key=lambda s: (s.order, s.title)) for key, blocks in merged.items()}
 
 
-def test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[dict[str, Any]]]:
-    return merged_sections(ctx.pm.hook.ll_test_sections(ctx=ctx, tests=list(tests))) if len(tests) else {}
+def merged_sections(results: list[dict[str, list[Section]] | None]) -> dict[str, list[dict[str, Any]]]:
+    """:func:`sorted_sections` as page data (dicts)."""
+    return {key: [section_dict(s) for s in blocks] for key, blocks in sorted_sections(results).items()}
 
 
-def asset_sections(ctx: RunContext, assets: list[str]) -> dict[str, list[dict[str, Any]]]:
-    return merged_sections(ctx.pm.hook.ll_asset_sections(ctx=ctx, assets=list(assets))) if len(assets) else {}
+def test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
+    return sorted_sections(ctx.pm.hook.ll_test_sections(ctx=ctx, tests=list(tests))) if len(tests) else {}
+
+
+def asset_sections(ctx: RunContext, assets: list[str]) -> dict[str, list[Section]]:
+    return sorted_sections(ctx.pm.hook.ll_asset_sections(ctx=ctx, assets=list(assets))) if len(assets) else {}
 
 
 def sheet_sections(ctx: RunContext, plans: dict[str, dict[str, Any]]) -> dict[str, list[dict[str, Any]]]:

@@ -6,6 +6,7 @@ categories. Invented plumbing values."""
 from __future__ import annotations
 
 import csv
+import gc
 import io
 
 import numpy as np
@@ -61,6 +62,7 @@ def test_tables_written_by_workers_match_pandas(tmp_path, monkeypatch):
                                      "tag": ["a,b" if j % 3 else None for j in range(50 * (i + 1))]})
               for i in range(5)}
     output.write_csvs([(tmp_path / f"{name}.csv", frame) for name, frame in frames.items()], workers=2)
+    assert gc.get_freeze_count() == 0, "the heap is handed back to the garbage collector after the pool"
     assert sorted(p.name for p in tmp_path.iterdir()) == sorted(f"{name}.csv" for name in frames)
     for name, frame in frames.items():
         assert (tmp_path / f"{name}.csv").read_text(encoding="utf-8") == _pandas(frame)

@@ -159,3 +159,23 @@ point_values = st.one_of(st.none(), st.floats(allow_nan=False, allow_infinity=Fa
 def test_random_point_rows_match_jinja(points: list[dict], cols: list[str]) -> None:
     page = _env().from_string(POINT_ROWS).render(points=points, point_cols=cols, rule="risk")
     assert page_html.point_rows(points, cols, "risk") == page
+
+
+def test_blocks_straight_from_sections_match_their_page_data() -> None:
+    """A plugin's Section objects (numpy numbers, NaN, tuples, hostile text) give the same HTML as the page
+    data made from them, which jinja2 renders as above."""
+    import numpy as np
+    from loopledger.contracts import Section
+    from loopledger.plugins.site_pages import section_dict
+
+    sections = [
+        Section("Budget <u>", kind="table", columns=["Term", "u (mA)"],
+                rows=[("meter", np.float64(0.0021)), ["shunt & leads", np.nan], ("k", np.int64(2)), "ab"]),
+        Section("Facts", rows=[("Margin", np.float32(1.5)), ("None", None), ("flag", np.bool_(True)), ("x",)]),
+        Section("Words", kind="text", text='say "<b>"'),
+        Section("Chart", kind="svg", html="<svg></svg>", alt="error & input"),
+        Section(np.nan, kind="facts", rows=[]),  # type: ignore[arg-type]
+    ]
+    dicts = [section_dict(s) for s in sections]
+    assert page_html.sections_html(sections) == page_html.blocks_html(dicts) == _jinja_blocks(dicts)
+    assert page_html.sections_html(None) == "" == page_html.sections_html([])
