@@ -137,7 +137,9 @@ def _kind(series: pd.Series) -> str:
 
     if isinstance(series.dtype, pd.StringDtype | pd.CategoricalDtype):  # text: written as its values are
         return "O"
-    return series.dtype.kind if type(series.dtype).__module__ == "numpy" and series.dtype.kind in "fiubO" else ""
+    import numpy as np
+
+    return series.dtype.kind if isinstance(series.dtype, np.dtype) and series.dtype.kind in "fiubO" else ""
 
 
 def _csv_column(series: pd.Series) -> list[str]:
@@ -162,6 +164,8 @@ def _pandas_column(series: pd.Series) -> list[str]:
 
 
 def _csv_cell(value: Any) -> str:
+    if type(value) is str:
+        return value
     import pandas as pd
 
     if value is None or value is pd.NaT or value is pd.NA:
