@@ -128,6 +128,12 @@ def same_dimension(unit: str, target: str) -> bool:
     return affine(unit, target) is not None
 
 
+def of_dimension(units: pd.Series, target: str) -> pd.Series:
+    """:func:`same_dimension` of each unit (as text), worked out once per distinct unit."""
+    text = units.astype(str)
+    return text.map({u: same_dimension(u, target) for u in pd.unique(text)}).astype(bool)
+
+
 def convert(values: pd.Series, units: pd.Series, target: str | pd.Series) -> pd.Series:
     """Convert ``values`` given in ``units`` to ``target`` (one unit or one per row).
 

@@ -108,7 +108,9 @@ def best_meter(ctx: RunContext, top_a: float) -> tuple[str, float, str]:
 
 def fmt(series: pd.Series, spec: str = "{:g}") -> pd.Series:
     """Each number formatted with ``spec``; ``?`` where it is missing."""
-    return series.astype(object).map(lambda v: "?" if pd.isna(v) else spec.format(v))
+    codes, distinct = pd.factorize(series.astype(object))  # each distinct number formatted once
+    text = np.array([spec.format(v) for v in distinct] + ["?"], dtype=object)
+    return pd.Series(text[codes], index=series.index, dtype=object)
 
 
 def _text(series: pd.Series) -> pd.Series:

@@ -54,7 +54,7 @@ def _shunts(ctx: RunContext) -> pd.Series:
 
 def alternatives(ctx: RunContext, pts: pd.DataFrame) -> pd.DataFrame:
     """U and TUR of every point of ``pts`` under each alternative method (long table, :data:`COLUMNS`)."""
-    current = pts["output_unit"].map(lambda u: q.same_dimension(str(u), "A"))
+    current = q.of_dimension(pts["output_unit"], "A")
     amps = q.convert(pts["measured"], pts["output_unit"], "A")
     frames: list[pd.DataFrame] = []
     direct = pts[(pts["method"] == "direct") & current & pts["meter"].notna()]

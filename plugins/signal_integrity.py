@@ -117,7 +117,7 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
     pts = ctx.points
     ma, live_zero = output_ma(pts)
     pts["ne43_band"] = np.where(live_zero, classify(ma), "n/a")
-    is_current = ma.notna() | pts["output_unit"].astype(str).map(lambda u: q.same_dimension(u, "A"))
+    is_current = ma.notna() | q.of_dimension(pts["output_unit"], "A")
     pts["clipped"] = clipping(pts) & is_current & ~pts["ne43_band"].isin(OUTSIDE)
     ctx.points = pts
     exports = ctx.extras.setdefault("point_exports", [])
