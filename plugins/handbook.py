@@ -125,8 +125,6 @@ def _g(value: Any) -> str:
     return "—" if value is None or value == "" else (f"{value:g}" if isinstance(value, float) else str(value))
 
 
-
-
 def _theme_digest() -> str:
     root = importlib.resources.files("loopledger.site")
     import jinja2
