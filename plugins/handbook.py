@@ -108,7 +108,7 @@ def environment() -> Any:
         env = jinja2.Environment(
             loader=jinja2.PackageLoader("loopledger.site", "templates"),
             autoescape=True, undefined=jinja2.ChainableUndefined, trim_blocks=True, lstrip_blocks=True,
-            keep_trailing_newline=True,
+            keep_trailing_newline=True, auto_reload=False,  # templates do not change during a run: no stat per page
         )
         env.filters["num"] = _num
         env.filters["signed"] = lambda v, d=3: _num(v, d, sign=True)

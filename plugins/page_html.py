@@ -77,7 +77,9 @@ def _cell(v: Any) -> Any:
 
 
 def _row(row: Any, cell: Any) -> Any:
-    return [cell(v) for v in row] if isinstance(row, (list, tuple)) else cell(row)
+    if isinstance(row, (list, tuple)):
+        return row if cell is _same else [v if type(v) is str else plain(v) for v in row]
+    return cell(row)
 
 
 def _block(get: Any, cell: Any) -> str:
@@ -95,10 +97,8 @@ def _block(get: Any, cell: Any) -> str:
             parts += ['<th scope="col">', _esc(cell(c)), "</th>"]
         parts.append("</tr></thead>\n  <tbody>")
         for row in get("rows") or []:
-            parts.append("<tr>")
-            for v in _row(row, cell):
-                parts += ["<td>", _esc(v), "</td>"]
-            parts.append("</tr>")
+            cells = _row(row, cell)
+            parts.append("<tr><td>" + "</td><td>".join(map(_esc, cells)) + "</td></tr>" if cells else "<tr></tr>")
         parts.append("</tbody></table></div>\n")
     elif kind == "text":
         parts += ["<p>", _esc(cell(get("text"))), "</p>\n"]
