@@ -30,9 +30,9 @@ class RunOptions:
 
 
 def _stamp(findings: list[Finding], stage: str) -> list[Finding]:
-    from dataclasses import replace
-
-    return [f if f.stage else replace(f, stage=stage) for f in findings]
+    """Each finding with the stage that made it (a finding that names its stage keeps it)."""
+    return [f if f.stage else Finding(f.severity, f.message, f.file, f.line, f.field, f.point, f.code, stage)
+            for f in findings]
 
 
 def prepare(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
