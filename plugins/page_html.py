@@ -23,7 +23,6 @@ from markupsafe import Markup, escape
 MISSING = ChainableUndefined()
 PHASES = {"as_found": "as found", "as_left": "as left"}
 
-
 #: markupsafe's escapes, applied to plain text in one C call (no Markup object per cell)
 _ESCAPES = str.maketrans({"&": "&amp;", "<": "&lt;", ">": "&gt;", "'": "&#39;", '"': "&#34;"})
 
@@ -44,6 +43,7 @@ def num(value: Any, digits: int = 4, sign: bool = False) -> str:
 
 def phase(v: Any) -> str:
     return PHASES.get(v, v or "")
+
 
 #: the words and marks of each verdict; the marks are hidden from screen readers
 VERDICT_WORDS = {"pass": "Pass", "fail": "Fail", "adjusted": "Adjusted", "invalid": "Invalid file",
@@ -77,6 +77,7 @@ def _cell(v: Any) -> Any:
 
 
 def _row(row: Any, cell: Any) -> Any:
+    """A row's cells made by ``cell`` (page data, already plain, is taken as it is)."""
     if isinstance(row, (list, tuple)):
         return row if cell is _same else [v if type(v) is str else plain(v) for v in row]
     return cell(row)
