@@ -14,12 +14,24 @@ from __future__ import annotations
 import contextlib
 import gc
 import multiprocessing
-from collections.abc import Iterator
+from collections.abc import Iterator, Sequence
 from concurrent.futures import ProcessPoolExecutor
 
 
 def can_fork() -> bool:
     return "fork" in multiprocessing.get_all_start_methods()
+
+
+def share_out(costs: Sequence[float], n: int) -> list[list[int]]:
+    """The indices of ``costs`` shared into ``n`` groups of about equal total: largest first, each to the
+    group with the least so far (ties in the order given)."""
+    groups: list[list[int]] = [[] for _ in range(max(1, n))]
+    load = [0.0] * len(groups)
+    for i in sorted(range(len(costs)), key=lambda i: -costs[i]):
+        k = load.index(min(load))
+        groups[k].append(i)
+        load[k] += costs[i]
+    return groups
 
 
 @contextlib.contextmanager

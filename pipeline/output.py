@@ -75,7 +75,7 @@ def write_csvs(tables: list[tuple[Path, pd.DataFrame]], workers: int | None = No
     are large: forked workers share the frames without copying, each takes tables of about equal size
     (largest first) and writes them itself. Where fork is not offered, or the tables are small, they are
     written here, one after another. An error in any worker is raised here."""
-    from loopledger.forking import can_fork, fork_pool
+    from loopledger.forking import can_fork, fork_pool, share_out
 
     global _TABLES
     workers = workers if workers is not None else (os.cpu_count() or 1)
@@ -84,12 +84,7 @@ def write_csvs(tables: list[tuple[Path, pd.DataFrame]], workers: int | None = No
         for path, frame in tables:
             write_csv(path, frame)
         return
-    groups: list[list[int]] = [[] for _ in range(min(workers, len(tables)))]
-    load = [0] * len(groups)
-    for i in sorted(range(len(tables)), key=lambda i: -cells[i]):
-        k = load.index(min(load))
-        groups[k].append(i)
-        load[k] += cells[i]
+    groups = share_out(cells, min(workers, len(tables)))
     _TABLES = tables
     try:
         with fork_pool(len(groups)) as pool:

@@ -36,7 +36,7 @@ import pandas as pd
 from loopledger.context import RunContext
 from loopledger.contracts import Command
 from loopledger.findings import Finding
-from loopledger.forking import can_fork, fork_pool
+from loopledger.forking import can_fork, fork_pool, share_out
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import page_html
 from loopledger.plugins import page_rows as pr
@@ -276,14 +276,10 @@ def batches(sh: Shared, n: int) -> list[tuple[list[Any], list[Any]]]:
     """The assets (with their tests) shared out into ``n`` batches of about equal work; tests whose asset
     is not in the registry are shared out too."""
     mine = sh.tests.groupby("asset", sort=False)["test"].agg(list).to_dict() if len(sh.tests) else {}
-    cost = pd.Series({a: len(mine.get(a, ())) + 3 for a in sh.assets.index}, dtype=float)
-    out: list[tuple[list[Any], list[Any]]] = [([], []) for _ in range(max(1, n))]
-    work = [0.0] * len(out)
-    for asset, c in cost.sort_values(ascending=False, kind="stable").items():
-        k = work.index(min(work))
-        out[k][0].append(asset)
-        out[k][1].extend(mine.get(asset, ()))
-        work[k] += float(c)
+    assets = list(sh.assets.index)
+    # a page per test; the asset page and sheet weigh 3
+    groups = share_out([len(mine.get(a, ())) + 3 for a in assets], n)
+    out = [([assets[i] for i in g], [t for i in g for t in mine.get(assets[i], ())]) for g in groups]
     orphans = sh.tests.loc[~sh.tests["asset"].isin(sh.assets.index), "test"] if len(sh.tests) else []
     for i, test in enumerate(orphans):
         out[i % len(out)][1].append(test)
