@@ -392,12 +392,10 @@ def _reuse(source: Path, target: Path) -> None:
     """A file of the live site into the staging folder: a hard link (no copy) where the file system
     allows, else a copy. Files are never written in place, so a link never changes the live site."""
     try:
-        os.link(source, target)
-    except FileNotFoundError:
+        _link_or_copy(source, target)
+    except FileNotFoundError:  # its folder is not made yet
         target.parent.mkdir(parents=True, exist_ok=True)
         _link_or_copy(source, target)
-    except OSError:
-        shutil.copyfile(source, target)
 
 
 def _link_or_copy(source: Path, target: Path) -> None:
