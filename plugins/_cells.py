@@ -2,9 +2,10 @@
 
 from __future__ import annotations
 
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable
 from typing import Any, TypeVar
 
+import numpy as np
 import pandas as pd
 
 T = TypeVar("T")
@@ -27,3 +28,26 @@ def grouped(keys: Iterable[Any], items: Iterable[T]) -> dict[str, list[T]]:
     for key, item in zip(keys, items, strict=True):
         out.setdefault(str(key), []).append(item)
     return out
+
+
+def each_value(values: Any, one: Callable[[Any], str]) -> np.ndarray:
+    """``one(v)`` for each of ``values``, as an object array, calling ``one`` once per distinct value.
+
+    The values on a batch of pages repeat a lot (phases, components, divisors, k, ν), so
+    formatting each distinct one once is most of the saving. Numbers are told apart by their
+    bits (-0.0 and 0.0 print differently); an object column is grouped only when it holds
+    nothing but strings (1, 1.0 and True would hash alike), else formatted value by value.
+    """
+    arr = np.asarray(values)
+    if arr.dtype.kind == "f":
+        codes, bits = pd.factorize(arr.astype(np.float64).view(np.int64))
+        distinct = bits.view(np.float64).tolist()
+    elif arr.dtype.kind in "iub":
+        codes, found = pd.factorize(arr)
+        distinct = found.tolist()
+    else:
+        codes, found = pd.factorize(arr, use_na_sentinel=False)
+        if not all(type(v) is str for v in found):
+            return np.array([one(v) for v in arr.tolist()], dtype=object)
+        distinct = list(found)
+    return np.array([one(v) for v in distinct], dtype=object)[codes]

@@ -34,6 +34,7 @@ from loopledger.contracts import Command, Section
 from loopledger.findings import Finding, note, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import conductors
+from loopledger.plugins._cells import each_value
 from loopledger.plugins.reading_methods import shunt_ohms
 
 #: below this margin (% of the limit) the burden is ``low-margin``
@@ -108,9 +109,8 @@ def best_meter(ctx: RunContext, top_a: float) -> tuple[str, float, str]:
 
 def fmt(series: pd.Series, spec: str = "{:g}") -> pd.Series:
     """Each number formatted with ``spec``; ``?`` where it is missing."""
-    codes, distinct = pd.factorize(series.astype(object))  # each distinct number formatted once
-    text = np.array([spec.format(v) for v in distinct] + ["?"], dtype=object)
-    return pd.Series(text[codes], index=series.index, dtype=object)
+    text = each_value(series, lambda v: "?" if pd.isna(v) else spec.format(v))  # once per distinct number
+    return pd.Series(text, index=series.index, dtype=object)
 
 
 def _text(series: pd.Series) -> pd.Series:

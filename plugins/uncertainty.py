@@ -12,7 +12,6 @@ error that makes the file invalid under a rule that needs U.
 from __future__ import annotations
 
 import math
-from collections.abc import Callable
 from typing import Any
 
 import numpy as np
@@ -22,6 +21,7 @@ from loopledger.contracts import Section
 from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins import budget
+from loopledger.plugins._cells import each_value
 
 POINT_COLUMNS = ["u", "U", "k", "nu_eff"]
 BUDGET_COLUMNS = ["test", "phase", "point", "component", "distribution", "half_width", "unit", "divisor",
@@ -88,29 +88,6 @@ def percent(p: object) -> str:
         return "—"
     value = 100.0 * float(p)  # type: ignore[arg-type]
     return "< 0.001 %" if value < 0.001 else f"{value:.3g} %"
-
-
-def each_value(values: Any, one: Callable[[Any], str]) -> np.ndarray:
-    """``one(v)`` for each of ``values``, as an object array, calling ``one`` once per distinct value.
-
-    The values on a batch of pages repeat a lot (phases, components, divisors, k, ν), so
-    formatting each distinct one once is most of the saving. Numbers are told apart by their
-    bits (-0.0 and 0.0 print differently); an object column is grouped only when it holds
-    nothing but strings (1, 1.0 and True would hash alike), else formatted value by value.
-    """
-    arr = np.asarray(values)
-    if arr.dtype.kind == "f":
-        codes, bits = pd.factorize(arr.astype(np.float64).view(np.int64))
-        distinct = bits.view(np.float64).tolist()
-    elif arr.dtype.kind in "iub":
-        codes, found = pd.factorize(arr)
-        distinct = found.tolist()
-    else:
-        codes, found = pd.factorize(arr, use_na_sentinel=False)
-        if not all(type(v) is str for v in found):
-            return np.array([one(v) for v in arr.tolist()], dtype=object)
-        distinct = list(found)
-    return np.array([one(v) for v in distinct], dtype=object)[codes]
 
 
 def fmt_all(values: Any, digits: int = 4) -> np.ndarray:

@@ -185,3 +185,16 @@ def test_a_batch_gives_each_test_and_sheet_the_sections_it_gets_alone(tmp_path, 
     assert dict(sheet(together, "T-CT2")[0].rows)["Loop resistance"].startswith("351.2 Ω")  # 100 + 250 + 1.21
     assert [s.title for s in sheet(together, "T-CT2")] == [titles[0]]
     assert dict(sheet(together, "T-CT3")[0].rows)["Status"].startswith("unknown")  # no drive limit known
+
+
+def test_figures_are_formatted_value_by_value_as_python_does():
+    """burden.fmt works each distinct value out once, yet gives what Python's own format() gives each
+    value (reference: str.format): -0.0 keeps its sign, 1 and True are not merged, missing is '?'."""
+    import math
+
+    from loopledger.plugins.burden import fmt
+
+    values = [0.0, -0.0, 2.5, float("nan"), 2.5, 1e-7]
+    assert fmt(pd.Series(values)).tolist() == ["?" if math.isnan(v) else f"{v:g}" for v in values]
+    mixed = [1, True, 1.0, None, -0.0, 0.0]
+    assert fmt(pd.Series(mixed, dtype=object), "{}").tolist() == ["?" if v is None else f"{v}" for v in mixed]
