@@ -98,8 +98,7 @@ def csv_text(frame: pd.DataFrame) -> str:
     """``frame.to_csv(index=False, lineterminator="\\n", float_format=FLOAT_FORMAT)``, the same text, made
     column by column and written by the standard library's C csv writer (pandas' own writer formats a
     large table about three times more slowly). Dates and nullable numbers are formatted by pandas
-    itself; a table whose cells that cannot be read back falls back
-    to pandas' writer whole."""
+    itself; a table the csv module cannot write falls back to pandas' writer whole."""
     import csv
 
     try:
@@ -117,11 +116,12 @@ def _csv_text(frame: pd.DataFrame) -> str:
     writer.writerow([str(c) for c in frame.columns])
     if not frame.shape[1]:
         buf.write("\n" * len(frame))
-    whole = {i: _pandas_column(frame.iloc[:, i]) for i in range(frame.shape[1]) if _kind(frame.iloc[:, i]) == ""}
+    kinds = [_kind(frame.iloc[:, i]) for i in range(frame.shape[1])]
+    whole = {i: _pandas_column(frame.iloc[:, i]) for i, kind in enumerate(kinds) if kind == ""}
     for start in range(0, len(frame), CSV_CHUNK):  # the cells of a few rows at a time: bounded memory
         part = frame.iloc[start:start + CSV_CHUNK]
-        columns = (whole[i][start:start + CSV_CHUNK] if i in whole else _csv_column(part.iloc[:, i])
-                   for i in range(part.shape[1]))
+        columns = (whole[i][start:start + CSV_CHUNK] if i in whole else _csv_column(part.iloc[:, i], kind)
+                   for i, kind in enumerate(kinds))
         writer.writerows(zip(*columns, strict=True))
     return buf.getvalue()
 
@@ -137,8 +137,8 @@ def _kind(series: pd.Series) -> str:
     return series.dtype.kind if isinstance(series.dtype, np.dtype) and series.dtype.kind in "fiubO" else ""
 
 
-def _csv_column(series: pd.Series) -> list[str]:
-    kind = _kind(series)
+def _csv_column(series: pd.Series, kind: str) -> list[str]:
+    """A plain column's cells as text; ``kind`` is its :func:`_kind`."""
     if kind == "f":
         return ["" if v != v else FLOAT_FORMAT % v for v in series.to_numpy().tolist()]
     if kind in ("i", "u"):
