@@ -71,11 +71,6 @@ def _same(v: Any) -> Any:
     return v
 
 
-def _cell(v: Any) -> Any:
-    """A cell as the page data would hold it (:func:`site_pages.plain`: NaN as None, numpy as Python)."""
-    return v if type(v) is str else plain(v)
-
-
 def _row(row: Any, cell: Any) -> Any:
     """A row's cells made by ``cell`` (page data, already plain, is taken as it is)."""
     if isinstance(row, (list, tuple)):
@@ -126,7 +121,7 @@ def blocks_html(sections: Any) -> Markup:
 def sections_html(sections: list[Section] | None) -> Markup:
     """A page's plugin blocks straight from the plugins' :class:`Section` objects: the same HTML as
     :func:`blocks_html` of their page-data dicts, without making the dicts."""
-    return Markup("".join(_block(lambda name, s=s: getattr(s, name, None), _cell) for s in sections or []))
+    return Markup("".join(_block(lambda name, s=s: getattr(s, name, None), plain) for s in sections or []))
 
 
 def point_rows(points: list[dict[str, Any]] | None, point_cols: Any, rule: Any) -> Markup:

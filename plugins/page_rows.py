@@ -10,7 +10,6 @@ None), which the incremental build hashes.
 from __future__ import annotations
 
 import base64
-import math
 from typing import Any
 
 import numpy as np
@@ -39,15 +38,9 @@ def column_lists(frame: pd.DataFrame, columns: list[str] | None = None) -> dict[
             items = [None if v is None or isinstance(v, float) else v
                      for v in series.dt.strftime("%Y-%m-%d").astype(object).where(series.notna(), None)]
         else:
-            items = [v if type(v) is str else _plain(v) for v in series.to_numpy(dtype=object)]
+            items = [v if type(v) is str else sp.plain(v) for v in series.to_numpy(dtype=object)]
         out[col] = items
     return out
-
-
-def _plain(value: Any) -> Any:
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    return sp.plain(value)
 
 
 def dict_rows(lists: dict[str, list[Any]], start: int = 0, stop: int | None = None) -> list[dict[str, Any]]:
@@ -192,7 +185,7 @@ def drift_charts(ctx: RunContext, assets: pd.DataFrame, points: pd.DataFrame) ->
                         ["input_pct", "slope_pct_per_year", "intercept_pct", "ref_date", "n", "stderr"])
     mpe = (pts["mpe"] / pts["span"].abs() * 100.0).groupby(pts["asset"], sort=False).max()
     end = ctx.as_of.isoformat()
-    return {a: {"points": series.get(a, []), "fits": lines.get(a, []), "mpe_pct": _plain(mpe.get(a)), "end": end}
+    return {a: {"points": series.get(a, []), "fits": lines.get(a, []), "mpe_pct": sp.plain(mpe.get(a)), "end": end}
             for a in charted}
 
 

@@ -94,15 +94,10 @@ def records(frame: pd.DataFrame, columns: list[str] | None = None) -> list[dict[
 _SECTION_FIELDS = [f.name for f in fields(Section) if f.name != "rows"]
 
 
-def _cell(value: Any) -> Any:
-    """:func:`plain` with a fast path for text, which most cells of a plugin's block are."""
-    return value if type(value) is str else plain(value)
-
-
 def section_dict(s: Section) -> dict[str, Any]:
     """A :class:`Section` as a JSON-able dict (rows of pairs or of table cells; no deep copy)."""
-    out = {name: _cell(getattr(s, name)) for name in _SECTION_FIELDS}
-    out["rows"] = [[_cell(v) for v in row] if isinstance(row, (list, tuple)) else _cell(row) for row in s.rows]
+    out = {name: plain(getattr(s, name)) for name in _SECTION_FIELDS}
+    out["rows"] = [[plain(v) for v in row] if isinstance(row, (list, tuple)) else plain(row) for row in s.rows]
     return out
 
 
