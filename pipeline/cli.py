@@ -11,6 +11,7 @@ from __future__ import annotations
 import argparse
 import sys
 from collections.abc import Sequence
+from typing import Any
 
 from loopledger import __version__
 
@@ -52,15 +53,17 @@ class _Quiet(argparse.ArgumentParser):
         raise ValueError(message)
 
 
-def replay(argv: list[str]) -> int | None:
+def replay(argv: list[str]) -> tuple[int | None, Any]:
     """Answer ``run`` / ``check`` from the incremental cache when nothing changed (no heavy imports).
 
-    None means "do the full run" (something changed, no cache, or anything unusual).
+    Returns (exit code, None) when the cache answered; (None, the cache it looked at) when something
+    changed, so the full run need not scan the evidence folder again; (None, None) when there is no
+    cache or anything is unusual.
     """
     from loopledger.commands import check, run
 
     if not argv or argv[0] not in ("run", "check") or any(a in ("-h", "--help") for a in argv):
-        return None
+        return None, None
     module = run if argv[0] == "run" else check
     parser = _Quiet(prog="loopledger", add_help=False)
     module.add_arguments(parser)
@@ -68,7 +71,7 @@ def replay(argv: list[str]) -> int | None:
         args = parser.parse_args(argv[1:])
         return module.replay(args)
     except Exception:  # a usage or configuration problem: the full path reports it properly
-        return None
+        return None, None
 
 
 def main(argv: Sequence[str] | None = None) -> int:
@@ -76,13 +79,14 @@ def main(argv: Sequence[str] | None = None) -> int:
 
     argv = list(sys.argv[1:] if argv is None else argv)
     try:
-        code = replay(argv)
+        code, looked = replay(argv)
     except KeyboardInterrupt:
         return 130
     if code is not None:
         return code
     parser, runners = build_parser()
     args = parser.parse_args(argv)
+    args.looked = looked  # the cache the quick path already compared with the evidence folder
     if not args.command:
         parser.print_help()
         return EXIT_USAGE

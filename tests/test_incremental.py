@@ -94,6 +94,23 @@ def test_one_changed_file_is_the_only_one_parsed_again(tmp_path, capsys, parse_c
                         "results/2026/a2.yaml": "fail", "results/2026/a3.yaml": "pass"}
 
 
+def test_a_changed_rerun_scans_the_folder_once_and_records_it(tmp_path, capsys, parse_calls, monkeypatch):
+    """The CLI's quick no-change check hands its scan of the folder to the full run (no second scan),
+    and what the full run records is right: the next rerun, with nothing changed, replays."""
+    ev = _fleet(tmp_path)
+    out = tmp_path / "out"
+    _run(ev, out, capsys)
+    scans: list[Path] = []
+    original = incremental.scan_inputs
+    monkeypatch.setattr(incremental, "scan_inputs", lambda evidence: scans.append(evidence) or original(evidence))
+    (ev / "results" / "2026" / "a1.yaml").write_text(result_yaml(date="2026-02-10", as_found=good_points(0.5)),
+                                                     encoding="utf-8")
+    code, text = _run(ev, out, capsys)
+    assert code == 1 and len(scans) == 1
+    assert _run(ev, out, capsys) == (code, text)
+    assert parse_calls[4:] == ["results/2026/a1.yaml"], "the rerun after the changed one did not replay"
+
+
 def test_added_and_removed_files_rerun(tmp_path, capsys):
     ev = _fleet(tmp_path)
     out = tmp_path / "out"

@@ -45,14 +45,18 @@ def cache_for(args: argparse.Namespace) -> incremental.Cache | None:
     return make_cache(args, "check", args.cache, [], paths=paths)
 
 
-def replay(args: argparse.Namespace) -> int | None:
+def replay(args: argparse.Namespace) -> tuple[int | None, incremental.Cache | None]:
+    """As :func:`loopledger.commands.run.replay`; ``check`` keeps a cache only when ``--cache`` names one."""
     if args.cache is None or args.no_cache:
-        return None
+        return None, None
     try:
         cache = cache_for(args)
     except Exception:  # let the full path report it properly
-        return None
-    return cache.replay(args.evidence, sys.stdout) if cache is not None else None
+        return None, None
+    if cache is None:
+        return None, None
+    code = cache.replay(args.evidence, sys.stdout)
+    return (code, None) if code is not None else (None, cache)
 
 
 def main(args: argparse.Namespace) -> int:

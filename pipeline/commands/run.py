@@ -75,12 +75,16 @@ def cache_for(args: argparse.Namespace) -> incremental.Cache | None:
                       handbook=not args.no_handbook, verbose=bool(args.verbose))
 
 
-def replay(args: argparse.Namespace) -> int | None:
-    """The previous run's exit code (its summary reprinted) when nothing changed; else None."""
+def replay(args: argparse.Namespace) -> tuple[int | None, incremental.Cache | None]:
+    """The previous run's exit code (its summary reprinted) when nothing changed; else (None, the
+    cache looked at, or None)."""
     if not args.evidence.is_dir():
-        return None
+        return None, None
     cache = cache_for(args)
-    return cache.replay(args.evidence, sys.stdout) if cache is not None else None
+    if cache is None:
+        return None, None
+    code = cache.replay(args.evidence, sys.stdout)
+    return (code, None) if code is not None else (None, cache)
 
 
 def main(args: argparse.Namespace) -> int:
@@ -93,13 +97,22 @@ def main(args: argparse.Namespace) -> int:
 
 def cached(args: argparse.Namespace, cache: incremental.Cache | None,
            full: Callable[[argparse.Namespace, incremental.Cache | None], tuple[int, dict[str, str]]]) -> int:
-    """Replay when nothing changed; else forget the manifest, do the ``full`` work and record it."""
+    """Replay when nothing changed; else forget the manifest, do the ``full`` work and record it.
+
+    When the CLI's quick path already compared this same cache with the evidence folder and found a
+    change (``args.looked``), its scan is used rather than done again.
+    """
     if cache is not None:
-        code = cache.replay(args.evidence, sys.stdout)
-        if code is not None:
-            return code
+        looked = getattr(args, "looked", None)
+        if looked is not None and (looked.folder, looked.key) == (cache.folder, cache.key):
+            cache.inputs = looked.inputs
+        else:
+            code = cache.replay(args.evidence, sys.stdout)
+            if code is not None:
+                return code
         cache.invalidate()
-        cache.inputs = incremental.scan_inputs(args.evidence)  # stats before anything is read
+        if not cache.inputs:  # the replay stopped before scanning (no manifest, or another key)
+            cache.inputs = incremental.scan_inputs(args.evidence)  # stats before anything is read
     with incremental.capture_stdout() as tee:
         code, hashes = full(args, cache)
     if cache is not None:
