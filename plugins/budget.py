@@ -217,6 +217,12 @@ def written_resolution(text: pd.Series) -> pd.Series:
     return pd.Series(step[codes] if len(step) else np.full(len(text), np.nan), index=text.index)
 
 
+#: the point columns :func:`compute` reads once the reading methods have given their sensitivity
+BUDGET_COLUMNS = ["method", "meter", "source", "shunt", "reading", "reading_unit", "reading_text", "measured",
+                  "ambient_c", "injected", "injected_unit", "sensitivity", "n_readings", "reading_sd",
+                  "reading_half_spread", "display_resolution", "display_accuracy", "display_min", "display_max"]
+
+
 def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame, pd.Series]:
     """(terms, per-point u/k/nu_eff/U/c_reading, problems) for the points ``pts``.
 
@@ -230,6 +236,7 @@ def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFr
         problems[mask[mask].index] = text
 
     c_reading = reading_sensitivity(ctx, pts)
+    pts = pts[[c for c in BUDGET_COLUMNS if c in pts.columns]]  # no copies of the whole wide table below
     terms: list[pd.DataFrame] = []
     uses_meter = pts["method"].isin(METER_METHODS) | (pts["meter"].notna() & ~pts["method"].isin(NO_METER))
 

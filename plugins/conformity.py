@@ -20,6 +20,8 @@ from loopledger.plugins.decision_rules import specific_risk
 
 #: below this TUR a test gets a warning (ANSI/NCSL Z540.3 §5.3 alternative)
 MIN_TUR = 4.0
+#: the point columns the findings read
+SHOWN = ["source_file", "line", "phase", "point", "tur", "U", "mpe", "output_unit"]
 
 
 def worst_per_file(rows: pd.DataFrame, by: str) -> pd.DataFrame:
@@ -42,7 +44,8 @@ def conformity(ctx: RunContext) -> list[Finding]:
     exports = ctx.extras.setdefault("point_exports", [])
     exports += [c for c in ("tur", "risk") if c not in exports]
     findings: list[Finding] = []
-    low = worst_per_file(pts[pts["tur"] < MIN_TUR], "tur")
+    shown = pts[[c for c in SHOWN if c in pts.columns]]  # the columns a message names, not the whole table
+    low = worst_per_file(shown[pts["tur"] < MIN_TUR], "tur")
     for w in low.itertuples():
         findings.append(warning(
             f"TUR {w.tur:.2g}:1 is below {MIN_TUR:g}:1 at {w.n_points} point(s) (U ±{w.U:.3g} {w.output_unit} "
@@ -52,7 +55,7 @@ def conformity(ctx: RunContext) -> list[Finding]:
     rule = str(pts["decision_rule"].iloc[0]) if "decision_rule" in pts.columns else "simple"
     if rule != "simple":
         limit = pd.to_numeric(pts["acceptance_limit"], errors="coerce").fillna(0.0)
-        for w in worst_per_file(pts[(limit <= 0.0) & pts["U"].notna()], "line").itertuples():
+        for w in worst_per_file(shown[(limit <= 0.0) & pts["U"].notna()], "line").itertuples():
             findings.append(warning(
                 f"rule '{rule}': the acceptance zone is empty at {w.n_points} point(s) (U ±{w.U:.3g} against MPE "
                 f"±{w.mpe:.3g} {w.output_unit}): no point can pass with this rig", file=str(w.source_file),

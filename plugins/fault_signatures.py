@@ -26,6 +26,9 @@ differs); the full sentence goes to a warning finding and the test page.
 
 from __future__ import annotations
 
+from collections.abc import Callable
+from typing import Any
+
 import numpy as np
 import pandas as pd
 from loopledger.context import RunContext
@@ -73,10 +76,10 @@ def phase_table(pts: pd.DataFrame) -> pd.DataFrame:
     a, b = _fit(frame, "pos", "error", key)
     _, m = _fit(frame, "expected", "measured", key)
     _, per_reading = _fit(frame, "reading", "measured", key)
-    fitted = a.reindex(pd.MultiIndex.from_frame(frame[key])).to_numpy() + \
-        b.reindex(pd.MultiIndex.from_frame(frame[key])).to_numpy() * frame["pos"].to_numpy()
+    each = pd.MultiIndex.from_frame(frame[key])  # each point's (test, phase), to spread the fits back out
+    fitted = a.reindex(each).to_numpy() + b.reindex(each).to_numpy() * frame["pos"].to_numpy()
     frame["residual"] = (frame["error"] - fitted).abs()
-    scale = per_reading.abs().reindex(pd.MultiIndex.from_frame(frame[key])).to_numpy()
+    scale = per_reading.abs().reindex(each).to_numpy()
     half = pts["reading_half_spread"].astype(float) if "reading_half_spread" in pts else np.nan
     sd = pts["reading_sd"].astype(float) if "reading_sd" in pts else np.nan
     frame["repeat_spread"] = pd.Series(np.where(pd.notna(half), 2 * half, 4 * sd), index=pts.index) * scale
@@ -114,47 +117,57 @@ def signatures(table: pd.DataFrame) -> pd.DataFrame:
     zero_only &= straight
     span_only &= straight
     scaled = ((t["ratio"] - 1).abs() > RATIO_AWAY) & (t["ratio_spread"] <= RATIO_AGREE)
-    u = " " + t["unit"].astype(str)
 
     def num(s: pd.Series, spec: str = "{:+.3g}") -> pd.Series:
         return fmt(s, spec)
 
-    cases = [
-        (t["measured_slope"] < REVERSED_SLOPE, "reversed",
+    def u(r: pd.DataFrame) -> pd.Series:
+        return " " + r["unit"].astype(str)
+
+    # (when, label, the detail's words made from the rows it applies to)
+    cases: list[tuple[pd.Series, str, Callable[[pd.DataFrame], Any]]] = [
+        (t["measured_slope"] < REVERSED_SLOPE, "reversed", lambda r:
          "readings fall as the input rises: reversed polarity, crossed terminals or a reverse-acting setting"),
-        (t["no_current"] > 0, "broken loop",
-         "no loop current at " + num(t["no_current"], "{:.0f}") + " point(s): a broken loop, blown fuse or unpowered "
+        (t["no_current"] > 0, "broken loop", lambda r:
+         "no loop current at " + num(r["no_current"], "{:.0f}") + " point(s): a broken loop, blown fuse or unpowered "
          "output — repair the loop before judging calibration"),
-        (t["failure"] > 0, "failure signal",
-         "the output sits in an NE 43 failure band at " + num(t["failure"], "{:.0f}") + " point(s): the device is "
+        (t["failure"] > 0, "failure signal", lambda r:
+         "the output sits in an NE 43 failure band at " + num(r["failure"], "{:.0f}") + " point(s): the device is "
          "signalling a fault"),
-        (t["clipped"] > 0, "clipping",
-         "only the top " + num(t["clipped"], "{:.0f}") + " point(s) fall short: the loop is beyond the output's "
+        (t["clipped"] > 0, "clipping", lambda r:
+         "only the top " + num(r["clipped"], "{:.0f}") + " point(s) fall short: the loop is beyond the output's "
          "drive limit (see the burden check)"),
-        (t["failing"] & scaled, "scaled",
-         "every point reads " + num(t["ratio"], "{:.3f}") + " × expected (from the live zero): the receiver or the "
+        (t["failing"] & scaled, "scaled", lambda r:
+         "every point reads " + num(r["ratio"], "{:.3f}") + " × expected (from the live zero): the receiver or the "
          "transducer is scaled for another current-transformer ratio or range"),
-        (t["failing"] & zero_only, "zero offset",
-         "a constant offset of about " + num(t["zero"]) + u + " at every point: adjust zero"),
-        (t["failing"] & span_only, "span",
-         "the error grows with the input, " + num(t["span_rise"]) + u + " more at full scale than at zero: "
+        (t["failing"] & zero_only, "zero offset", lambda r:
+         "a constant offset of about " + num(r["zero"]) + u(r) + " at every point: adjust zero"),
+        (t["failing"] & span_only, "span", lambda r:
+         "the error grows with the input, " + num(r["span_rise"]) + u(r) + " more at full scale than at zero: "
          "adjust span"),
-        (t["failing"] & zero_sig & span_sig, "zero and span",
-         "an offset of " + num(t["zero"]) + u + " at zero and " + num(t["span_rise"]) + u
+        (t["failing"] & zero_sig & span_sig, "zero and span", lambda r:
+         "an offset of " + num(r["zero"]) + u(r) + " at zero and " + num(r["span_rise"]) + u(r)
          + " more at full scale: adjust zero, then span"),
-        (t["failing"] & (t["residual"] > half), "non-linear",
-         "the error bends: up to " + num(t["residual"], "{:.3g}") + u + " off the best straight line — "
+        (t["failing"] & (t["residual"] > half), "non-linear", lambda r:
+         "the error bends: up to " + num(r["residual"], "{:.3g}") + u(r) + " off the best straight line — "
          "adjustment of zero and span will not remove it"),
     ]
     conds = [np.asarray(c.fillna(False), dtype=bool) for c, _, _ in cases]
+    chosen = np.select(conds, list(range(len(cases))), -1)  # the first case that holds, per row
     label = pd.Series(np.select(conds, [s for _, s, _ in cases], ""), index=t.index, dtype=object)
-    detail = pd.Series(np.select(conds, [np.asarray(d, dtype=object) for _, _, d in cases], ""), index=t.index,
-                       dtype=object)
+    detail = pd.Series("", index=t.index, dtype=object)
+    for i, (_, _, words) in enumerate(cases):  # words only for the rows they describe
+        rows = chosen == i
+        if rows.any():
+            said = words(t[rows])
+            detail[rows] = said.to_numpy() if isinstance(said, pd.Series) else said
     noisy = (t["spread_over_mpe"] > 1).fillna(False)
-    noise = ("repeat readings spread by up to " + num(t["spread"], "{:.3g}") + u + ", more than the MPE: noise, a "
-             "loose connection or an unsteady source")
-    label = label.where(~noisy, (label + "; ").where(label != "", "") + "unsteady")
-    detail = detail.where(~noisy, (detail + "; ").where(detail != "", "") + noise)
+    if noisy.any():
+        r = t[noisy]
+        noise = ("repeat readings spread by up to " + num(r["spread"], "{:.3g}") + u(r) + ", more than the MPE: "
+                 "noise, a loose connection or an unsteady source")
+        label = label.where(~noisy, (label + "; ").where(label != "", "") + "unsteady")
+        detail = detail.where(~noisy, (detail + "; ").where(detail != "", "") + noise.reindex(t.index))
     return pd.DataFrame({"signature": label, "detail": detail})
 
 

@@ -15,9 +15,14 @@ PERCENT = q.PERCENT
 
 
 def ratio(text: pd.Series) -> pd.Series:
-    """An instrument-transformer ratio such as ``2000/1`` -> 2000.0; NaN where blank."""
-    parts = text.astype("string").str.extract(r"^\s*([\d.]+)\s*/\s*([\d.]+)\s*$")
-    return pd.to_numeric(parts[0], errors="coerce") / pd.to_numeric(parts[1], errors="coerce")
+    """An instrument-transformer ratio such as ``2000/1`` -> 2000.0; NaN where blank.
+
+    Each distinct text is read once (a fleet's points repeat their asset's ratio).
+    """
+    codes, distinct = pd.factorize(text.astype("string"), use_na_sentinel=True)
+    parts = pd.Series(distinct, dtype="string").str.extract(r"^\s*([\d.]+)\s*/\s*([\d.]+)\s*$")
+    each = pd.to_numeric(parts[0], errors="coerce") / pd.to_numeric(parts[1], errors="coerce")
+    return pd.Series(each.array.take(codes, allow_fill=True), index=text.index)
 
 
 def where(points: pd.DataFrame, idx: object) -> dict[str, object]:

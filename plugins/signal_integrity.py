@@ -124,19 +124,32 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
     exports += [c for c in ("ne43_band", "clipped") if c not in exports]
     outside = pts["ne43_band"].isin(OUTSIDE)
     findings = [warning(band_words(m, row.ne43_band), field="reading", code="ne43", **_where(row))
-                for row, m in zip(pts[outside].itertuples(), ma[outside], strict=True)]
-    for (test, phase), rows in pts[pts["clipped"]].groupby(["test", "phase"], sort=False):
-        first = rows.sort_values("expected").iloc[0]
-        ceiling = float(output_ma(rows)[0].max())
-        worst = rows.loc[rows["error"].idxmin()]
-        findings.append(warning(
-            f"{str(phase).replace('_', '-')}: the top {len(rows)} point(s) (from {first['input_pct']:.0f} % of range) "
-            f"read short of expected, worst {worst['error']:+.4g} {worst['output_unit']}, while the lower points are "
-            f"in tolerance: the output is likely clipping at its drive (compliance) limit — "
-            + burden_link(ctx, str(test), ceiling),
-            field="reading", code="clipping", file=first["source_file"], line=int(first["line"]),
-            point=f"{phase} #{first['point']}"))
-    return findings
+                for row, m in zip(pts.loc[outside, WHERE].itertuples(), ma[outside], strict=True)]
+    return findings + clipping_findings(ctx, pts[pts["clipped"]], ma[pts["clipped"]])
+
+
+#: the point columns a finding's place is taken from
+WHERE = ["source_file", "line", "phase", "point", "ne43_band"]
+
+
+def clipping_findings(ctx: RunContext, clipped: pd.DataFrame, ma: pd.Series) -> list[Finding]:
+    """One warning per clipped phase of a test, placed at its lowest clipped point (the first in the table
+    among equals) and naming its worst error (likewise) and the highest output reached, in mA."""
+    rows = clipped[["test", "phase", "expected", "input_pct", "error", "output_unit", "source_file", "line",
+                    "point"]].reset_index(drop=True).assign(ma=ma.to_numpy())
+    group = rows.groupby(["test", "phase"], sort=False)
+    first = rows.loc[group["expected"].idxmin()].reset_index(drop=True)
+    worst = rows.loc[group["error"].idxmin()].reset_index(drop=True)
+    ceiling, count = group["ma"].max().to_numpy(), group.size().to_numpy()
+    return [warning(
+        f"{str(phase).replace('_', '-')}: the top {n} point(s) (from {pct:.0f} % of range) "
+        f"read short of expected, worst {err:+.4g} {unit}, while the lower points are "
+        f"in tolerance: the output is likely clipping at its drive (compliance) limit — "
+        + burden_link(ctx, str(test), float(top)),
+        field="reading", code="clipping", file=source, line=int(line), point=f"{phase} #{point}")
+        for test, phase, pct, source, line, point, err, unit, top, n in zip(
+            first["test"], first["phase"], first["input_pct"], first["source_file"], first["line"], first["point"],
+            worst["error"], worst["output_unit"], ceiling, count, strict=True)]
 
 
 @hookimpl
