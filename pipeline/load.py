@@ -10,7 +10,7 @@ from typing import Any
 
 import pandas as pd
 from loopledger.contracts import SourceFile
-from loopledger.findings import Finding, error
+from loopledger.findings import Finding, error, warning
 
 HEADER_FIELDS = ("asset", "date", "technician", "connection", "method", "injection", "ambient_c",
                  "source", "meter", "shunt", "remarks", "cjc_c")
@@ -23,6 +23,29 @@ def test_id(rel: str) -> str:
     """A test is named by its file's path under results/, without the suffix."""
     stem = rel.split("/", 1)[1] if rel.startswith("results/") else rel
     return stem.rsplit(".", 1)[0] if "." in stem.rsplit("/", 1)[-1] else stem
+
+
+def test_ids(rels: list[str]) -> tuple[list[str], list[Finding]]:
+    """:func:`test_id` of each file, made unique: files named alike but for their extension
+    (``x.yaml`` and ``x.csv``) keep it in their test's name, and each gets a warning naming the other."""
+    ids = [test_id(rel) for rel in rels]
+    sharing: dict[str, list[str]] = {}
+    for rel, ident in zip(rels, ids, strict=True):
+        sharing.setdefault(ident, []).append(rel)
+    findings: list[Finding] = []
+    for i, rel in enumerate(rels):
+        alike = sharing[ids[i]]
+        if len(alike) > 1:
+            ids[i] = rel.split("/", 1)[1] if rel.startswith("results/") else rel
+            others = ", ".join(r for r in alike if r != rel)
+            findings.append(warning(f"{others} has the same name but for its extension: this test is listed as "
+                                    f"'{ids[i]}'; keep one file per test", file=rel, code="same-name"))
+    seen: dict[str, int] = {}
+    for i, ident in enumerate(ids):  # a name with its extension could still match another's without
+        seen[ident] = seen.get(ident, 0) + 1
+        if seen[ident] > 1:
+            ids[i] = f"{ident}#{seen[ident]}"
+    return ids, findings
 
 
 def read_bounded(path: Path, limit: int) -> bytes:
@@ -87,16 +110,15 @@ def read_files(ctx: Any, files: Iterable[SourceFile],
     previous = dict(parsed) if parsed is not None else {}
     kept: dict[tuple[str, str], Any] = {}
     limits = ctx.config["limits"]
-    findings: list[Finding] = []
     tests: list[dict[str, Any]] = []
     points: list[dict[str, Any]] = []
     header_lines: dict[str, dict[str, int]] = {}
     files = list(files)
     known = {rel for rel, _sha in previous}
     ahead = parse_ahead(ctx, [f for f in files if f.rel not in known])
-    for source in files:
-        row: dict[str, Any] = {"test": test_id(source.rel), "source_file": source.rel, "sha256": "",
-                               "valid": True}
+    ids, findings = test_ids([f.rel for f in files])
+    for source, ident in zip(files, ids, strict=True):
+        row: dict[str, Any] = {"test": ident, "source_file": source.rel, "sha256": "", "valid": True}
         tests.append(row)
         if progress:
             progress(1)

@@ -10,6 +10,7 @@ add (uncertainty, burden, history) are used when present; when a column or a
 from __future__ import annotations
 
 import datetime as dt
+import hashlib
 import math
 import re
 from dataclasses import fields
@@ -54,6 +55,20 @@ def page_name(ident: Any) -> str:
     """A file name that is safe on any file system and cannot leave its folder."""
     name = _UNSAFE.sub("_", str(ident)).strip("._") or "_"
     return name[:150]
+
+
+def page_names(idents: Any) -> list[str]:
+    """:func:`page_name` of each id, made unique: ids whose safe names coincide (``a/b`` and ``a_b``,
+    or two long ids cut to the same 150 characters) each get a short hash of the id itself, so no
+    page is written over another. The same id always gets the same name, whatever else is listed."""
+    idents = [str(i) for i in idents]
+    names = [page_name(i) for i in idents]
+    owners: dict[str, set[str]] = {}
+    for ident, name in zip(idents, names, strict=True):
+        owners.setdefault(name, set()).add(ident)
+    shared = {name for name, who in owners.items() if len(who) > 1}
+    return [f"{name[:140]}-{hashlib.sha256(ident.encode('utf-8')).hexdigest()[:9]}" if name in shared else name
+            for ident, name in zip(idents, names, strict=True)]
 
 
 def plain(value: Any) -> Any:
@@ -207,8 +222,10 @@ def test_table(ctx: RunContext, used: pd.DataFrame | None = None) -> pd.DataFram
     tests = ctx.tests.copy()
     if tests.empty:
         return tests.assign(page=[], asset_page=[], reference_out_of_cal=[], reference_issues=[])
-    tests["page"] = tests["test"].map(page_name)
-    tests["asset_page"] = tests["asset"].map(lambda a: page_name(a) if isinstance(a, str) and a else "")
+    tests["page"] = page_names(tests["test"])
+    registered = dict(zip(ctx.assets.index, page_names(ctx.assets.index), strict=True))
+    tests["asset_page"] = tests["asset"].map(lambda a: registered.get(a, page_name(a)) if isinstance(a, str) and a
+                                             else "")
     flags = reference_flags(ctx, usage(ctx) if used is None else used)
     tests["reference_out_of_cal"] = flags["reference_out_of_cal"].reindex(tests["test"]).to_numpy()
     tests["reference_issues"] = flags["reference_issues"].reindex(tests["test"]).to_numpy()
@@ -227,7 +244,7 @@ def _add_months(date: Any, months: Any) -> Any:
 def asset_table(ctx: RunContext, tests: pd.DataFrame) -> pd.DataFrame:
     """One row per asset: registry columns, latest test, verdict, next due, overdue, prediction."""
     assets = ctx.assets.copy()
-    assets["page"] = assets["asset"].map(page_name)
+    assets["page"] = page_names(assets.index)
     valid = tests[tests["valid"].astype(bool)] if len(tests) else tests
     latest = valid.sort_values(["date", "test"]).groupby("asset").tail(1).set_index("asset") if len(valid) else \
         pd.DataFrame(columns=["test", "date", "verdict", "page"])

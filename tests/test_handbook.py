@@ -502,3 +502,36 @@ def test_every_test_page_carries_its_file_exactly_as_read(tmp_path):
         else:
             assert html.unescape(shown.group(1)) == raw.decode("utf-8"), source
     assert not (site / "files").exists(), "no separate copies"
+
+
+def test_files_whose_names_clash_each_keep_their_own_page(tmp_path, capsys):
+    """Evidence is never hidden: two result files named alike but for their extension (``x.yaml`` and
+    ``x.yml``) are two tests, and ids that make the same safe file name (``a b`` and ``a_b``) get two
+    pages. Each page carries its own file (the bytes in its download link, checked with base64 and the
+    files themselves); each clash of names gets a warning; the run is not stopped."""
+    ev = write_evidence(tmp_path / "ev", {
+        "x/T-CT1_a.yaml": result_yaml(date="2026-01-10", as_found=good_points(0.01)),
+        "x/T-CT1_a.yml": result_yaml(date="2026-02-10", as_found=good_points(0.02)),
+        "x/a b.yaml": result_yaml(date="2026-03-10", as_found=good_points(0.03)),
+        "x/a_b.yaml": result_yaml(date="2026-04-10", as_found=good_points(0.04))})
+    code = main(["run", str(ev), "--out", str(tmp_path / "out")])
+    text = capsys.readouterr().out.replace("\n  ", " ")
+    assert code == 0, text
+    pages = sorted((tmp_path / "out" / "handbook" / "tests").glob("*.html"))
+    carried = sorted(_embedded(p.read_text(encoding="utf-8")) for p in pages)
+    assert carried == sorted(p.read_bytes() for p in (ev / "results").rglob("*.y*ml"))
+    for rel, other in (("x/T-CT1_a.yaml", "x/T-CT1_a.yml"), ("x/T-CT1_a.yml", "x/T-CT1_a.yaml")):
+        assert f"results/{rel}: warning: results/{other} has the same name but for its extension" in text
+    tests = pd.read_csv(tmp_path / "out" / "data" / "tests.csv")
+    assert tests["test"].is_unique and len(tests) == 4
+
+
+def test_page_names_are_unique_and_stable():
+    """Safe names that coincide get a hash of their own id; names that do not coincide are left alone,
+    and an id's name does not depend on what else is listed."""
+    names = sp.page_names(["a b", "a_b", "a/b", "plain", "x" * 200, "x" * 199 + "y"])
+    assert len(set(names)) == 6
+    assert names[3] == "plain"
+    assert all(n.startswith("a_b-") for n in names[:3])
+    assert sp.page_names(["a b", "a_b"]) == names[:2]
+    assert sp.page_names(["a b"]) == ["a_b"]
