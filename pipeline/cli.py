@@ -11,9 +11,12 @@ from __future__ import annotations
 import argparse
 import sys
 from collections.abc import Sequence
-from typing import Any
+from typing import TYPE_CHECKING
 
 from loopledger import __version__
+
+if TYPE_CHECKING:
+    from loopledger.incremental import Cache
 
 EXIT_USAGE = 3
 EXIT_INTERNAL = 4
@@ -53,7 +56,7 @@ class _Quiet(argparse.ArgumentParser):
         raise ValueError(message)
 
 
-def replay(argv: list[str]) -> tuple[int | None, Any]:
+def replay(argv: list[str]) -> tuple[int | None, Cache | None]:
     """Answer ``run`` / ``check`` from the incremental cache when nothing changed (no heavy imports).
 
     Returns (exit code, None) when the cache answered; (None, the cache it looked at) when something

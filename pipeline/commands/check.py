@@ -49,14 +49,13 @@ def replay(args: argparse.Namespace) -> tuple[int | None, incremental.Cache | No
     """As :func:`loopledger.commands.run.replay`; ``check`` keeps a cache only when ``--cache`` names one."""
     if args.cache is None or args.no_cache:
         return None, None
+    from loopledger.commands.run import replay_with
+
     try:
         cache = cache_for(args)
     except Exception:  # let the full path report it properly
         return None, None
-    if cache is None:
-        return None, None
-    code = cache.replay(args.evidence, sys.stdout)
-    return (code, None) if code is not None else (None, cache)
+    return replay_with(cache, args.evidence)
 
 
 def main(args: argparse.Namespace) -> int:

@@ -80,10 +80,14 @@ def replay(args: argparse.Namespace) -> tuple[int | None, incremental.Cache | No
     cache looked at, or None)."""
     if not args.evidence.is_dir():
         return None, None
-    cache = cache_for(args)
+    return replay_with(cache_for(args), args.evidence)
+
+
+def replay_with(cache: incremental.Cache | None, evidence: Path) -> tuple[int | None, incremental.Cache | None]:
+    """(exit code, None) when ``cache`` answers for ``evidence``; else (None, the cache, or None)."""
     if cache is None:
         return None, None
-    code = cache.replay(args.evidence, sys.stdout)
+    code = cache.replay(evidence, sys.stdout)
     return (code, None) if code is not None else (None, cache)
 
 
