@@ -37,9 +37,10 @@ def test_ids(rels: list[str]) -> tuple[list[str], list[Finding]]:
         alike = sharing[ids[i]]
         if len(alike) > 1:
             ids[i] = rel.split("/", 1)[1] if rel.startswith("results/") else rel
-            others = ", ".join(r for r in alike if r != rel)
-            findings.append(warning(f"{others} has the same name but for its extension: this test is listed as "
-                                    f"'{ids[i]}'; keep one file per test", file=rel, code="same-name"))
+            others = [r for r in alike if r != rel]
+            said = "has the same name but for its" if len(others) == 1 else "have the same name but for their"
+            findings.append(warning(f"{', '.join(others)} {said} extension: this test is listed as '{ids[i]}'; "
+                                    "keep one file per test", file=rel, code="same-name"))
     seen: dict[str, int] = {}
     for i, ident in enumerate(ids):  # a name with its extension could still match another's without
         seen[ident] = seen.get(ident, 0) + 1
