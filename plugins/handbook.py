@@ -38,7 +38,7 @@ from loopledger.contracts import Command
 from loopledger.findings import Finding
 from loopledger.forking import can_fork, fork_pool, share_out
 from loopledger.hookspecs import hookimpl
-from loopledger.plugins import page_html
+from loopledger.plugins import page_html, page_inputs
 from loopledger.plugins import page_rows as pr
 from loopledger.plugins import site_pages as sp
 from loopledger.plugins.page_html import num as _num
@@ -272,11 +272,12 @@ def jobs(ctx: RunContext) -> list[Job]:
     return [*fleet_jobs(ctx, sh), *batch_jobs(ctx, sh, list(sh.assets.index), list(sh.tests["test"]))]
 
 
-def batches(sh: Shared, n: int) -> list[tuple[list[Any], list[Any]]]:
+def batches(sh: Shared, n: int, only: set[Any] | None = None) -> list[tuple[list[Any], list[Any]]]:
     """The assets (with their tests) shared out into ``n`` batches of about equal work; tests whose asset
-    is not in the registry are shared out too."""
+    is not in the registry are shared out too. ``only``: just these registered assets (and every such
+    test)."""
     mine = sh.tests.groupby("asset", sort=False)["test"].agg(list).to_dict() if len(sh.tests) else {}
-    assets = list(sh.assets.index)
+    assets = [a for a in sh.assets.index if only is None or a in only]
     # a page per test; the asset page and sheet weigh 3
     groups = share_out([len(mine.get(a, ())) + 3 for a in assets], n)
     out = [([assets[i] for i in g], [t for i in g for t in mine.get(assets[i], ())]) for g in groups]
@@ -299,6 +300,8 @@ class BuildStats:
     pages: int = 0
     rendered: int = 0
     reused: int = 0
+    #: registered assets whose page data was not made again (their digest matched the live site's)
+    kept: int = 0
 
 
 @dataclass
@@ -360,32 +363,79 @@ def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: 
     live = previous if previous is not None and previous.is_dir() else None
     old = _read_manifest(live) if live is not None else {}
     old_pages = old.get("pages", {}) if old.get("theme") == theme else {}
+    keys = asset_digests(ctx, sh, theme)
+    kept = _kept_assets(sh, keys, old, old_pages, live)
     b = _Build(ctx, sh, folder, live, old_pages, theme)
     workers = workers if workers is not None else (os.cpu_count() or 1)
-    pages = 4 + 2 * len(sh.assets) + len(sh.tests)
+    made = set(sh.assets.index) - set(kept)
+    todo = batches(sh, 1, only=made)
+    pages = 4 + sum(2 * len(a) + len(t) for a, t in todo)
     _CURRENT = b
     try:
         if workers < 2 or pages < PARALLEL_MIN or not can_fork():  # in this process
-            done = [*(_run_batch(batch) for batch in batches(sh, 1)), _run_fleet(b)]
+            done = [*(_run_batch(batch) for batch in todo), _run_fleet(b)]
         else:  # forked workers share the run's tables without copying them
             with fork_pool(workers) as pool:
-                futures = [pool.submit(_run_batch, batch) for batch in batches(sh, workers * 4)]
+                futures = [pool.submit(_run_batch, batch) for batch in batches(sh, workers * 4, only=made)]
                 fleet = _run_fleet(b)
                 done = [*(f.result() for f in futures), fleet]
     finally:
         _CURRENT = None
-    manifest: dict[str, Any] = {"theme": theme, "pages": {}}
+    done.append(_keep(b, kept))
+    manifest: dict[str, Any] = {"theme": theme, "assets": keys, "pages": {}}
     stats = BuildStats()
     for entries, rendered in done:
         manifest["pages"].update(entries)
         stats.pages += len(entries)
         stats.rendered += rendered
     stats.reused = stats.pages - stats.rendered
+    stats.kept = len(kept)
     static = importlib.resources.files("loopledger.site").joinpath("static")
     for name in STATIC:
         _write(folder / name, static.joinpath(name).read_bytes())
     _write(folder / MANIFEST, json.dumps(manifest, sort_keys=True, indent=1).encode("utf-8") + b"\n")
     return stats
+
+
+def asset_digests(ctx: RunContext, sh: Shared, theme: str) -> dict[str, str]:
+    """A digest per asset of everything its pages are made from (:mod:`page_inputs`)."""
+    from loopledger.incremental import engine_fingerprint
+
+    return page_inputs.digests(ctx, {"tests": sh.tests, "assets": sh.assets},
+                               [FORMAT, theme, engine_fingerprint(), sh.common])
+
+
+def asset_pages(sh: Shared) -> dict[Any, list[str]]:
+    """The pages of each registered asset: its page, its test sheet and its tests' pages."""
+    tests = sh.tests.groupby("asset", sort=False)["page"].agg(list).to_dict() if len(sh.tests) else {}
+    return {asset: [f"assets/{name}.html", f"sheets/{name}.html", *(f"tests/{t}.html" for t in tests.get(asset, ()))]
+            for asset, name in zip(sh.assets.index, sh.assets["page"], strict=True)}
+
+
+def _kept_assets(sh: Shared, keys: dict[str, str], old: dict[str, Any], old_pages: dict[str, Any],
+                 live: Path | None) -> dict[Any, list[str]]:
+    """The registered assets whose pages the live site already holds as this build would make them
+    (same digest, every page listed and on disk), with those pages."""
+    old_keys = old.get("assets") if isinstance(old.get("assets"), dict) else {}
+    if live is None or not old_pages or not old_keys:
+        return {}
+    kept: dict[Any, list[str]] = {}
+    for asset, rels in asset_pages(sh).items():
+        if isinstance(asset, str) and old_keys.get(asset) == keys.get(asset) and \
+                all(rel in old_pages and (live / rel).is_file() for rel in rels):
+            kept[asset] = rels
+    return kept
+
+
+def _keep(b: _Build, kept: dict[Any, list[str]]) -> tuple[dict[str, Any], int]:
+    """The kept assets' pages linked from the live site, with their manifest entries (none rendered)."""
+    entries: dict[str, Any] = {}
+    assert b.previous is not None or not kept
+    for rels in kept.values():
+        for rel in rels:
+            _reuse(b.previous / rel, b.folder / rel)  # type: ignore[operator]
+            entries[rel] = b.old_pages[rel]
+    return entries, 0
 
 
 def _reuse(source: Path, target: Path) -> None:

@@ -1,0 +1,104 @@
+"""The handbook keeps an asset's pages (no page data made) only when nothing they are made from changed.
+
+The reference here is the project's own cold build: a site built over the previous one must be byte
+for byte the site built from nothing, whatever changed in between (a file's comment, a result that
+moves the fleet's reliability figures, the registry, the configuration, files added or removed). The
+counts of kept assets show the work saved is real.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from pathlib import Path
+
+import pytest
+from loopledger import runner
+from loopledger.plugins import handbook
+
+from tests.evidence import CT_ASSET, good_points, result_yaml, write_evidence
+
+ASSETS = [f"T-CT{i}" for i in range(1, 6)]  # T-CT5 is never tested
+
+
+def _fleet(root: Path) -> Path:
+    files = {}
+    for asset in ASSETS[:4]:
+        for year, offset in (("2024", 0.01), ("2025", 0.02)):
+            files[f"{asset}/{year}.yaml"] = result_yaml(asset=asset, date=f"{year}-03-0{ASSETS.index(asset) + 1}",
+                                                        as_found=good_points(offset))
+    return write_evidence(root, files, assets=[{**CT_ASSET, "asset": a} for a in ASSETS])
+
+
+def _tree(folder: Path) -> dict[str, bytes]:
+    return {p.relative_to(folder).as_posix(): p.read_bytes() for p in sorted(folder.rglob("*")) if p.is_file()}
+
+
+def _append(path: Path, text: str) -> None:
+    path.write_text(path.read_text(encoding="utf-8") + text, encoding="utf-8")
+
+
+def _assets_csv(ev: Path, old: str, new: str) -> None:
+    text = (ev / "assets.csv").read_text(encoding="utf-8")
+    assert old in text
+    (ev / "assets.csv").write_text(text.replace(old, new, 1), encoding="utf-8")
+
+
+CHANGES: dict[str, tuple[Callable[[Path], None], int | None]] = {
+    # a comment only: the file's own page shows its bytes, so that one asset is made again
+    "comment": (lambda ev: _append(ev / "results" / "T-CT1" / "2025.yaml", "# checked twice\n"), 4),
+    # a failed as-found result moves the fleet's in-tolerance figures that every asset page shows
+    "fleet figures": (lambda ev: (ev / "results" / "T-CT2" / "2025.yaml").write_text(
+        result_yaml(asset="T-CT2", date="2025-03-02", as_found=good_points(0.3)), encoding="utf-8"), None),
+    # another panel for one asset: its own pages and the fleet's (the index groups by panel)
+    "registry row": (lambda ev: _assets_csv(ev, "T-CT3,Test current transducer,Test site,Panel 1",
+                                            "T-CT3,Test current transducer,Test site,Panel 9"), 4),
+    "configuration": (lambda ev: (ev / "loopledger.toml").write_text("as_of = 2026-12-01\n", encoding="utf-8"), 0),
+    "file removed": (lambda ev: (ev / "results" / "T-CT4" / "2024.yaml").unlink(), None),
+    "first test": (lambda ev: (ev / "results" / "T-CT5.yaml").write_text(
+        result_yaml(asset="T-CT5", date="2026-01-05", as_found=good_points(0.01)), encoding="utf-8"), None),
+    "unregistered asset": (lambda ev: (ev / "results" / "stray.yaml").write_text(
+        result_yaml(asset="T-NOT-LISTED", date="2026-01-05", as_found=good_points()), encoding="utf-8"), None),
+}
+
+
+@pytest.mark.parametrize("change", list(CHANGES))
+def test_a_site_built_over_the_last_one_equals_a_cold_build(tmp_path, pm, change):
+    ev = _fleet(tmp_path / "ev")
+
+    def build(out: Path) -> handbook.BuildStats:
+        ctx = runner.run(runner.RunOptions(ev), pm)
+        runner.publish(ctx, out)
+        return ctx.extras["handbook_build"]
+
+    live = tmp_path / "live"
+    first = build(live)
+    assert first.kept == 0 and first.rendered == first.pages
+    again = build(live)  # nothing changed: every asset kept, no page made
+    assert again.kept == len(ASSETS) and again.rendered == 0
+    before = _tree(live / "handbook")
+
+    edit, kept = CHANGES[change]
+    edit(ev)
+    warm = build(live)
+    cold = build(tmp_path / "cold")
+    assert cold.kept == 0
+    assert _tree(live / "handbook") == _tree(tmp_path / "cold" / "handbook")
+    assert _tree(live / "handbook") != before
+    if kept is not None:
+        assert warm.kept == kept
+    assert warm.kept < len(ASSETS)
+
+
+def test_fleet_figures_reach_every_asset_page(tmp_path, pm):
+    """The ripple the "fleet figures" case guards against is real: another asset's page changes."""
+    ev = _fleet(tmp_path / "ev")
+    live = tmp_path / "live"
+    runner.publish(runner.run(runner.RunOptions(ev), pm), live)
+    page = next((live / "handbook" / "assets").glob("T-CT3*.html"))
+    before = page.read_text(encoding="utf-8")
+    CHANGES["fleet figures"][0](ev)
+    ctx = runner.run(runner.RunOptions(ev), pm)
+    runner.publish(ctx, live)
+    after = page.read_text(encoding="utf-8")
+    assert "in tolerance as found" in before and before != after
+    assert ctx.extras["handbook_build"].kept == 0
