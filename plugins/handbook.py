@@ -363,8 +363,9 @@ def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: 
     live = previous if previous is not None and previous.is_dir() else None
     old = _read_manifest(live) if live is not None else {}
     old_pages = old.get("pages", {}) if old.get("theme") == theme else {}
-    keys = asset_digests(ctx, sh, theme)
-    kept = _kept_assets(sh, keys, old, old_pages, live)
+    # with nothing to keep, the digests (for the next build) are worked out while the workers make pages
+    keys = asset_digests(ctx, sh, theme) if live is not None and old_pages and old.get("assets") else None
+    kept = _kept_assets(sh, keys, old, old_pages, live) if keys is not None else {}
     b = _Build(ctx, sh, folder, live, old_pages, theme)
     workers = workers if workers is not None else (os.cpu_count() or 1)
     made = set(sh.assets.index) - set(kept)
@@ -374,10 +375,12 @@ def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: 
     try:
         if workers < 2 or pages < PARALLEL_MIN or not can_fork():  # in this process
             done = [*(_run_batch(batch) for batch in todo), _run_fleet(b)]
+            keys = keys if keys is not None else asset_digests(ctx, sh, theme)
         else:  # forked workers share the run's tables without copying them
             with fork_pool(workers) as pool:
                 futures = [pool.submit(_run_batch, batch) for batch in batches(sh, workers * 4, only=made)]
                 fleet = _run_fleet(b)
+                keys = keys if keys is not None else asset_digests(ctx, sh, theme)
                 done = [*(f.result() for f in futures), fleet]
     finally:
         _CURRENT = None
@@ -416,8 +419,8 @@ def _kept_assets(sh: Shared, keys: dict[str, str], old: dict[str, Any], old_page
                  live: Path | None) -> dict[Any, list[str]]:
     """The registered assets whose pages the live site already holds as this build would make them
     (same digest, every page listed and on disk), with those pages."""
-    old_keys = old.get("assets") if isinstance(old.get("assets"), dict) else {}
-    if live is None or not old_pages or not old_keys:
+    old_keys = old.get("assets")
+    if live is None or not old_pages or not isinstance(old_keys, dict):
         return {}
     kept: dict[Any, list[str]] = {}
     for asset, rels in asset_pages(sh).items():
