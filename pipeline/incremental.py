@@ -92,30 +92,46 @@ def scan_inputs(evidence: Path) -> dict[str, Stat]:
 
 
 def engine_fingerprint() -> str:
-    """loopledger's version, its installed source files' stats and the installed plugins."""
+    """loopledger's version, its installed source files' stats, and the installed plugins with the stats of
+    their source files (a plugin edited in place, without a new version, still counts as changed)."""
     import importlib.metadata
+    import importlib.util
 
     import loopledger
 
     h = hashlib.sha256(f"{loopledger.__version__}|{sys.version}".encode())
-    import importlib.util
-
     roots = [Path(loopledger.__file__).parent]
     for name in ("plugins", "schemas", "site"):
         spec = importlib.util.find_spec(f"loopledger.{name}")
         if spec is not None and spec.submodule_search_locations:
             roots += [Path(p) for p in spec.submodule_search_locations]
-    for root in roots:
-        for dirpath, dirnames, files in os.walk(root):
-            dirnames[:] = sorted(d for d in dirnames if d != "__pycache__")
-            for name in sorted(files):
-                if name.endswith((".py", ".html", ".css", ".js")):
-                    st = os.stat(os.path.join(dirpath, name))
-                    h.update(f"{dirpath}/{name}|{st.st_size}|{st.st_mtime_ns}\n".encode())
+    _source_stats(h, roots)
     for ep in sorted(importlib.metadata.entry_points(group="loopledger"), key=lambda e: e.name):
         dist = getattr(ep, "dist", None)
         h.update(f"{ep.name}={ep.value}@{getattr(dist, 'version', '')}\n".encode())
+        top = ep.value.split(":")[0].split(".")[0]
+        try:
+            spec = importlib.util.find_spec(top)  # a top-level name: found, not imported
+        except (ImportError, ValueError):
+            spec = None
+        if spec is not None and spec.submodule_search_locations:
+            _source_stats(h, [Path(p) for p in spec.submodule_search_locations])
+        elif spec is not None and spec.origin and os.path.isfile(spec.origin):
+            _source_stats(h, [], (spec.origin,))
     return h.hexdigest()
+
+
+def _source_stats(h: Any, roots: list[Path], files: tuple[str, ...] = ()) -> None:
+    """Feed ``h`` the path, size and modification time of every source, template or style file under
+    ``roots`` and of ``files``."""
+    found = list(files)
+    for root in roots:
+        for dirpath, dirnames, names in os.walk(root):
+            dirnames[:] = sorted(d for d in dirnames if d != "__pycache__")
+            found += [os.path.join(dirpath, n) for n in sorted(names) if n.endswith((".py", ".html", ".css", ".js"))]
+    for path in found:
+        st = os.stat(path)
+        h.update(f"{path}|{st.st_size}|{st.st_mtime_ns}\n".encode())
 
 
 def effective_as_of(evidence: Path, given: str | None) -> str:

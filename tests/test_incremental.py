@@ -134,6 +134,22 @@ def test_options_and_registry_changes_rerun(tmp_path, capsys, parse_calls):
     assert len(parse_calls) == 4, "a registry change should not re-parse unchanged result files"
 
 
+def test_a_plugin_edited_in_place_changes_the_engine_fingerprint(tmp_path, monkeypatch):
+    """A site plugin being developed (installed editable, same version) must not be answered from the cache
+    nor keep handbook pages its page hooks would now make differently."""
+    import importlib.metadata
+
+    (tmp_path / "ll_fake_site.py").write_text("NOTE = 'first'\n", encoding="utf-8")
+    monkeypatch.syspath_prepend(str(tmp_path))
+    fake = importlib.metadata.EntryPoint(name="fake_site", value="ll_fake_site", group="loopledger")
+    monkeypatch.setattr(importlib.metadata, "entry_points", lambda **kw: [fake] if kw.get("group") == "loopledger"
+                        else [])
+    before = incremental.engine_fingerprint()
+    assert incremental.engine_fingerprint() == before  # stable while nothing changes
+    (tmp_path / "ll_fake_site.py").write_text("NOTE = 'second, longer'\n", encoding="utf-8")
+    assert incremental.engine_fingerprint() != before
+
+
 def test_deleted_output_is_rebuilt(tmp_path, capsys):
     ev = _fleet(tmp_path)
     out = tmp_path / "out"
