@@ -13,8 +13,10 @@ live in the site/ theme.
 The site is built in a staging folder and swapped into place whole. The fleet is
 split into batches (each asset with its tests), made in forked worker processes
 when there are many pages. A manifest (``.manifest.json`` in the site) keeps a hash
-of each page's inputs; an unchanged page is hard-linked from the previous site
-instead of being rendered or written again.
+of each page's inputs and a digest per asset of everything its pages are made from
+(:mod:`page_inputs`). An asset whose digest is unchanged has its pages hard-linked
+from the previous site without their data being made; for the other assets each
+page whose hash is unchanged is linked rather than rendered and written again.
 """
 
 from __future__ import annotations
