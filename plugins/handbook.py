@@ -406,7 +406,7 @@ def asset_digests(ctx: RunContext, sh: Shared, theme: str) -> dict[str, str]:
     """A digest per asset of everything its pages are made from (:mod:`page_inputs`)."""
     from loopledger.incremental import engine_fingerprint
 
-    return page_inputs.digests(ctx, {"tests": sh.tests, "assets": sh.assets},
+    return page_inputs.digests(ctx, {"tests": sh.tests, "assets": sh.assets, "used": sh.used},
                                [FORMAT, theme, engine_fingerprint(), sh.common])
 
 
