@@ -426,7 +426,7 @@ def _kept_assets(sh: Shared, keys: dict[str, str], old: dict[str, Any], old_page
         return {}
     kept: dict[Any, list[str]] = {}
     for asset, rels in asset_pages(sh).items():
-        if isinstance(asset, str) and old_keys.get(asset) == keys.get(asset) and \
+        if isinstance(asset, str) and keys.get(asset) is not None and old_keys.get(asset) == keys[asset] and \
                 all(rel in old_pages and (live / rel).is_file() for rel in rels):
             kept[asset] = rels
     return kept
@@ -435,10 +435,11 @@ def _kept_assets(sh: Shared, keys: dict[str, str], old: dict[str, Any], old_page
 def _keep(b: _Build, kept: dict[Any, list[str]]) -> tuple[dict[str, Any], int]:
     """The kept assets' pages linked from the live site, with their manifest entries (none rendered)."""
     entries: dict[str, Any] = {}
-    assert b.previous is not None or not kept
+    if b.previous is None:
+        return entries, 0
     for rels in kept.values():
         for rel in rels:
-            _reuse(b.previous / rel, b.folder / rel)  # type: ignore[operator]
+            _reuse(b.previous / rel, b.folder / rel)
             entries[rel] = b.old_pages[rel]
     return entries, 0
 

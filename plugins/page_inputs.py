@@ -75,7 +75,7 @@ class _Digests:
             return
         try:
             rows = pd.util.hash_pandas_object(frame, index=not _positional(frame.index)).to_numpy()
-        except TypeError:  # a cell pandas cannot hash: the table's text, all of it to the fleet part
+        except (TypeError, ValueError):  # a cell pandas cannot hash: the table's text, all to the fleet part
             self.fleet.update(frame.to_csv().encode("utf-8"))
             return
         owner = self._owner_column(frame)
@@ -88,13 +88,15 @@ class _Digests:
         order = np.argsort(codes, kind="stable")
         bounds = np.searchsorted(codes[order], np.arange(len(uniques) + 1))
         for k, asset in enumerate(uniques):
-            self.add(asset, name.encode() + rows[order[bounds[k]:bounds[k + 1]]].tobytes())
+            mine = rows[order[bounds[k]:bounds[k + 1]]]
+            self.add(asset, name.encode() + b"\0" + len(mine).to_bytes(8, "little") + mine.tobytes())
 
     def _owner_column(self, frame: pd.DataFrame) -> pd.Series | None:
         """The asset of each row (NaN where none is known), or None when the table names no owner."""
         def named(key: str) -> Any:
             if key in frame.columns:
-                return frame[key]
+                column = frame[key]
+                return column if isinstance(column, pd.Series) else None  # a name used twice: no owner
             if key in frame.index.names:
                 return frame.index.get_level_values(key)
             return None

@@ -3,7 +3,8 @@
 The reference here is the project's own cold build: a site built over the previous one must be byte
 for byte the site built from nothing, whatever changed in between (a file's comment, a result that
 moves the fleet's reliability figures, the registry, the configuration, files added or removed). The
-counts of kept assets show the work saved is real.
+counts of kept assets show the work saved is real. The last tests check how the digests attribute the
+run's parts to assets (rules of our own, stated in ``plugins/page_inputs.py``; no outside source).
 """
 
 from __future__ import annotations
@@ -11,9 +12,12 @@ from __future__ import annotations
 from collections.abc import Callable
 from pathlib import Path
 
+import pandas as pd
 import pytest
 from loopledger import runner
-from loopledger.plugins import handbook
+from loopledger.context import RunContext
+from loopledger.findings import warning
+from loopledger.plugins import handbook, page_inputs
 
 from tests.evidence import CT_ASSET, good_points, result_yaml, write_evidence
 
@@ -102,3 +106,59 @@ def test_fleet_figures_reach_every_asset_page(tmp_path, pm):
     after = page.read_text(encoding="utf-8")
     assert "in tolerance as found" in before and before != after
     assert ctx.extras["handbook_build"].kept == 0
+
+
+# --- the digests themselves -----------------------------------------------------------------------
+
+def _ctx(**extras: object):
+    ctx = RunContext(evidence=Path("."), config={"as_of": "2026-11-30"}, pm=None)  # type: ignore[arg-type]
+    ctx.assets = pd.DataFrame({"asset": ["A", "B"], "accuracy": ["0.5", "0.5"]}).set_index("asset", drop=False)
+    ctx.tests = pd.DataFrame({"test": ["a1", "b1"], "asset": ["A", "B"], "source_file": ["a1.yaml", "b1.yaml"]})
+    ctx.points = pd.DataFrame({"test": ["a1", "a1", "b1"], "reading": [4.01, 12.0, 20.0]})
+    ctx.extras.update(extras)
+    return ctx
+
+
+def _digests(ctx):
+    return page_inputs.digests(ctx, {}, ["code"])
+
+
+def test_a_row_counts_for_its_own_asset_only():
+    base = _digests(_ctx())
+    ctx = _ctx()
+    ctx.points.loc[2, "reading"] = 20.001  # a point of B's test
+    moved = _digests(ctx)
+    assert moved["A"] == base["A"] and moved["B"] != base["B"]
+
+
+def test_row_positions_do_not_count_but_order_within_an_asset_does():
+    base = _digests(_ctx())
+    ctx = _ctx()  # a new point of A's first: every later row's position shifts
+    ctx.points = pd.concat([pd.DataFrame({"test": ["a1"], "reading": [8.0]}), ctx.points], ignore_index=True)
+    shifted = _digests(ctx)
+    assert shifted["B"] == base["B"] and shifted["A"] != base["A"]
+    ctx = _ctx()
+    ctx.points = ctx.points.iloc[[1, 0, 2]].reset_index(drop=True)  # A's two points swapped
+    assert _digests(ctx)["A"] != base["A"]
+
+
+def test_what_names_no_asset_counts_for_every_asset():
+    base = _digests(_ctx(rates=pd.DataFrame({"group": ["current"], "in_tolerance": [0.9]})))
+    fleet = _digests(_ctx(rates=pd.DataFrame({"group": ["current"], "in_tolerance": [0.8]})))
+    assert fleet["A"] != base["A"] and fleet["B"] != base["B"]
+    ctx = _ctx(rates=pd.DataFrame({"group": ["current"], "in_tolerance": [0.9]}))
+    ctx.findings.append(warning("a registry remark", file="assets.csv"))
+    assert all(_digests(ctx)[a] != base[a] for a in "AB")
+    ctx = _ctx(rates=pd.DataFrame({"group": ["current"], "in_tolerance": [0.9]}))
+    ctx.findings.append(warning("a remark about A's file", file="a1.yaml"))
+    mine = _digests(ctx)
+    assert mine["A"] != base["A"] and mine["B"] == base["B"]
+
+
+def test_dicts_by_file_and_cells_pandas_cannot_hash():
+    base = _digests(_ctx(lines={"a1.yaml": {"date": 2}, "b1.yaml": {"date": 2}}))
+    moved = _digests(_ctx(lines={"a1.yaml": {"date": 3}, "b1.yaml": {"date": 2}}))
+    assert moved["A"] != base["A"] and moved["B"] == base["B"]
+    odd = pd.DataFrame({"test": ["a1", "b1"], "cell": [{"x": [1]}, {"x": [2]}]})  # dicts: not hashable
+    one, two = _digests(_ctx(odd=odd)), _digests(_ctx(odd=odd.assign(cell=[{"x": [1]}, {"x": [3]}])))
+    assert one == _digests(_ctx(odd=odd)) and one["A"] != two["A"]  # stable, and to the fleet part
