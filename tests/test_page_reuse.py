@@ -162,3 +162,24 @@ def test_dicts_by_file_and_cells_pandas_cannot_hash():
     odd = pd.DataFrame({"test": ["a1", "b1"], "cell": [{"x": [1]}, {"x": [2]}]})  # dicts: not hashable
     one, two = _digests(_ctx(odd=odd)), _digests(_ctx(odd=odd.assign(cell=[{"x": [1]}, {"x": [3]}])))
     assert one == _digests(_ctx(odd=odd)) and one["A"] != two["A"]  # stable, and to the fleet part
+
+
+@pytest.mark.parametrize("damage", ["page deleted", "manifest cut short", "asset digests not a table"])
+def test_a_damaged_live_site_is_made_whole_again(tmp_path, pm, damage):
+    ev = _fleet(tmp_path / "ev")
+    live, cold = tmp_path / "live", tmp_path / "cold"
+    runner.publish(runner.run(runner.RunOptions(ev), pm), live)
+    runner.publish(runner.run(runner.RunOptions(ev), pm), cold)
+    site = live / "handbook"
+    manifest = site / handbook.MANIFEST
+    if damage == "page deleted":
+        next((site / "tests").glob("T-CT2*.html")).unlink()
+    elif damage == "manifest cut short":
+        manifest.write_bytes(manifest.read_bytes()[:100])
+    else:
+        manifest.write_text(manifest.read_text(encoding="utf-8").replace('"assets": {', '"assets": [], "x": {', 1),
+                            encoding="utf-8")
+    ctx = runner.run(runner.RunOptions(ev), pm)
+    runner.publish(ctx, live)
+    assert _tree(site) == _tree(cold / "handbook")
+    assert ctx.extras["handbook_build"].kept == (len(ASSETS) - 1 if damage == "page deleted" else 0)
