@@ -92,8 +92,9 @@ def scan_inputs(evidence: Path) -> dict[str, Stat]:
 
 
 def engine_fingerprint() -> str:
-    """loopledger's version, its installed source files' stats, and the installed plugins with the stats of
-    their source files (a plugin edited in place, without a new version, still counts as changed)."""
+    """loopledger's version, its installed source files' stats, the installed plugins with the stats of
+    their source files (a plugin edited in place, without a new version, still counts as changed), and the
+    name and version of every installed distribution (pandas, numpy, jinja2 ... upgraded count too)."""
     import importlib.metadata
     import importlib.util
 
@@ -118,7 +119,21 @@ def engine_fingerprint() -> str:
             _source_stats(h, [Path(p) for p in spec.submodule_search_locations])
         elif spec is not None and spec.origin and os.path.isfile(spec.origin):
             _source_stats(h, [], (spec.origin,))
+    h.update("\n".join(_installed()).encode())
     return h.hexdigest()
+
+
+def _installed() -> list[str]:
+    """The metadata folders on the import path (``pandas-2.2.3.dist-info`` ...): each distribution's name and
+    version, from one directory listing per path entry rather than by reading every metadata file."""
+    found: list[str] = []
+    for entry in sys.path:
+        try:
+            names = os.listdir(entry or ".")
+        except OSError:
+            continue
+        found += sorted(n for n in names if n.endswith((".dist-info", ".egg-info")))
+    return found
 
 
 def _source_stats(h: Any, roots: list[Path], files: tuple[str, ...] = ()) -> None:

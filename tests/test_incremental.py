@@ -150,6 +150,15 @@ def test_a_plugin_edited_in_place_changes_the_engine_fingerprint(tmp_path, monke
     assert incremental.engine_fingerprint() != before
 
 
+def test_an_upgraded_library_changes_the_engine_fingerprint(tmp_path, monkeypatch):
+    """pandas, numpy or jinja2 upgraded under unchanged inputs may format a page or a table differently."""
+    (tmp_path / "somelib-1.0.dist-info").mkdir()
+    monkeypatch.syspath_prepend(str(tmp_path))
+    before = incremental.engine_fingerprint()
+    (tmp_path / "somelib-1.0.dist-info").rename(tmp_path / "somelib-1.1.dist-info")
+    assert incremental.engine_fingerprint() != before
+
+
 def test_deleted_output_is_rebuilt(tmp_path, capsys):
     ev = _fleet(tmp_path)
     out = tmp_path / "out"
