@@ -365,9 +365,11 @@ def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: 
     live = previous if previous is not None and previous.is_dir() else None
     old = _read_manifest(live) if live is not None else {}
     old_pages = old.get("pages", {}) if old.get("theme") == theme else {}
+    found = old.get("assets") if old_pages else None
+    old_keys: dict[str, Any] = found if isinstance(found, dict) else {}
     # with nothing to keep, the digests (for the next build) are worked out while the workers make pages
-    keys = asset_digests(ctx, sh, theme) if live is not None and old_pages and old.get("assets") else None
-    kept = _kept_assets(sh, keys, old, old_pages, live) if keys is not None else {}
+    keys = asset_digests(ctx, sh, theme) if live is not None and old_keys else None
+    kept = _kept_assets(sh, keys, old_keys, old_pages, live) if keys is not None and live is not None else {}
     b = _Build(ctx, sh, folder, live, old_pages, theme)
     workers = workers if workers is not None else (os.cpu_count() or 1)
     made = set(sh.assets.index) - set(kept)
@@ -417,13 +419,10 @@ def asset_pages(sh: Shared) -> dict[Any, list[str]]:
             for asset, name in zip(sh.assets.index, sh.assets["page"], strict=True)}
 
 
-def _kept_assets(sh: Shared, keys: dict[str, str], old: dict[str, Any], old_pages: dict[str, Any],
-                 live: Path | None) -> dict[Any, list[str]]:
+def _kept_assets(sh: Shared, keys: dict[str, str], old_keys: dict[str, Any], old_pages: dict[str, Any],
+                 live: Path) -> dict[Any, list[str]]:
     """The registered assets whose pages the live site already holds as this build would make them
-    (same digest, every page listed and on disk), with those pages."""
-    old_keys = old.get("assets")
-    if live is None or not old_pages or not isinstance(old_keys, dict):
-        return {}
+    (same digest as in the live site's manifest, every page listed there and on disk), with those pages."""
     kept: dict[Any, list[str]] = {}
     for asset, rels in asset_pages(sh).items():
         if isinstance(asset, str) and keys.get(asset) is not None and old_keys.get(asset) == keys[asset] and \

@@ -35,12 +35,8 @@ DERIVED_EXTRAS = {"_findings_by_file"}
 OWNER_KEYS = ("test", "source_file")
 
 
-def _default(value: Any) -> str:
-    return repr(value)
-
-
 def _dumps(value: Any) -> bytes:
-    return json.dumps(value, sort_keys=True, default=_default, ensure_ascii=False).encode("utf-8")
+    return json.dumps(value, sort_keys=True, default=repr, ensure_ascii=False).encode("utf-8")
 
 
 def _is_text(value: Any) -> bool:
