@@ -19,6 +19,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 if TYPE_CHECKING:
+    import numpy as np
     import pandas as pd
 
 _UMASK: int | None = None
@@ -140,12 +141,25 @@ def _kind(series: pd.Series) -> str:
 def _csv_column(series: pd.Series, kind: str) -> list[str]:
     """A plain column's cells as text; ``kind`` is its :func:`_kind`."""
     if kind == "f":
-        return ["" if v != v else FLOAT_FORMAT % v for v in series.to_numpy().tolist()]
+        import numpy as np
+
+        return _floats_text(np.ascontiguousarray(series.to_numpy(dtype=np.float64)))
     if kind in ("i", "u"):
         return [str(v) for v in series.to_numpy().tolist()]
     if kind == "b":
         return ["True" if v else "False" for v in series.to_numpy().tolist()]
-    return [_csv_cell(v) for v in series.to_numpy(dtype=object)]
+    return [v if type(v) is str else _csv_cell(v) for v in series.to_numpy(dtype=object).tolist()]
+
+
+def _floats_text(values: np.ndarray) -> list[str]:
+    """Each float as ``FLOAT_FORMAT`` writes it ("" for NaN), formatted once per distinct bit pattern (a
+    column repeats its limits, spans and inputs many times); -0.0 and 0.0, equal as numbers, stay apart."""
+    import numpy as np
+    import pandas as pd
+
+    codes, bits = pd.factorize(values.view(np.int64), sort=False)
+    made = np.array(["" if v != v else FLOAT_FORMAT % v for v in bits.view(np.float64).tolist()], dtype=object)
+    return made[codes].tolist()
 
 
 def _pandas_column(series: pd.Series) -> list[str]:

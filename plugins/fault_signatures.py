@@ -192,11 +192,12 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
     files = pts.groupby("test")["source_file"].first()
     said_elsewhere = {"broken loop", "failure signal", "clipping"}  # signal integrity warns per point/phase
     findings = []
-    for (test, phase), row in sig[sig["signature"] != ""].iterrows():
-        if row["signature"] in said_elsewhere:
-            continue
-        findings.append(warning(f"{str(phase).replace('_', '-')} fault signature — {row['signature']}: {row['detail']}",
-                                file=files[test], field="readings", code="fault-signature"))
+    shown = sig[(sig["signature"] != "") & ~sig["signature"].isin(said_elsewhere)]
+    where = shown.index.get_level_values("test").map(files).tolist()
+    for (_test, phase), label, detail, file in zip(shown.index, shown["signature"].tolist(),
+                                                   shown["detail"].tolist(), where, strict=True):
+        findings.append(warning(f"{str(phase).replace('_', '-')} fault signature — {label}: {detail}",
+                                file=file, field="readings", code="fault-signature"))
     return findings
 
 

@@ -142,12 +142,12 @@ def false_accept(ctx: RunContext, reliability: pd.DataFrame, limit: float) -> tu
                     index=deciding.index)
     per_test = pfa.groupby(deciding["test"]).max()
     out = tests["test"].map(per_test).astype(float)
-    findings = []
-    files = tests.set_index("test")["source_file"]
-    for test, value in per_test[per_test > limit].items():
-        findings.append(warning(f"global false-accept probability {value:.2%} exceeds {limit:.0%} "
-                                "(bivariate normal model with the fleet's as-found reliability as prior)",
-                                file=str(files.get(test, "")), field="U", code="false-accept"))
+    over = per_test[per_test > limit]
+    files = dict(zip(tests["test"].tolist(), tests["source_file"].tolist(), strict=True))
+    findings = [warning(f"global false-accept probability {value:.2%} exceeds {limit:.0%} "
+                        "(bivariate normal model with the fleet's as-found reliability as prior)",
+                        file=str(files.get(test, "")), field="U", code="false-accept")
+                for test, value in zip(over.index.tolist(), over.tolist(), strict=True)]
     return out, findings
 
 

@@ -85,7 +85,8 @@ def check(ctx: RunContext) -> list[Finding]:
     by_test = issues.groupby("test")["text"].agg("; ".join)
     past_due = set(issues.loc[issues["status"] == "past-due", "test"])
     ctx.tests["reference_out_of_cal"] = ctx.tests["test"].isin(past_due).astype(bool)
-    ctx.tests["reference_issues"] = [str(by_test.get(t, "")) for t in ctx.tests["test"]]
+    said = by_test.to_dict()
+    ctx.tests["reference_issues"] = [str(said.get(t, "")) for t in ctx.tests["test"].tolist()]
     exports = ctx.extras.setdefault("test_exports", [])
     exports += [c for c in ("reference_out_of_cal", "reference_issues") if c not in exports]
     # a warning only where the register shows the instrument out of calibration; the other issues are

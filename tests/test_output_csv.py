@@ -34,6 +34,9 @@ def test_every_kind_of_column_matches_pandas(monkeypatch):
                                 "2026-02-02 00:00"]),
         "nullable": pd.array([1, None, 3, None, 5, 6], dtype="Int64"),
         "kind": pd.Categorical(["p", "q", None, "p", "q,r", "\r"]),
+        # repeated values are formatted once per distinct bit pattern: 0.0 and -0.0 must stay apart
+        "repeat": [0.0, -0.0, 0.08, -0.0, np.float64(np.nan), 0.08],
+        "single": np.array([0.1, 0.1, -0.0, 0.0, 3.4e38, np.nan], dtype=np.float32),
     })
     assert csv_text(frame) == _pandas(frame)
     monkeypatch.setattr(output, "CSV_CHUNK", 4)  # a table longer than one chunk of rows
@@ -43,7 +46,9 @@ def test_every_kind_of_column_matches_pandas(monkeypatch):
 
 
 @settings(max_examples=60, deadline=None)
-@given(st.lists(st.tuples(st.floats(allow_nan=True, allow_infinity=True), st.integers(-10**12, 10**12),
+@given(st.lists(st.tuples(st.one_of(st.floats(allow_nan=True, allow_infinity=True),
+                                    st.sampled_from([0.0, -0.0, 0.1, 1e-300, -2.5])),  # repeats, signed zeros
+                          st.integers(-10**12, 10**12),
                           st.one_of(st.none(), st.text(max_size=8))), max_size=20))
 def test_random_rows_match_pandas(rows):
     frame = pd.DataFrame(rows, columns=["value", "count", "note"])
