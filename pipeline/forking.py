@@ -1,5 +1,6 @@
-"""Worker processes made by forking, for the three jobs that use the machine's cores: parsing many new
-result files, writing the exported tables and building the handbook's pages.
+"""Worker processes made by forking, for the jobs that use the machine's cores: parsing many new result
+files, writing the exported tables, building the handbook's pages, and writing the tables while the
+handbook is built.
 
 Forked workers share the parent's tables without copying them or pickling them.
 While the pool runs, everything the parent holds is moved out of the cyclic
@@ -14,7 +15,10 @@ from __future__ import annotations
 import contextlib
 import gc
 import multiprocessing
-from collections.abc import Iterator, Sequence
+import os
+import sys
+import traceback
+from collections.abc import Callable, Iterator, Sequence
 from concurrent.futures import ProcessPoolExecutor
 
 
@@ -43,3 +47,50 @@ def fork_pool(workers: int) -> Iterator[ProcessPoolExecutor]:
             yield pool
     finally:
         gc.unfreeze()
+
+
+class SideJobFailed(RuntimeError):
+    """The job :func:`alongside` ran in a forked process failed (it printed its own error first)."""
+
+
+def alongside(side: Callable[[], None], main: Callable[[], None]) -> None:
+    """Run ``side`` in a forked process while this process runs ``main``; return when both are done.
+
+    The forked process shares this one's tables without copying them (its collector is kept off the
+    inherited heap, as in :func:`fork_pool`). An error in ``side`` is printed there and raised here, as
+    :class:`SideJobFailed`, once ``main`` has finished; an error in ``main`` is raised after ``side`` has
+    finished. Where fork is not offered, ``side`` runs first, then ``main``, in this process.
+    """
+    if not can_fork():
+        side()
+        main()
+        return
+    sys.stdout.flush()
+    sys.stderr.flush()
+    pid = os.fork()
+    if pid == 0:  # pragma: no cover - the forked process; its outcome is its exit status
+        code = 0
+        try:
+            gc.freeze()
+            side()
+        except KeyboardInterrupt:
+            code = 130
+        except BaseException:
+            traceback.print_exc()
+            code = 1
+        finally:
+            sys.stdout.flush()
+            sys.stderr.flush()
+            os._exit(code)
+    try:
+        main()
+    finally:
+        while True:
+            try:
+                _, status = os.waitpid(pid, 0)
+                break
+            except InterruptedError:
+                continue
+    code = os.waitstatus_to_exitcode(status)
+    if code != 0:
+        raise SideJobFailed(f"the side job {getattr(side, '__name__', side)!r} failed (exit status {code})")

@@ -128,7 +128,11 @@ def ll_history(ctx: RunContext) -> list[Finding] | None:
 
 @hookspec
 def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame] | None:
-    """Tables to write under ``OUT/data/`` as CSV, name -> frame (``points`` → points.csv)."""
+    """Tables to write under ``OUT/data/`` as CSV, name -> frame (``points`` → points.csv).
+
+    Only read the run here, never change it: ``loopledger run`` writes the tables in a forked process
+    while the handbook is being built, so a change made here would not reach the handbook.
+    """
 
 
 @hookspec

@@ -126,6 +126,19 @@ def export(ctx: RunContext, out: Path) -> list[Path]:
     return [out / "data" / f"{name}.csv" for name in tables]
 
 
+def export_and_publish(ctx: RunContext, out: Path) -> None:
+    """:func:`export` in a forked process while this one runs :func:`publish` (the tables are written on
+    the core the handbook leaves idle while it works out which pages to keep); the same files as the two
+    run one after the other. ``ll_export_tables`` hooks only read the run, so the handbook sees what it
+    would have seen after them."""
+    from loopledger.forking import alongside
+
+    def tables() -> None:
+        export(ctx, out)
+
+    alongside(tables, lambda: publish(ctx, out))
+
+
 def publish(ctx: RunContext, out: Path) -> None:
     for found in ctx.pm.hook.ll_publish(ctx=ctx, out=out):
         ctx.findings += _stamp(list(found or []), "publish")

@@ -138,9 +138,10 @@ def _full(args: argparse.Namespace, cache: incremental.Cache | None) -> tuple[in
     ctx = runner.run(opts, pm)
     if cache is not None and parsed is not None:
         cache.save_parsed(parsed)
-    runner.export(ctx, out)
-    if not args.no_handbook:
-        runner.publish(ctx, out)
+    if args.no_handbook:
+        runner.export(ctx, out)
+    else:
+        runner.export_and_publish(ctx, out)
     report.summary(ctx, console, verbose=args.verbose)
     errors = [f for f in ctx.findings if f.severity == "error"]
     if errors:
