@@ -27,6 +27,8 @@ class RunOptions:
     progress: Callable[[int, int], Callable[[int], None]] | None = None
     #: parsed result files by (path, sha256), read and refreshed in place (the incremental cache)
     parsed: dict[tuple[str, str], Any] | None = None
+    #: called with ``parsed`` once every file is read, in a forked process while the stages run
+    save_parsed: Callable[[dict[tuple[str, str], Any]], None] | None = None
 
 
 def _stamp(findings: list[Finding], stage: str) -> list[Finding]:
@@ -99,7 +101,13 @@ def run(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
     ctx.findings += _stamp(found, "discover")
     tick = opts.progress(len(files), 0) if opts.progress else None
     ctx.findings += _stamp(read_files(ctx, files, tick, parsed=opts.parsed), "load")
-    run_stages(ctx)
+    parsed, save = opts.parsed, opts.save_parsed
+    if parsed is not None and save is not None:  # the cache is written on the core the stages leave idle
+        from loopledger.forking import alongside
+
+        alongside(lambda: save(parsed), lambda: run_stages(ctx))
+    else:
+        run_stages(ctx)
     return ctx
 
 

@@ -73,9 +73,8 @@ def _full(args: argparse.Namespace, cache: incremental.Cache | None) -> tuple[in
     pm = get_plugin_manager()
     parsed = cache.load_parsed() if cache is not None else None
     ctx = runner.run(runner.RunOptions(args.evidence, files=list(args.paths), overrides=overrides(args),
-                                       parsed=parsed), pm)
-    if cache is not None and parsed is not None:
-        cache.save_parsed(parsed)
+                                       parsed=parsed, save_parsed=cache.save_parsed if cache is not None else None),
+                     pm)
     findings = sort_findings([*ctx.findings, *report.point_findings(ctx)])
     report.print_lines([f for f in findings if f.severity != "note"], sys.stdout)
     code = runner.exit_code(ctx)

@@ -134,10 +134,9 @@ def _full(args: argparse.Namespace, cache: incremental.Cache | None) -> tuple[in
     out = outside_evidence(args.evidence, args.out, "--out")
     parsed = cache.load_parsed() if cache is not None else None
     opts = runner.RunOptions(args.evidence, overrides=overrides(args),
-                             progress=report.progress_factory(Console(stderr=True)), parsed=parsed)
+                             progress=report.progress_factory(Console(stderr=True)), parsed=parsed,
+                             save_parsed=cache.save_parsed if cache is not None else None)
     ctx = runner.run(opts, pm)
-    if cache is not None and parsed is not None:
-        cache.save_parsed(parsed)
     if args.no_handbook:
         runner.export(ctx, out)
     else:
