@@ -11,6 +11,7 @@ import math
 import re
 from dataclasses import dataclass
 from functools import lru_cache
+from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -26,11 +27,45 @@ _ALIASES = {"Ω": "ohm", "ohms": "ohm", "Ohm": "ohm", "°C": "degC", "℃": "deg
 PERCENT = "%"
 
 
+#: the unit names read with the small registry of ``units.txt`` (built in milliseconds); a unit text naming
+#: anything else is read with pint's full default registry (about 0.2 s to build, so built only then).
+#: An explicit list, not everything the small file could read: pint reads some of its own names (``Eh``,
+#: ``hbar``) differently from a prefix and a unit. tests/test_units.py checks each name against pint's.
+EVERYDAY = frozenset({
+    "A", "mA", "uA", "µA", "kA", "ampere", "amp", "V", "mV", "uV", "µV", "kV", "volt",
+    "W", "mW", "kW", "MW", "GW", "watt", "VA", "kVA", "MVA", "volt_ampere", "Hz", "kHz", "hertz",
+    "ohm", "mohm", "kohm", "Mohm", "Ω", "mΩ", "kΩ", "MΩ", "S", "mS", "uS", "µS", "siemens",
+    "degC", "degF", "K", "°C", "°F", "celsius", "fahrenheit", "kelvin", "degree_Celsius", "degree_Fahrenheit",
+    "bar", "mbar", "Pa", "hPa", "kPa", "MPa", "pascal", "percent", "%", "ppm",
+    "s", "ms", "us", "µs", "second", "min", "minute", "h", "hr", "hour",
+    "m", "mm", "cm", "km", "meter", "metre", "l", "L", "ml", "mL", "liter", "litre", "g", "kg", "gram",
+    "N", "kN", "newton", "J", "kJ", "joule", "C", "coulomb", "count", "dimensionless",
+})
+_NAMES = re.compile(r"[^\s\d*/^().+\-]+")  # the names in a unit text, between operators and exponents
+_UNITS_FILE = Path(__file__).with_name("units.txt")
+
+
 @lru_cache(maxsize=1)
 def registry() -> pint.UnitRegistry:
+    """pint's full default registry (built on first use)."""
     import pint
 
     return pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+
+
+@lru_cache(maxsize=1)
+def everyday_registry() -> pint.UnitRegistry:
+    """A registry of ``units.txt`` alone: the same definitions as pint's own for :data:`EVERYDAY`."""
+    import pint
+
+    return pint.UnitRegistry(str(_UNITS_FILE), autoconvert_offset_to_baseunit=True)
+
+
+def registry_for(*units: str) -> pint.UnitRegistry:
+    """The small registry when every name in ``units`` is an everyday one, else pint's full one."""
+    if all(name in EVERYDAY for unit in units for name in _NAMES.findall(unit)):
+        return everyday_registry()
+    return registry()
 
 
 def normalise_unit(text: str) -> str:
@@ -107,7 +142,7 @@ def parse_column(values: pd.Series) -> pd.DataFrame:
 def unit_check(unit: str) -> str:
     """Return the dimensionality of ``unit`` as text, or raise ValueError."""
     try:
-        return str(registry().Unit(unit).dimensionality)
+        return str(registry_for(unit).Unit(unit).dimensionality)
     except Exception as exc:  # pint raises several kinds; all mean "not a unit"
         raise ValueError(f"'{unit}' is not a unit loopledger knows") from exc
 
@@ -115,7 +150,7 @@ def unit_check(unit: str) -> str:
 @lru_cache(maxsize=1024)
 def affine(unit: str, target: str) -> tuple[float, float] | None:
     """(scale, offset) with ``x[target] = scale * x[unit] + offset``; None if the dimensions differ."""
-    ureg = registry()
+    ureg = registry_for(unit, target)
     try:
         q0 = ureg.Quantity(0.0, unit).to(target).magnitude
         q1 = ureg.Quantity(1.0, unit).to(target).magnitude
