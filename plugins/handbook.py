@@ -155,9 +155,10 @@ class Job:
     charts: dict[str, tuple[str, dict[str, Any], str]] = field(default_factory=dict)
 
     def digest(self, theme: str) -> str:
-        blob = json.dumps([theme, self.rel, self.template, self.data, self.charts], sort_keys=True,
-                          ensure_ascii=False, default=str, allow_nan=False)
-        return hashlib.sha256(blob.encode("utf-8")).hexdigest()
+        # keys in the order the page data was made (that order is part of what the page shows), text as
+        # ASCII escapes: about half the time of sorted keys and UTF-8 text, over tens of thousands of pages
+        blob = json.dumps([theme, self.rel, self.template, self.data, self.charts], default=str, allow_nan=False)
+        return hashlib.sha256(blob.encode("ascii")).hexdigest()
 
 
 def render_job(job: Job) -> bytes:
