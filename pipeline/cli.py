@@ -107,10 +107,11 @@ def main(argv: Sequence[str] | None = None) -> int:
 
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return 0
-    except Exception:
+    except Exception as exc:
         import traceback
 
-        traceback.print_exc()
+        if not getattr(exc, "reported", False):  # a forked job's error was printed where it happened
+            traceback.print_exc()
         sys.stderr.write("loopledger: internal error (a bug, not a problem with your evidence); "
                          "outputs already in place were not replaced\n")
         return EXIT_INTERNAL

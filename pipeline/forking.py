@@ -52,18 +52,23 @@ def fork_pool(workers: int) -> Iterator[ProcessPoolExecutor]:
 class SideJobFailed(RuntimeError):
     """The job :func:`alongside` ran in a forked process failed (it printed its own error first)."""
 
+    reported = True  #: the error itself was printed by the forked process
 
-def alongside(side: Callable[[], None], main: Callable[[], None]) -> None:
-    """Run ``side`` in a forked process while this process runs ``main``; return when both are done.
 
-    The forked process shares this one's tables without copying them (its collector is kept off the
-    inherited heap, as in :func:`fork_pool`). An error in ``side`` is printed there and raised here, as
-    :class:`SideJobFailed`, once ``main`` has finished; an error in ``main`` is raised after ``side`` has
-    finished. Where fork is not offered, ``side`` runs first, then ``main``, in this process.
+@contextlib.contextmanager
+def side_job(side: Callable[[], None]) -> Iterator[Callable[[], None]]:
+    """Run ``side`` in a forked process while the body of the ``with`` runs here.
+
+    Yields ``finished``: it waits for ``side`` and raises :class:`SideJobFailed` if it failed (call it
+    before doing anything that must not happen unless ``side`` succeeded). Leaving the block calls it
+    too, so both jobs are done when the block is left; an error in the body is raised rather than the
+    side job's. The forked process shares this one's tables without copying them (its collector is kept
+    off the inherited heap, as in :func:`fork_pool`) and prints its own error. Where fork is not offered,
+    ``side`` runs here first.
     """
     if not can_fork():
         side()
-        main()
+        yield lambda: None
         return
     sys.stdout.flush()
     sys.stderr.flush()
@@ -82,15 +87,23 @@ def alongside(side: Callable[[], None], main: Callable[[], None]) -> None:
             sys.stdout.flush()
             sys.stderr.flush()
             os._exit(code)
+    status: list[int] = []
+
+    def finished() -> None:
+        if not status:
+            while True:
+                try:
+                    status.append(os.waitstatus_to_exitcode(os.waitpid(pid, 0)[1]))
+                    break
+                except InterruptedError:
+                    continue
+        if status[0] != 0:
+            raise SideJobFailed(f"the side job {getattr(side, '__name__', side)!r} failed (exit status {status[0]})")
+
     try:
-        main()
-    finally:
-        while True:
-            try:
-                _, status = os.waitpid(pid, 0)
-                break
-            except InterruptedError:
-                continue
-    code = os.waitstatus_to_exitcode(status)
-    if code != 0:
-        raise SideJobFailed(f"the side job {getattr(side, '__name__', side)!r} failed (exit status {code})")
+        yield finished
+    except BaseException:
+        with contextlib.suppress(SideJobFailed):
+            finished()
+        raise
+    finished()

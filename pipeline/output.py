@@ -14,7 +14,7 @@ import os
 import shutil
 import sys
 import tempfile
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -206,17 +206,35 @@ def recover(final: Path) -> None:
         os.replace(old, final)
 
 
+#: checks a staged folder must pass before it replaces the live one (see :func:`before_swap`)
+_BEFORE_SWAP: list[Callable[[], None]] = []
+
+
+@contextlib.contextmanager
+def before_swap(check: Callable[[], None]) -> Iterator[None]:
+    """Within the block, every :func:`staged_dir` calls ``check`` before its swap; if ``check`` raises,
+    the staged folder is dropped and the live one kept (e.g. the handbook waits for the tables)."""
+    _BEFORE_SWAP.append(check)
+    try:
+        yield
+    finally:
+        _BEFORE_SWAP.remove(check)
+
+
 @contextlib.contextmanager
 def staged_dir(final: Path) -> Iterator[Path]:
     """Yield a staging folder beside ``final``; on success swap it into place.
 
-    If the body raises (or the process dies), ``final`` is left as it was.
+    If the body raises (or the process dies), or a :func:`before_swap` check fails, ``final`` is left
+    as it was.
     """
     final.parent.mkdir(parents=True, exist_ok=True)
     recover(final)
     stage = Path(tempfile.mkdtemp(prefix=f".{final.name}.new-", dir=final.parent))
     try:
         yield stage
+        for check in list(_BEFORE_SWAP):
+            check()
         os.chmod(stage, 0o777 & ~(0o666 & ~_public_mode()))  # mkdtemp gives 0o700
     except BaseException:
         shutil.rmtree(stage, ignore_errors=True)

@@ -103,9 +103,10 @@ def run(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
     ctx.findings += _stamp(read_files(ctx, files, tick, parsed=opts.parsed), "load")
     parsed, save = opts.parsed, opts.save_parsed
     if parsed is not None and save is not None:  # the cache is written on the core the stages leave idle
-        from loopledger.forking import alongside
+        from loopledger.forking import side_job
 
-        alongside(lambda: save(parsed), lambda: run_stages(ctx))
+        with side_job(lambda: save(parsed)):
+            run_stages(ctx)
     else:
         run_stages(ctx)
     return ctx
@@ -138,13 +139,16 @@ def export_and_publish(ctx: RunContext, out: Path) -> None:
     """:func:`export` in a forked process while this one runs :func:`publish` (the tables are written on
     the core the handbook leaves idle while it works out which pages to keep); the same files as the two
     run one after the other. ``ll_export_tables`` hooks only read the run, so the handbook sees what it
-    would have seen after them."""
-    from loopledger.forking import alongside
+    would have seen after them. The new handbook replaces the live one only once the tables are written:
+    if they cannot be, both stay as the previous run left them."""
+    from loopledger.forking import side_job
+    from loopledger.output import before_swap
 
     def tables() -> None:
         export(ctx, out)
 
-    alongside(tables, lambda: publish(ctx, out))
+    with side_job(tables) as tables_written, before_swap(tables_written):
+        publish(ctx, out)
 
 
 def publish(ctx: RunContext, out: Path) -> None:

@@ -102,3 +102,31 @@ def test_check_prints_path_line_severity_and_exit_code(tmp_path, capsys):
     out = capsys.readouterr().out
     assert code == 2
     assert "results/bad.yaml:" in out and "telepathy" in out
+
+
+def test_tables_that_cannot_be_written_leave_the_previous_ones_and_say_why_once(tmp_path, capfd, monkeypatch):
+    """``run`` writes data/ in a forked process while the handbook is built: when that fails, the error is
+    shown once (from the process that met it), the exit code is 4, and the previous data/ and handbook
+    both stay as they were (the new handbook waits for the tables before it replaces the old)."""
+    from loopledger import output
+
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(as_found=good_points())})
+    out = tmp_path / "out"
+    assert main(["run", str(ev), "--out", str(out), "--no-cache"]) == 0
+    before = {p.name: p.read_bytes() for p in (out / "data").iterdir()}
+    pages = {p.relative_to(out): p.read_bytes() for p in (out / "handbook").rglob("*") if p.is_file()}
+    capfd.readouterr()
+
+    def full_disk(tables, workers=None):
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(output, "write_csvs", full_disk)
+    (ev / "results" / "a.yaml").write_text(result_yaml(as_found=good_points(), remarks="retested"), encoding="utf-8")
+    assert main(["run", str(ev), "--out", str(out), "--no-cache"]) == 4
+    err = capfd.readouterr().err
+    assert err.count("OSError: [Errno 28] No space left on device") == 1, err
+    assert "internal error" in err
+    assert {p.name: p.read_bytes() for p in (out / "data").iterdir()} == before
+    assert {p.relative_to(out): p.read_bytes() for p in (out / "handbook").rglob("*") if p.is_file()} == pages
+    assert [p.name for p in out.iterdir() if p.name.startswith(".")] in ([], [".loopledger-cache"]), \
+        "a staging folder was left behind"

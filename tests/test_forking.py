@@ -7,7 +7,7 @@ import os
 import time
 
 import pytest
-from loopledger.forking import SideJobFailed, alongside, can_fork, fork_pool, share_out
+from loopledger.forking import SideJobFailed, can_fork, fork_pool, share_out, side_job
 
 
 def _square(x: int) -> int:
@@ -32,10 +32,10 @@ def test_fork_pool_runs_work_and_hands_the_heap_back():
     assert gc.get_freeze_count() == 0
 
 
-@pytest.mark.skipif(not can_fork(), reason="no fork here: alongside runs the two jobs one after the other")
-def test_alongside_runs_the_side_job_in_another_process_and_waits_for_it(tmp_path):
-    """The side job runs in a forked process (another pid) at the same time as the main one; both are
-    finished when ``alongside`` returns."""
+@pytest.mark.skipif(not can_fork(), reason="no fork here: the side job runs first, in this process")
+def test_a_side_job_runs_in_another_process_while_the_block_runs(tmp_path):
+    """The side job runs in a forked process (another pid) at the same time as the block; both are
+    finished when the block is left."""
     side_done, main_done = tmp_path / "side", tmp_path / "main"
 
     def side() -> None:
@@ -44,24 +44,30 @@ def test_alongside_runs_the_side_job_in_another_process_and_waits_for_it(tmp_pat
             time.sleep(0.01)
         side_done.write_text(f"{os.getpid()} {main_done.exists()}", encoding="utf-8")
 
-    alongside(side, lambda: main_done.write_text(str(os.getpid()), encoding="utf-8"))
-    assert side_done.exists(), "returned before the side job finished"
+    with side_job(side):
+        main_done.write_text(str(os.getpid()), encoding="utf-8")
+    assert side_done.exists(), "the block was left before the side job finished"
     pid, saw_main = side_done.read_text(encoding="utf-8").split()
-    assert saw_main == "True", "the side job did not run while the main one did"
+    assert saw_main == "True", "the side job did not run while the block did"
     assert int(pid) != os.getpid() == int(main_done.read_text(encoding="utf-8"))
     assert gc.get_freeze_count() == 0, "this process's heap is left to its collector"
 
 
-@pytest.mark.skipif(not can_fork(), reason="no fork here: alongside runs the two jobs one after the other")
-def test_alongside_raises_either_jobs_error_after_both_are_done(tmp_path, capfd):
+@pytest.mark.skipif(not can_fork(), reason="no fork here: the side job runs first, in this process")
+def test_a_side_jobs_error_is_raised_when_waited_for_and_the_blocks_own_error_wins(tmp_path, capfd):
     def broken() -> None:
         raise OSError("disk full while writing data/")
 
-    main_done = tmp_path / "main"
-    with pytest.raises(SideJobFailed, match="broken"):
-        alongside(broken, lambda: main_done.write_text("done", encoding="utf-8"))
-    assert main_done.exists(), "the main job was cut short by the side job's error"
+    after = tmp_path / "after"
+    with pytest.raises(SideJobFailed, match="broken"), side_job(broken) as finished:
+        finished()  # what must not happen unless the side job succeeded waits here
+        after.write_text("should not be written", encoding="utf-8")
+    assert not after.exists()
     assert "disk full while writing data/" in capfd.readouterr().err, "the side job's own error is shown"
+
+    with pytest.raises(SideJobFailed), side_job(broken):  # left without waiting: raised on the way out
+        after.write_text("done", encoding="utf-8")
+    assert after.exists(), "the block was cut short by the side job's error"
 
     side_done = tmp_path / "side"
 
@@ -69,6 +75,6 @@ def test_alongside_raises_either_jobs_error_after_both_are_done(tmp_path, capfd)
         time.sleep(0.2)
         side_done.write_text("done", encoding="utf-8")
 
-    with pytest.raises(ZeroDivisionError):
-        alongside(slow_side, lambda: 1 / 0)
-    assert side_done.exists(), "the main job's error was raised before the side job finished"
+    with pytest.raises(ZeroDivisionError), side_job(slow_side):
+        raise ZeroDivisionError("the block's own error")
+    assert side_done.exists(), "the block's error was raised before the side job finished"
