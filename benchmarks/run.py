@@ -14,6 +14,9 @@ a fresh child process, wall time and the child's peak RSS (``os.wait4``):
 - no-change rerun: the same command again;
 - one-changed rerun: after rewriting one result file.
 
+The floor is read again just before each command and that command's ratio is
+against the floor read next to it, so a drift in the machine's speed during
+the run does not skew the ratios; the floor column gives the median of its reads.
 Prints a Markdown table (ratios against the floor) and writes it with the raw
 figures to WORKDIR/results.md and results.json. Figures depend on the machine
 and its load; README's Performance section records one run with its command.
@@ -26,6 +29,7 @@ import json
 import os
 import platform
 import shutil
+import statistics
 import subprocess
 import sys
 import time
@@ -79,12 +83,27 @@ def bench_fleet(assets: int, years: int, workdir: Path, skip_run: bool, handbook
     files = sum(len(f) for _, _, f in os.walk(fleet / "results"))
     row: dict[str, object] = {"assets": assets, "years": years, "files": files, "handbook": handbook}
     print(f"\n== {assets} assets x {years} years: {files} result files", flush=True)
-    timed([sys.executable, "-c", FLOOR, str(fleet)])  # a first read warms the file cache for every command
-    for name, cmd in (("floor", [sys.executable, "-c", FLOOR, str(fleet)]),
-                      ("check", [*loopledger(), "check", str(fleet)])):
+    floor_cmd = [sys.executable, "-c", FLOOR, str(fleet)]
+    timed(floor_cmd)  # a first read warms the file cache for every command
+    floors: list[float] = []
+
+    def measure(name: str, cmd: list[str]) -> None:
+        """Time the floor, then ``cmd`` straight after it: its ratio is against that floor (this machine's
+        speed drifts within a minute, so a floor read long before would skew it)."""
+        if name != "floor":
+            floors.append(timed(floor_cmd)[0])
+            row[f"{name}_floor"] = floors[-1]
         row[name], row[f"{name}_rss"], code, last = timed(cmd)
-        print(f"  {name:<12} {row[name]:8.1f} s  {row[f'{name}_rss']:6d} MiB  exit {code}  {last}", flush=True)
+        if name == "floor":
+            floors.append(float(row[name]))  # type: ignore[arg-type]
+        beside = f"  (floor just before: {floors[-1]:.1f} s)" if name != "floor" else ""
+        print(f"  {name:<12} {row[name]:8.1f} s  {row[f'{name}_rss']:6d} MiB  exit {code}  {last}{beside}",
+              flush=True)
+
+    measure("floor", floor_cmd)
+    measure("check", [*loopledger(), "check", str(fleet)])
     if skip_run:
+        row["floor"] = statistics.median(floors)
         return row
     shutil.rmtree(out, ignore_errors=True)
     victim = sorted((fleet / "results").rglob("*.yaml"))[0]
@@ -94,17 +113,16 @@ def bench_fleet(assets: int, years: int, workdir: Path, skip_run: bool, handbook
         for name, edit in steps:
             if edit is not None:
                 victim.write_bytes(original + edit)
-            cmd = [*loopledger(), "run", str(fleet), "--out", str(out), *([] if handbook else ["--no-handbook"])]
-            row[name], row[f"{name}_rss"], code, last = timed(cmd)
-            print(f"  {name:<12} {row[name]:8.1f} s  {row[f'{name}_rss']:6d} MiB  exit {code}  {last}",
-                  flush=True)
+            measure(name, [*loopledger(), "run", str(fleet), "--out", str(out),
+                           *([] if handbook else ["--no-handbook"])])
     finally:
         victim.write_bytes(original)
+    row["floor"] = statistics.median(floors)  # the floor column: the median of its reads
     return row
 
 
 def table(rows: list[dict[str, object]]) -> str:
-    head = ("| fleet | files | floor (bare parse) | check | cold run | no-change rerun | one-changed rerun "
+    head = ("| fleet | files | floor (bare parse, median) | check | cold run | no-change rerun | one-changed rerun "
             "| peak RSS (run) |\n|---|---:|---:|---:|---:|---:|---:|---:|\n")
     lines = []
     for r in rows:
@@ -114,7 +132,8 @@ def table(rows: list[dict[str, object]]) -> str:
             if key not in r:
                 return "—"
             v = float(r[key])  # type: ignore[arg-type]
-            return f"{v:.1f} s ({v / floor:.2f}×)"
+            paired = float(r.get(f"{key}_floor", floor))  # type: ignore[arg-type]
+            return f"{v:.1f} s ({v / paired:.2f}×)"
         rss = max(int(r.get(k, 0)) for k in ("check_rss", "cold_rss", "nochange_rss", "onechanged_rss"))  # type: ignore[call-overload]
         what = "" if r.get("handbook", True) else " (run --no-handbook)"
         lines.append(f"| {r['assets']} assets × {r['years']} y{what} | {r['files']} | {floor:.1f} s "
