@@ -221,6 +221,13 @@ def before_swap(check: Callable[[], None]) -> Iterator[None]:
         _BEFORE_SWAP.remove(check)
 
 
+def clear_leftovers(final: Path) -> None:
+    """Remove the staging folders a killed run left beside ``final`` (``final`` itself is never touched)."""
+    for stale in final.parent.glob(f".{final.name}.new-*"):
+        if stale.is_dir():
+            shutil.rmtree(stale, ignore_errors=True)
+
+
 @contextlib.contextmanager
 def staged_dir(final: Path) -> Iterator[Path]:
     """Yield a staging folder beside ``final``; on success swap it into place.

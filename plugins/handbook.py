@@ -476,19 +476,12 @@ def _write(path: Path, data: bytes) -> None:
         fh.write(data)
 
 
-def _clear_leftovers(out: Path) -> None:
-    """Remove staging folders a killed build left beside the site (the live site is never touched)."""
-    for stale in out.glob(".handbook.new-*"):
-        if stale.is_dir():
-            shutil.rmtree(stale, ignore_errors=True)
-
-
 @hookimpl
 def ll_publish(ctx: RunContext, out: Path) -> list[Finding]:
-    from loopledger.output import staged_dir
+    from loopledger.output import clear_leftovers, staged_dir
 
-    _clear_leftovers(out)
     live = out / "handbook"
+    clear_leftovers(live)
     with staged_dir(live) as folder:
         ctx.extras["handbook_build"] = build(ctx, folder, previous=live if live.is_dir() else None)
     return []

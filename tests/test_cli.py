@@ -130,3 +130,13 @@ def test_tables_that_cannot_be_written_leave_the_previous_ones_and_say_why_once(
     assert {p.relative_to(out): p.read_bytes() for p in (out / "handbook").rglob("*") if p.is_file()} == pages
     assert [p.name for p in out.iterdir() if p.name.startswith(".")] in ([], [".loopledger-cache"]), \
         "a staging folder was left behind"
+
+
+def test_staging_folders_a_killed_run_left_are_cleared_by_the_next(tmp_path):
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(as_found=good_points())})
+    out = tmp_path / "out"
+    for name in (".data.new-k1l3d", ".handbook.new-k1l3d"):  # as a run killed mid-write leaves them
+        (out / name / "tests").mkdir(parents=True)
+        (out / name / "tests" / "half.html").write_text("<p>half a page", encoding="utf-8")
+    assert main(["run", str(ev), "--out", str(out), "--no-cache"]) == 0
+    assert sorted(p.name for p in out.iterdir()) == ["data", "handbook"]

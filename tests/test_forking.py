@@ -4,6 +4,9 @@ from __future__ import annotations
 
 import gc
 import os
+import signal
+import subprocess
+import sys
 import time
 
 import pytest
@@ -78,3 +81,24 @@ def test_a_side_jobs_error_is_raised_when_waited_for_and_the_blocks_own_error_wi
     with pytest.raises(ZeroDivisionError), side_job(slow_side):
         raise ZeroDivisionError("the block's own error")
     assert side_done.exists(), "the block's error was raised before the side job finished"
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux") or not can_fork(),
+                    reason="the kernel ends a side job with its process only on Linux")
+def test_a_side_job_ends_when_its_process_is_killed(tmp_path):
+    """A run killed while its tables are being written must stop writing, not leave a job of it to finish
+    on its own later (and swap in outputs of a run that never completed)."""
+    marker = tmp_path / "finished"
+    script = (
+        "import os, signal, time\n"
+        "from loopledger.forking import side_job\n"
+        "def side():\n"
+        "    time.sleep(1.5)\n"
+        f"    open({str(marker)!r}, 'w').write('the side job outlived its process')\n"
+        "with side_job(side):\n"
+        "    time.sleep(0.3)\n"
+        "    os.kill(os.getpid(), signal.SIGKILL)\n")
+    done = subprocess.run([sys.executable, "-c", script], timeout=60, check=False)
+    assert done.returncode == -signal.SIGKILL
+    time.sleep(3.0)  # well past the side job's own end, had it lived
+    assert not marker.exists()
