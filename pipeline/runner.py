@@ -105,7 +105,10 @@ def run(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
     if parsed is not None and save is not None:  # the cache is written on the core the stages leave idle
         from loopledger.forking import side_job
 
-        with side_job(lambda: save(parsed)):
+        def parsed_cache() -> None:
+            save(parsed)
+
+        with side_job(parsed_cache):
             run_stages(ctx)
     else:
         run_stages(ctx)
