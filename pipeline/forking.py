@@ -64,7 +64,7 @@ def _end_with(parent: int) -> None:
 
 
 class SideJobFailed(RuntimeError):
-    """The job :func:`alongside` ran in a forked process failed (it printed its own error first)."""
+    """The job :func:`side_job` ran in a forked process failed (it printed its own error first)."""
 
     reported = True  #: the error itself was printed by the forked process
 
