@@ -125,11 +125,18 @@ def engine_fingerprint() -> str:
 
 def _installed() -> list[str]:
     """The metadata folders on the import path (``pandas-2.2.3.dist-info`` ...): each distribution's name and
-    version, from one directory listing per path entry rather than by reading every metadata file."""
+    version, from one directory listing per path entry rather than by reading every metadata file.
+
+    The current folder is left out (``python -m`` puts it on the path): what happens to lie in the folder
+    a run is started from (a checkout's ``.egg-info``, say) would otherwise make the same installation
+    look different from one folder to the next, and every run from a new folder start from nothing."""
+    here = os.getcwd()
     found: list[str] = []
     for entry in sys.path:
+        if not entry or os.path.abspath(entry) == here:
+            continue
         try:
-            names = os.listdir(entry or ".")
+            names = os.listdir(entry)
         except OSError:
             continue
         found += sorted(n for n in names if n.endswith((".dist-info", ".egg-info")))

@@ -159,6 +159,22 @@ def test_an_upgraded_library_changes_the_engine_fingerprint(tmp_path, monkeypatc
     assert incremental.engine_fingerprint() != before
 
 
+def test_the_folder_a_run_starts_from_does_not_change_the_engine_fingerprint(tmp_path, monkeypatch):
+    """``python -m loopledger`` puts the current folder on the import path; metadata folders lying there
+    (a checkout's egg-info) are not part of the installation, so starting from there keeps the cache."""
+    (tmp_path / "elsewhere").mkdir()
+    monkeypatch.chdir(tmp_path / "elsewhere")
+    before = incremental.engine_fingerprint()
+    start = tmp_path / "checkout"
+    (start / "checkout.egg-info").mkdir(parents=True)
+    (start / "other-2.0.dist-info").mkdir()
+    monkeypatch.chdir(start)
+    monkeypatch.syspath_prepend(str(start))
+    assert incremental.engine_fingerprint() == before
+    monkeypatch.syspath_prepend("")
+    assert incremental.engine_fingerprint() == before
+
+
 def test_deleted_output_is_rebuilt(tmp_path, capsys):
     ev = _fleet(tmp_path)
     out = tmp_path / "out"
