@@ -110,7 +110,13 @@ def main(argv: Sequence[str] | None = None) -> int:
     except Exception as exc:
         import traceback
 
-        if not getattr(exc, "reported", False):  # a forked job's error was printed where it happened
+        reported = getattr(exc, "reported", False)  # a forked job's error was printed where it happened
+        if isinstance(exc, OSError) or getattr(exc, "os_error", False):  # the disk, not a bug
+            if not reported:
+                sys.stderr.write(f"loopledger: cannot write or read a file: {exc}\n")
+            sys.stderr.write("loopledger: the run could not finish; outputs already in place were not replaced\n")
+            return EXIT_INTERNAL
+        if not reported:
             traceback.print_exc()
         sys.stderr.write("loopledger: internal error (a bug, not a problem with your evidence); "
                          "outputs already in place were not replaced\n")

@@ -63,10 +63,15 @@ def _end_with(parent: int) -> None:
         os._exit(1)
 
 
+#: a side job's exit status when it stopped on an OSError (sysexits.h's EX_IOERR)
+EX_IOERR = 74
+
+
 class SideJobFailed(RuntimeError):
     """The job :func:`side_job` ran in a forked process failed (it printed its own error first)."""
 
     reported = True  #: the error itself was printed by the forked process
+    os_error = False  #: it stopped on an OSError (a full disk, a folder it may not write to ...)
 
 
 @contextlib.contextmanager
@@ -96,6 +101,9 @@ def side_job(side: Callable[[], None]) -> Iterator[Callable[[], None]]:
             side()
         except KeyboardInterrupt:
             code = 130
+        except OSError as exc:  # the disk or the file system, not a bug: one line says it
+            sys.stderr.write(f"loopledger: cannot write or read a file: {exc}\n")
+            code = EX_IOERR
         except BaseException:
             traceback.print_exc()
             code = 1
@@ -114,7 +122,9 @@ def side_job(side: Callable[[], None]) -> Iterator[Callable[[], None]]:
                 except InterruptedError:
                     continue
         if status[0] != 0:
-            raise SideJobFailed(f"the side job {getattr(side, '__name__', side)!r} failed (exit status {status[0]})")
+            failed = SideJobFailed(f"the side job {getattr(side, '__name__', side)!r} failed (exit status {status[0]})")
+            failed.os_error = status[0] == EX_IOERR
+            raise failed
 
     try:
         yield finished
