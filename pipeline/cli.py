@@ -113,7 +113,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         reported = getattr(exc, "reported", False)  # a forked job's error was printed where it happened
         if isinstance(exc, OSError) or getattr(exc, "os_error", False):  # the disk, not a bug
             if not reported:
-                sys.stderr.write(f"loopledger: cannot write or read a file: {exc}\n")
+                from loopledger.output import file_problem
+
+                sys.stderr.write(file_problem(exc) + "\n")
             sys.stderr.write("loopledger: the run could not finish; outputs already in place were not replaced\n")
             return EXIT_INTERNAL
         if not reported:

@@ -102,7 +102,9 @@ def side_job(side: Callable[[], None]) -> Iterator[Callable[[], None]]:
         except KeyboardInterrupt:
             code = 130
         except OSError as exc:  # the disk or the file system, not a bug: one line says it
-            sys.stderr.write(f"loopledger: cannot write or read a file: {exc}\n")
+            from loopledger.output import file_problem
+
+            sys.stderr.write(file_problem(exc) + "\n")
             code = EX_IOERR
         except BaseException:
             traceback.print_exc()
@@ -114,13 +116,8 @@ def side_job(side: Callable[[], None]) -> Iterator[Callable[[], None]]:
     status: list[int] = []
 
     def finished() -> None:
-        if not status:
-            while True:
-                try:
-                    status.append(os.waitstatus_to_exitcode(os.waitpid(pid, 0)[1]))
-                    break
-                except InterruptedError:
-                    continue
+        if not status:  # waitpid retries by itself when a signal interrupts it (PEP 475)
+            status.append(os.waitstatus_to_exitcode(os.waitpid(pid, 0)[1]))
         if status[0] != 0:
             failed = SideJobFailed(f"the side job {getattr(side, '__name__', side)!r} failed (exit status {status[0]})")
             failed.os_error = status[0] == EX_IOERR

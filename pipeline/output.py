@@ -34,6 +34,11 @@ def _public_mode() -> int:
     return 0o666 & ~_UMASK
 
 
+def file_problem(exc: OSError) -> str:
+    """How a run reports a file it could not write or read (a full disk, a folder it may not write to)."""
+    return f"loopledger: cannot write or read a file: {exc}"
+
+
 def write_bytes(path: Path, data: bytes) -> None:
     """Write ``data`` to ``path`` through a temporary file and ``os.replace``."""
     path.parent.mkdir(parents=True, exist_ok=True)

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
@@ -102,15 +103,15 @@ def run(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
     tick = opts.progress(len(files), 0) if opts.progress else None
     ctx.findings += _stamp(read_files(ctx, files, tick, parsed=opts.parsed), "load")
     parsed, save = opts.parsed, opts.save_parsed
+    writing: contextlib.AbstractContextManager[Any] = contextlib.nullcontext()
     if parsed is not None and save is not None:  # the cache is written on the core the stages leave idle
         from loopledger.forking import side_job
 
         def parsed_cache() -> None:
             save(parsed)
 
-        with side_job(parsed_cache):
-            run_stages(ctx)
-    else:
+        writing = side_job(parsed_cache)
+    with writing:
         run_stages(ctx)
     return ctx
 
