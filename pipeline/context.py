@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -25,7 +26,9 @@ class RunContext:
     - ``assets``: assets.csv as validated, indexed by ``asset``;
     - ``instruments`` / ``ranges``: instruments.yaml, one row per instrument and
       one row per meter range;
-    - ``extras``: what a stage leaves for later stages and pages (e.g. budgets).
+    - ``extras``: what a stage leaves for later stages and pages (e.g. budgets);
+    - ``fleet_only``: what only stages, exported tables and the pages about the
+      whole fleet may read, never an asset's or a test's pages (see :meth:`page_view`).
     """
 
     evidence: Path
@@ -42,6 +45,10 @@ class RunContext:
     methods: dict[str, ReadingMethod] = field(default_factory=dict)
     decision_rules: dict[str, DecisionRule] = field(default_factory=dict)
     raw_files: dict[str, bytes] = field(default_factory=dict)
+    #: names of ``extras`` entries, and ``"tests.COLUMN"`` / ``"points.COLUMN"``, that depend on the
+    #: whole fleet (the fleet's as-found reliability, say): the handbook leaves them out of the context
+    #: its asset, test and sheet pages are made from, so one new test does not make every page again
+    fleet_only: set[str] = field(default_factory=set)
 
     @property
     def as_of(self) -> dt.date:
@@ -53,6 +60,18 @@ class RunContext:
         """This plugin's table of loopledger.toml (empty when absent)."""
         value = self.config.get(name, {})
         return value if isinstance(value, dict) else {}
+
+    def page_view(self) -> RunContext:
+        """This context without what is marked ``fleet_only``: what the pages of one asset and of its tests
+        are made from (a page hook that reads a fleet-only name gets a KeyError, never a stale value)."""
+        if not self.fleet_only:
+            return self
+        hidden = {table: [name.split(".", 1)[1] for name in self.fleet_only if name.startswith(table + ".")]
+                  for table in ("tests", "points")}
+        return dataclasses.replace(
+            self, tests=self.tests.drop(columns=hidden["tests"], errors="ignore"),
+            points=self.points.drop(columns=hidden["points"], errors="ignore"),
+            extras={k: v for k, v in self.extras.items() if k not in self.fleet_only})
 
     def invalidate(self, files: set[str]) -> None:
         """Drop the points of ``files`` and mark their tests invalid (they stay listed)."""

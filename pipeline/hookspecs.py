@@ -148,12 +148,24 @@ def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Sectio
     worker process): take the rows of all ``tests`` together, e.g.
     ``ctx.points[ctx.points["test"].isin(tests)]``, work over them in one pass and group the result.
     Leave out tests with nothing to show. A page's blocks must depend only on the run's tables.
+    ``ctx`` is :meth:`RunContext.page_view`: what a stage marked ``fleet_only`` is not in it (the
+    handbook keeps an asset's pages when nothing else they are made from changed).
     """
 
 
 @hookspec
 def ll_asset_sections(ctx: RunContext, assets: list[str]) -> dict[str, list[Section]] | None:
     """Blocks for the pages of a batch of assets: ``{asset id: [Section, ...]}`` (see ``ll_test_sections``)."""
+
+
+@hookspec
+def ll_fleet_sections(ctx: RunContext) -> list[Section] | None:
+    """Blocks for the index page, about the whole fleet (figures over every asset, such as the fleet's
+    as-found reliability, belong here rather than on each asset's page).
+
+    Unlike the other page hooks this one sees the whole context, ``fleet_only`` names included: the index
+    is made again on every run. The asset, test and sheet page hooks see ``ctx.page_view()``.
+    """
 
 
 @hookspec

@@ -216,7 +216,7 @@ def _job(sh: Shared, rel: str, template: str, data: dict[str, Any], charts: dict
 def fleet_jobs(ctx: RunContext, sh: Shared) -> list[Job]:
     """The pages about the whole fleet: index, overdue, failures, reference instruments."""
     assets, tests = sh.assets, sh.tests
-    index = sp.index_data(ctx, assets, tests)
+    index = {**sp.index_data(ctx, assets, tests), "sections": page_html.sections_html(sp.fleet_sections(ctx))}
     failed_tests = tests[tests["verdict"].isin(["fail", "invalid"])].sort_values(["date", "test"], ascending=False) \
         if len(tests) else tests
     return [
@@ -271,8 +271,9 @@ def batch_jobs(ctx: RunContext, sh: Shared, asset_ids: list[Any], test_ids: list
 
 def jobs(ctx: RunContext) -> list[Job]:
     """Every page of the site with the data it is made from."""
-    sh = prepare(ctx)
-    return [*fleet_jobs(ctx, sh), *batch_jobs(ctx, sh, list(sh.assets.index), list(sh.tests["test"]))]
+    view = ctx.page_view()
+    sh = prepare(view)
+    return [*fleet_jobs(ctx, sh), *batch_jobs(view, sh, list(sh.assets.index), list(sh.tests["test"]))]
 
 
 def batches(sh: Shared, n: int, only: set[Any] | None = None) -> list[tuple[list[Any], list[Any]]]:
@@ -309,9 +310,12 @@ class BuildStats:
 
 @dataclass
 class _Build:
-    """One build's settings, handed to worker processes by forking (never pickled)."""
+    """One build's settings, handed to worker processes by forking (never pickled). ``ctx`` is the run's
+    :meth:`~RunContext.page_view`, which an asset's pages and its digest are made from; ``fleet`` the whole
+    run, for the pages about the fleet."""
 
     ctx: RunContext
+    fleet: RunContext
     shared: Shared
     folder: Path
     previous: Path | None
@@ -352,7 +356,7 @@ def _run_fleet(b: _Build) -> tuple[dict[str, Any], int]:
     """The pages about the whole fleet (made in this process while the workers make the batches)."""
     entries: dict[str, Any] = {}
     rendered = 0
-    for job in fleet_jobs(b.ctx, b.shared):
+    for job in fleet_jobs(b.fleet, b.shared):
         entries[job.rel], made = _emit(b, job)
         rendered += made
     return entries, rendered
@@ -362,16 +366,17 @@ def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: 
     """Write the whole site into ``folder``; reuse unchanged pages from ``previous`` (the live site)."""
     global _CURRENT
     theme = _theme_digest()
-    sh = prepare(ctx)
+    view = ctx.page_view()  # what an asset's pages are made from: nothing that depends on other assets
+    sh = prepare(view)
     live = previous if previous is not None and previous.is_dir() else None
     old = _read_manifest(live) if live is not None else {}
     old_pages = old.get("pages", {}) if old.get("theme") == theme else {}
     found = old.get("assets") if old_pages else None
     old_keys: dict[str, Any] = found if isinstance(found, dict) else {}
     # with nothing to keep, the digests (for the next build) are worked out while the workers make pages
-    keys = asset_digests(ctx, sh, theme) if live is not None and old_keys else None
+    keys = asset_digests(view, sh, theme) if live is not None and old_keys else None
     kept = _kept_assets(sh, keys, old_keys, old_pages, live) if keys is not None and live is not None else {}
-    b = _Build(ctx, sh, folder, live, old_pages, theme)
+    b = _Build(view, ctx, sh, folder, live, old_pages, theme)
     workers = workers if workers is not None else (os.cpu_count() or 1)
     made = set(sh.assets.index) - set(kept)
     todo = batches(sh, 1, only=made)
@@ -380,12 +385,12 @@ def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: 
     try:
         if workers < 2 or pages < PARALLEL_MIN or not can_fork():  # in this process
             done = [*(_run_batch(batch) for batch in todo), _run_fleet(b)]
-            keys = keys if keys is not None else asset_digests(ctx, sh, theme)
+            keys = keys if keys is not None else asset_digests(view, sh, theme)
         else:  # forked workers share the run's tables without copying them
             with fork_pool(workers) as pool:
                 futures = [pool.submit(_run_batch, batch) for batch in batches(sh, workers * 4, only=made)]
                 fleet = _run_fleet(b)
-                keys = keys if keys is not None else asset_digests(ctx, sh, theme)
+                keys = keys if keys is not None else asset_digests(view, sh, theme)
                 done = [*(f.result() for f in futures), fleet]
     finally:
         _CURRENT = None

@@ -14,11 +14,23 @@
   tolerance, per signal type and per description, with the count.
 - Where a ``U`` column exists (the uncertainty stage), each test's global
   false-accept probability from the bivariate normal model: true error
-  ~ N(0, σ_p) with σ_p set so that P(|e| ≤ MPE) = the signal type's EOPR,
-  measured = true + N(0, u), u = U / k; PFA = P(|true| > MPE, |measured| ≤
-  acceptance limit); the test's value is the largest over the points of the
-  phase that decided it; above ``false_accept_limit`` (default 0.02, the
-  ANSI/NCSL Z540.3 §5.3 target) it is flagged.
+  ~ N(0, σ_p) with σ_p set so that P(|e| ≤ MPE) = the prior, measured = true
+  + N(0, u), u = U / k; PFA = P(|true| > MPE, |measured| ≤ acceptance limit);
+  the test's value is the largest over the points of the phase that decided it;
+  above ``false_accept_limit`` (default 0.02, the ANSI/NCSL Z540.3 §5.3 target)
+  it is flagged.
+- The prior is the EOPR of the test's signal type as it stood before the test:
+  over the valid as-found results dated before the test's date (none: no
+  probability). So a test's figure is what could have been worked out on its
+  day, and a later test never changes an earlier test's evidence. (Our choice:
+  the standards ask for the population's in-tolerance probability from its
+  history without saying which history; a test entered late, dated before
+  others, moves theirs.)
+
+The fleet's current EOPR is on the index page (``ll_fleet_sections``), not on
+each asset's page, and is ``fleet_only``, as is the exact probability: a test's
+page shows the probability as printed, with its prior (``false_accept_shown``,
+``false_accept_prior``, ``false_accept_over``).
 """
 
 from __future__ import annotations
@@ -125,27 +137,52 @@ def global_false_accept(mpe: Any, acceptance: Any, u: Any, p_in: Any) -> np.ndar
     return np.where(ok, np.clip(pfa, 0.0, 1.0), np.where(acceptance == 0, 0.0, np.nan))
 
 
-def false_accept(ctx: RunContext, reliability: pd.DataFrame, limit: float) -> tuple[pd.Series, list[Finding]]:
-    """Each test's global false-accept probability (NaN without a ``U`` column)."""
+def prior_reliability(tests: pd.DataFrame, assets: pd.DataFrame) -> pd.DataFrame:
+    """Each test's prior: ``n`` valid as-found results (pass or fail) of its signal type dated before the
+    test's date, ``in_tolerance`` of them passing, ``eopr`` their ratio (NaN when ``n`` is 0)."""
+    t = tests.reindex(columns=list(dict.fromkeys([*tests.columns, "valid", "as_found", "asset", "date"])))
+    signal = t["asset"].map(assets["signal"]) if "signal" in assets.columns else pd.Series(np.nan, index=t.index)
+    date = pd.to_datetime(t["date"], format="%Y-%m-%d", errors="coerce")
+    counted = (t["valid"].fillna(False).astype(bool) & t["as_found"].isin(["pass", "fail"]) & date.notna()
+               & signal.notna()).to_numpy()
+    n = np.zeros(len(t), dtype=np.int64)
+    k = np.zeros(len(t), dtype=np.int64)
+    when = date.to_numpy(dtype="datetime64[ns]")
+    passed = (t["as_found"] == "pass").to_numpy(dtype=bool)
+    for _, rows in pd.Series(np.arange(len(t)), index=t.index).groupby(signal.to_numpy(), sort=False):
+        mine = rows.to_numpy()
+        hist = mine[counted[mine]]
+        order = np.argsort(when[hist], kind="stable")
+        dates, ok = when[hist][order], passed[hist][order]
+        before = np.searchsorted(dates, when[mine], side="left")  # NaT sorts last: no earlier result
+        before[np.isnat(when[mine])] = 0
+        n[mine] = before
+        k[mine] = np.concatenate([[0], np.cumsum(ok)])[before]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ratio = np.where(n > 0, k / np.maximum(n, 1), np.nan)
+    return pd.DataFrame({"n": n, "in_tolerance": k, "eopr": ratio}, index=tests.index)
+
+
+def false_accept(ctx: RunContext, prior: pd.DataFrame, limit: float) -> tuple[pd.Series, list[Finding]]:
+    """Each test's global false-accept probability (NaN without a ``U`` column or without a prior)."""
     tests = ctx.tests
     out = pd.Series(np.nan, index=tests.index, dtype=float)
     pts = ctx.points
     if pts.empty or "U" not in pts.columns:
         return out, []
-    by_signal = reliability[reliability["group_by"] == "signal"].set_index("group")["eopr"]
     adjusted = pts["test"].map(tests.set_index("test")["adjusted"]).fillna(False).astype(bool)
     deciding = pts[np.where(adjusted, pts["phase"] == "as_left", pts["phase"] == "as_found")]
     k = deciding["k"].astype(float) if "k" in deciding.columns else pd.Series(2.0, index=deciding.index)
     u = deciding["U"].astype(float) / k.fillna(2.0)
-    prior = deciding["signal"].map(by_signal)
+    prior = deciding["test"].map(dict(zip(tests["test"].tolist(), prior["eopr"].tolist(), strict=True)))
     pfa = pd.Series(global_false_accept(deciding["mpe"], deciding["acceptance_limit"], u, prior),
                     index=deciding.index)
     per_test = pfa.groupby(deciding["test"]).max()
     out = tests["test"].map(per_test).astype(float)
     over = per_test[per_test > limit]
     files = dict(zip(tests["test"].tolist(), tests["source_file"].tolist(), strict=True))
-    findings = [warning(f"global false-accept probability {value:.2%} exceeds {limit:.0%} "
-                        "(bivariate normal model with the fleet's as-found reliability as prior)",
+    findings = [warning(f"global false-accept probability {value:.2%} exceeds {limit:.0%} (bivariate normal "
+                        "model; prior: the signal type's as-found reliability before the test)",
                         file=str(files.get(test, "")), field="U", code="false-accept")
                 for test, value in zip(over.index.tolist(), over.tolist(), strict=True)]
     return out, findings
@@ -219,13 +256,31 @@ def ll_history(ctx: RunContext) -> list[Finding]:
     cfg = settings(ctx)
     reliability = eopr(ctx.tests, ctx.assets)
     ctx.extras["eopr"] = reliability
+    ctx.fleet_only.add("eopr")
     ctx.extras["assets_summary"] = summary(ctx)
     findings: list[Finding] = []
     if not ctx.tests.empty and "U" in ctx.points.columns:
-        ctx.tests["global_false_accept"], findings = false_accept(ctx, reliability, float(cfg["false_accept_limit"]))
+        limit = float(cfg["false_accept_limit"])
+        prior = prior_reliability(ctx.tests, ctx.assets)
+        pfa, findings = false_accept(ctx, prior, limit)
+        ctx.tests["global_false_accept"] = pfa
+        ctx.fleet_only.add("tests.global_false_accept")
+        ctx.tests["false_accept_shown"], ctx.tests["false_accept_over"] = shown(pfa, limit)
+        ctx.tests["false_accept_prior"] = [f"{e:.1%} ({k} of {n} as-found results before the test)" if n else
+                                           "none (no earlier as-found result of its signal type)"
+                                           for e, k, n in zip(prior["eopr"].tolist(), prior["in_tolerance"].tolist(),
+                                                              prior["n"].tolist(), strict=True)]
         exports = ctx.extras.setdefault("test_exports", [])
         exports.append("global_false_accept")
     return findings
+
+
+def shown(pfa: pd.Series, limit: float) -> tuple[pd.Series, pd.Series]:
+    """What a test's page shows of its false-accept probability: the percentage to two decimals ('' when
+    there is none) and whether it is over ``limit``."""
+    values = pfa.astype(float)
+    text = [f"{v:.2%}" if v == v else "" for v in values.tolist()]
+    return pd.Series(text, index=pfa.index, dtype=object), (values > limit).astype(bool)
 
 
 @hookimpl
@@ -268,12 +323,8 @@ def ll_asset_sections(ctx: RunContext, assets: list[str]) -> dict[str, list[Sect
     table = ctx.extras.get("assets_summary")
     if table is None:
         return {}
-    reliability = ctx.extras.get("eopr", pd.DataFrame(columns=["group_by"]))
-    by_signal = reliability[reliability["group_by"] == "signal"].drop_duplicates("group")
-    fleet = {g: f"{e:.0%} in tolerance as found ({int(k)} of {int(n)} tests, signal type {g})"
-             for g, e, k, n in zip(by_signal["group"], by_signal["eopr"], by_signal["in_tolerance"], by_signal["n"],
-                                   strict=True)}
     overdue_on = "Overdue on " + ctx.as_of.isoformat()
+    fleet = "by signal type on the handbook's index page"
     return {str(r.Index): [Section(title="Due date, drift and interval", kind="facts", order=20, rows=[
         ("Last test", _text(r.last_test)), ("Latest verdict", _text(r.verdict)),
         ("Interval in force", _months(r.interval_months)),
@@ -288,18 +339,36 @@ def ll_asset_sections(ctx: RunContext, assets: list[str]) -> dict[str, list[Sect
         ("Staircase interval (ILAC-G24 / OIML D 10)", _months(r.staircase_months)),
         ("Interval allowed by drift", _months(r.drift_months)),
         ("Recommended interval", f"{_months(r.recommended_interval_months)} ({r.interval_basis or 'no basis'})"),
-        ("Fleet reliability", fleet.get(r.signal, "—")),
+        ("Fleet reliability (as found)", fleet),
     ])] for r in table[table.index.isin(assets)].itertuples()}
 
 
 @hookimpl
 def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
-    if "global_false_accept" not in ctx.tests.columns:
+    if "false_accept_shown" not in ctx.tests.columns:
         return {}
     mine = ctx.tests[ctx.tests["test"].isin(tests)].drop_duplicates("test", keep="last")
-    mine = mine[mine["global_false_accept"].astype(float).notna()]
     limit = float(settings(ctx)["false_accept_limit"])
     met = {False: f"≤ {limit:.0%} — met", True: f"≤ {limit:.0%} — exceeded"}
     return {str(test): [Section(title="Global false-accept probability", kind="facts", order=60, rows=[
-        ("Probability (bivariate normal, fleet EOPR as prior)", f"{v:.2%}"), ("Target", met[v > limit])])]
-        for test, v in zip(mine["test"], mine["global_false_accept"].astype(float).tolist(), strict=True)}
+        ("Probability (bivariate normal model)", text or "— (not worked out)"),
+        ("Prior: the signal type's as-found reliability", prior), ("Target", met[bool(over)] if text else "—")])]
+        for test, text, prior, over in zip(mine["test"], mine["false_accept_shown"], mine["false_accept_prior"],
+                                           mine["false_accept_over"], strict=True)}
+
+
+@hookimpl
+def ll_fleet_sections(ctx: RunContext) -> list[Section]:
+    reliability = ctx.extras.get("eopr")
+    if not isinstance(reliability, pd.DataFrame) or reliability.empty:
+        return []
+    by_signal = reliability[reliability["group_by"] == "signal"].drop_duplicates("group")
+    rows = [(g, f"{e:.0%}", f"{int(k)} of {int(n)}") for g, e, k, n in
+            zip(by_signal["group"], by_signal["eopr"], by_signal["in_tolerance"], by_signal["n"], strict=True)]
+    return [Section(title="As-found reliability by signal type (EOPR)", kind="table", order=20,
+                    columns=["Signal type", "In tolerance as found", "Tests"], rows=rows),
+            Section(title="EOPR as a prior", kind="text", order=21,
+                    text="Each test's global false-accept probability takes as its prior its signal type's "
+                         "reliability as it stood before the test (the as-found results dated earlier), shown "
+                         "on the test's page; the figures above count every test to date. data/eopr.csv also "
+                         "gives them per description.")]

@@ -139,6 +139,12 @@ def asset_sections(ctx: RunContext, assets: list[str]) -> dict[str, list[Section
     return sorted_sections(ctx.pm.hook.ll_asset_sections(ctx=ctx, assets=list(assets))) if len(assets) else {}
 
 
+def fleet_sections(ctx: RunContext) -> list[Section]:
+    """The index page's blocks about the whole fleet (``ll_fleet_sections``), in order."""
+    found = [s for blocks in ctx.pm.hook.ll_fleet_sections(ctx=ctx) for s in blocks or []]
+    return sorted(found, key=lambda s: (s.order, s.title))
+
+
 def sheet_sections(ctx: RunContext, plans: dict[str, dict[str, Any]]) -> dict[str, list[dict[str, Any]]]:
     return merged_sections(ctx.pm.hook.ll_sheet_sections(ctx=ctx, plans=plans)) if plans else {}
 

@@ -65,8 +65,10 @@ def test_each_asset_page_of_a_batch_shows_its_own_due_date(tmp_path, run_folder)
     assert (facts["T-CT2"]["Last test"], facts["T-CT2"]["Next due"]) == ("2025-01-31", "2026-01-31")
     assert [facts[a]["Overdue on 2026-06-01"] for a in ("T-CT1", "T-CT2", "T-CT3")] == ["no", "yes", "yes"]
     assert facts["T-CT3"]["Latest verdict"] == "untested" and facts["T-CT3"]["Next due"] == "—"
-    # EOPR of the signal type: both tests found in tolerance
-    assert facts["T-CT2"]["Fleet reliability"].startswith("100% in tolerance as found (2 of 2 tests")
+    # EOPR of the signal type (both tests found in tolerance) is on the index page, not on each asset's
+    assert facts["T-CT2"]["Fleet reliability (as found)"] == "by signal type on the handbook's index page"
+    table = intervals.ll_fleet_sections(ctx)[0]
+    assert table.rows == [("current-transducer", "100%", "2 of 2")]
 
 
 def test_drift_shortens_the_recommended_interval(tmp_path, run_folder):
@@ -137,9 +139,12 @@ class _FixedU:
 
 
 def test_false_accept_per_test_where_u_exists_and_flag_above_2_percent(tmp_path, pm, run_folder):
+    """The prior is the signal type's as-found reliability before the test: none for the first test, 1 of 1
+    for the second, 1 of 2 for the third (the second failed as found)."""
     ev = write_evidence(tmp_path / "ev", {
-        "a.yaml": result_yaml(date="2025-01-10", as_found=good_points(0.10), as_left=good_points(0.0)),
-        "b.yaml": result_yaml(date="2026-01-10", as_found=good_points(0.02)),
+        "a.yaml": result_yaml(date="2024-01-10", as_found=good_points(0.02)),
+        "b.yaml": result_yaml(date="2025-01-10", as_found=good_points(0.10), as_left=good_points(0.0)),
+        "c.yaml": result_yaml(date="2026-01-10", as_found=good_points(0.02)),
     })
     pm.unregister(name="uncertainty")  # the built-in budget stage (issue 3) would give every point a U
     plain = run_folder(ev)
@@ -147,16 +152,60 @@ def test_false_accept_per_test_where_u_exists_and_flag_above_2_percent(tmp_path,
     pm.register(_FixedU())
     ctx = run_folder(ev)
     by_file = ctx.tests.set_index("source_file")["global_false_accept"]
-    expected = float(intervals.global_false_accept(0.08, 0.08, 0.04, 0.5))  # EOPR 1 of 2 as found
-    assert by_file["results/b.yaml"] == pytest.approx(expected)
-    assert expected > 0.02
+    expected = float(intervals.global_false_accept(0.08, 0.08, 0.04, 0.5))  # EOPR 1 of 2 before c
+    assert by_file["results/c.yaml"] == pytest.approx(expected)
+    assert by_file["results/b.yaml"] == pytest.approx(float(intervals.global_false_accept(0.08, 0.08, 0.04, 1.0)))
+    assert np.isnan(by_file["results/a.yaml"])  # nothing before it to set a prior
+    assert expected > 0.02 > by_file["results/b.yaml"]
     flagged = [f.file for f in ctx.findings if f.code == "false-accept"]
-    assert sorted(flagged) == ["results/a.yaml", "results/b.yaml"]
-    test_b = ctx.tests.set_index("source_file").at["results/b.yaml", "test"]
+    assert flagged == ["results/c.yaml"]
+    ids = ctx.tests.set_index("source_file")["test"]
     pages = batch_and_alone(intervals.ll_test_sections, ctx, list(ctx.tests["test"]))
-    (section,) = pages[test_b]
-    assert section.rows == [("Probability (bivariate normal, fleet EOPR as prior)", f"{expected:.2%}"),
-                            ("Target", "≤ 2% — exceeded")]
+    assert [tuple(r) for r in pages[ids["results/c.yaml"]][0].rows] == [
+        ("Probability (bivariate normal model)", f"{expected:.2%}"),
+        ("Prior: the signal type's as-found reliability", "50.0% (1 of 2 as-found results before the test)"),
+        ("Target", "≤ 2% — exceeded")]
+    assert [tuple(r) for r in pages[ids["results/a.yaml"]][0].rows] == [
+        ("Probability (bivariate normal model)", "— (not worked out)"),
+        ("Prior: the signal type's as-found reliability", "none (no earlier as-found result of its signal type)"),
+        ("Target", "—")]
+
+
+def _prior_by_hand(tests: pd.DataFrame, signal: dict[str, str]) -> list[tuple[int, int]]:
+    """The definition read literally, one test at a time: (in tolerance, n) over the valid pass/fail as-found
+    results of the same signal type dated strictly before the test."""
+    out = []
+    for _, t in tests.iterrows():
+        earlier = [o for _, o in tests.iterrows() if o["valid"] and o["as_found"] in ("pass", "fail")
+                   and signal.get(o["asset"]) == signal.get(t["asset"]) and signal.get(t["asset"]) is not None
+                   and isinstance(o["date"], str) and isinstance(t["date"], str) and o["date"] < t["date"]]
+        out.append((sum(o["as_found"] == "pass" for o in earlier), len(earlier)))
+    return out
+
+
+def test_prior_counts_only_earlier_results_of_the_same_signal_type():
+    rng = np.random.default_rng(7)
+    n = 60
+    tests = pd.DataFrame({
+        "test": [f"t{i}" for i in range(n)],
+        "asset": rng.choice(["A", "B", "C", "X"], n),  # X is not registered
+        "date": [f"202{rng.integers(0, 4)}-0{rng.integers(1, 4)}-1{rng.integers(0, 3)}" if i % 17 else None
+                 for i in range(n)],
+        "valid": rng.random(n) > 0.1,
+        "as_found": rng.choice(["pass", "fail", "conditional-pass", ""], n, p=[0.6, 0.2, 0.1, 0.1]),
+    })
+    signal = {"A": "current-transducer", "B": "current-transducer", "C": "rtd-transmitter"}
+    assets = pd.DataFrame({"asset": list(signal), "signal": list(signal.values())}).set_index("asset", drop=False)
+    got = intervals.prior_reliability(tests, assets)
+    assert list(zip(got["in_tolerance"], got["n"], strict=True)) == _prior_by_hand(tests, signal)
+    with_n = got["n"] > 0
+    assert np.allclose(got.loc[with_n, "eopr"], got.loc[with_n, "in_tolerance"] / got.loc[with_n, "n"])
+    assert got.loc[~with_n, "eopr"].isna().all()
+    # a test dated after all the others leaves every earlier test's prior as it was
+    later = pd.concat([tests, pd.DataFrame({"test": ["new"], "asset": ["A"], "date": ["2099-01-01"], "valid": [True],
+                                            "as_found": ["fail"]})], ignore_index=True)
+    again = intervals.prior_reliability(later, assets)
+    pd.testing.assert_frame_equal(again.iloc[:n], got)
 
 
 def test_bad_interval_settings_are_a_configuration_error(tmp_path):

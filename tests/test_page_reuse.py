@@ -50,9 +50,14 @@ def _assets_csv(ev: Path, old: str, new: str) -> None:
 CHANGES: dict[str, tuple[Callable[[Path], None], int | None]] = {
     # a comment only: the file's own page shows its bytes, so that one asset is made again
     "comment": (lambda ev: _append(ev / "results" / "T-CT1" / "2025.yaml", "# checked twice\n"), 4),
-    # a failed as-found result moves the fleet's in-tolerance figures that every asset page shows
+    # a failed as-found result moves the fleet's reliability and with it every test's false-accept
+    # probability as its page shows it
     "fleet figures": (lambda ev: (ev / "results" / "T-CT2" / "2025.yaml").write_text(
         result_yaml(asset="T-CT2", date="2025-03-02", as_found=good_points(0.3)), encoding="utf-8"), None),
+    # a new passing test: the fleet's reliability stays at 100 % (its figures are on the index only), so
+    # the other assets' pages are kept
+    "next test": (lambda ev: (ev / "results" / "T-CT1" / "2026.yaml").write_text(
+        result_yaml(asset="T-CT1", date="2026-03-01", as_found=good_points(0.01)), encoding="utf-8"), 4),
     # another panel for one asset: its own pages and the fleet's (the index groups by panel)
     "registry row": (lambda ev: _assets_csv(ev, "T-CT3,Test current transducer,Test site,Panel 1",
                                             "T-CT3,Test current transducer,Test site,Panel 9"), 4),
@@ -93,19 +98,32 @@ def test_a_site_built_over_the_last_one_equals_a_cold_build(tmp_path, pm, change
     assert warm.kept < len(ASSETS)
 
 
-def test_fleet_figures_reach_every_asset_page(tmp_path, pm):
-    """The ripple the "fleet figures" case guards against is real: another asset's page changes."""
+def test_fleet_figures_move_the_index_and_what_each_test_page_shows_of_them(tmp_path, pm):
+    """The fleet's reliability is shown on the index only: when it moves, another asset's own page stays
+    as it was, while each test page shows its new false-accept probability (the "fleet figures" case)."""
     ev = _fleet(tmp_path / "ev")
-    live = tmp_path / "live"
-    runner.publish(runner.run(runner.RunOptions(ev), pm), live)
-    page = next((live / "handbook" / "assets").glob("T-CT3*.html"))
-    before = page.read_text(encoding="utf-8")
+    live = tmp_path / "live" / "handbook"
+
+    def pages() -> tuple[str, str, str]:
+        asset = next((live / "assets").glob("T-CT3*.html")).read_text(encoding="utf-8")
+        test = next((live / "tests").glob("T-CT3*2025*.html")).read_text(encoding="utf-8")
+        return asset, test, (live / "index.html").read_text(encoding="utf-8")
+
+    first = runner.run(runner.RunOptions(ev), pm)
+    runner.publish(first, live.parent)
+    before = pages()
     CHANGES["fleet figures"][0](ev)
     ctx = runner.run(runner.RunOptions(ev), pm)
-    runner.publish(ctx, live)
-    after = page.read_text(encoding="utf-8")
-    assert "in tolerance as found" in before and before != after
-    assert ctx.extras["handbook_build"].kept == 0
+    runner.publish(ctx, live.parent)
+    after = pages()
+    assert after[0] == before[0]  # T-CT3's own page: nothing on it depends on other assets
+    assert "<td>8 of 8</td>" in before[2] and "<td>7 of 8</td>" in after[2]  # 8 tests, one now fails as found
+
+    def shown(c: RunContext) -> str:
+        return str(c.tests.set_index("test").loc["T-CT3/2025", "false_accept_shown"])
+
+    assert shown(first) != shown(ctx)
+    assert f"<dd>{shown(first)}</dd>" in before[1] and f"<dd>{shown(ctx)}</dd>" in after[1]
 
 
 # --- the digests themselves -----------------------------------------------------------------------
@@ -121,6 +139,21 @@ def _ctx(**extras: object):
 
 def _digests(ctx):
     return page_inputs.digests(ctx, {}, ["code"])
+
+
+def test_what_is_fleet_only_is_neither_in_a_pages_context_nor_in_its_digest():
+    ctx = _ctx(eopr=pd.DataFrame({"group": ["x"], "eopr": [0.9]}))
+    ctx.tests["global_false_accept"] = [0.01, 0.02]
+    ctx.fleet_only |= {"eopr", "tests.global_false_accept"}
+    view = ctx.page_view()
+    assert "eopr" not in view.extras and "global_false_accept" not in view.tests.columns
+    assert "eopr" in ctx.extras and "global_false_accept" in ctx.tests.columns  # the run keeps them
+    base = _digests(view)
+    ctx.extras["eopr"] = pd.DataFrame({"group": ["x"], "eopr": [0.8]})
+    ctx.tests["global_false_accept"] = [0.011, 0.02]
+    assert _digests(ctx.page_view()) == base
+    ctx.fleet_only.clear()  # not marked: the same change makes every asset's pages again
+    assert all(_digests(ctx.page_view())[a] != base[a] for a in base)
 
 
 def test_a_row_counts_for_its_own_asset_only():
