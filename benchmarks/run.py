@@ -12,7 +12,9 @@ a fresh child process, wall time and the child's peak RSS (``os.wait4``):
 - check: ``loopledger check FLEET`` (every stage but the handbook, no cache);
 - cold run: ``loopledger run FLEET --out OUT`` with an empty OUT (handbook included);
 - no-change rerun: the same command again;
-- one-changed rerun: after rewriting one result file.
+- one-changed rerun: after rewriting one result file (a comment added);
+- one-new-test rerun: after adding one result file, a new test of one asset
+  (the commonest change in practice; it moves the fleet's reliability figures).
 
 The floor is read again just before each command and that command's ratio is
 against the floor read next to it, so a drift in the machine's speed during
@@ -106,24 +108,45 @@ def bench_fleet(assets: int, years: int, workdir: Path, skip_run: bool, handbook
         row["floor"] = statistics.median(floors)
         return row
     shutil.rmtree(out, ignore_errors=True)
-    victim = sorted((fleet / "results").rglob("*.yaml"))[0]
+    yamls = sorted((fleet / "results").rglob("*.yaml"))
+    victim = yamls[0]
     original = victim.read_bytes()
+    latest = yamls[-1]  # a new test of this asset, a repeat of its latest, dated as_of (or the day before)
+    new_test, new_text = new_test_file(fleet, latest)
     try:
-        steps = (("cold", None), ("nochange", None), ("onechanged", b"\n# benchmark edit\n"))
+        steps = (("cold", None), ("nochange", None), ("onechanged", b"\n# benchmark edit\n"), ("newtest", None))
         for name, edit in steps:
             if edit is not None:
                 victim.write_bytes(original + edit)
+            if name == "newtest":
+                new_test.write_text(new_text, encoding="utf-8")
             measure(name, [*loopledger(), "run", str(fleet), "--out", str(out),
                            *([] if handbook else ["--no-handbook"])])
     finally:
         victim.write_bytes(original)
+        new_test.unlink(missing_ok=True)
     row["floor"] = statistics.median(floors)  # the floor column: the median of its reads
     return row
 
 
+def new_test_file(fleet: Path, latest: Path) -> tuple[Path, str]:
+    """Where the one-new-test step writes its file, and its text: ``latest`` again, dated the fleet's
+    ``as_of`` (the day before when ``latest`` is of that day)."""
+    import datetime as dt
+    import re
+    import tomllib
+
+    as_of = tomllib.loads((fleet / "loopledger.toml").read_text(encoding="utf-8"))["as_of"]
+    text = latest.read_text(encoding="utf-8")
+    old = re.search(r"^date: (\S+)$", text, re.M)
+    assert old is not None, latest
+    day = as_of if str(as_of) != old.group(1) else as_of - dt.timedelta(days=1)
+    return latest.with_name(latest.name.replace(old.group(1), str(day))), text.replace(old.group(0), f"date: {day}")
+
+
 def table(rows: list[dict[str, object]]) -> str:
     head = ("| fleet | files | floor (bare parse, median) | check | cold run | no-change rerun | one-changed rerun "
-            "| peak RSS (run) |\n|---|---:|---:|---:|---:|---:|---:|---:|\n")
+            "| one-new-test rerun | peak RSS (run) |\n|---|---:|---:|---:|---:|---:|---:|---:|---:|\n")
     lines = []
     for r in rows:
         floor = float(r["floor"])  # type: ignore[arg-type]
@@ -134,15 +157,17 @@ def table(rows: list[dict[str, object]]) -> str:
             v = float(r[key])  # type: ignore[arg-type]
             paired = float(r.get(f"{key}_floor", floor))  # type: ignore[arg-type]
             return f"{v:.1f} s ({v / paired:.2f}×)"
-        rss = max(int(r.get(k, 0)) for k in ("check_rss", "cold_rss", "nochange_rss", "onechanged_rss"))  # type: ignore[call-overload]
+        rss = max(int(r.get(k, 0)) for k in ("check_rss", "cold_rss", "nochange_rss", "onechanged_rss",  # type: ignore[call-overload]
+                                              "newtest_rss"))
         what = "" if r.get("handbook", True) else " (run --no-handbook)"
         lines.append(f"| {r['assets']} assets × {r['years']} y{what} | {r['files']} | {floor:.1f} s "
-                     f"| {cell('check')} | {cell('cold')} | {cell('nochange')} | {cell('onechanged')} | {rss} MiB |")
+                     f"| {cell('check')} | {cell('cold')} | {cell('nochange')} | {cell('onechanged')} "
+                     f"| {cell('newtest')} | {rss} MiB |")
     text = head + "\n".join(lines) + "\n"
     if len(rows) >= 2:
         a, b = rows[0], rows[-1]
         growth = []
-        for key in ("floor", "check", "cold", "onechanged"):
+        for key in ("floor", "check", "cold", "onechanged", "newtest"):
             if key in a and key in b:
                 growth.append(f"{key} {float(b[key]) / float(a[key]):.1f}×")  # type: ignore[arg-type]
         text += f"\nGrowth from {a['files']} to {b['files']} files: {', '.join(growth)}.\n"
