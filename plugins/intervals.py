@@ -270,8 +270,10 @@ def ll_history(ctx: RunContext) -> list[Finding]:
                                            "none (no earlier as-found result of its signal type)"
                                            for e, k, n in zip(prior["eopr"].tolist(), prior["in_tolerance"].tolist(),
                                                               prior["n"].tolist(), strict=True)]
+        # the prior's counts go out with the probability, so it can be worked again from tests.csv
+        ctx.tests["prior_n"], ctx.tests["prior_in_tolerance"] = prior["n"], prior["in_tolerance"]
         exports = ctx.extras.setdefault("test_exports", [])
-        exports.append("global_false_accept")
+        exports += ["global_false_accept", "prior_n", "prior_in_tolerance"]
     return findings
 
 

@@ -156,6 +156,9 @@ def test_false_accept_per_test_where_u_exists_and_flag_above_2_percent(tmp_path,
     assert by_file["results/c.yaml"] == pytest.approx(expected)
     assert by_file["results/b.yaml"] == pytest.approx(float(intervals.global_false_accept(0.08, 0.08, 0.04, 1.0)))
     assert np.isnan(by_file["results/a.yaml"])  # nothing before it to set a prior
+    counts = ctx.tests.set_index("source_file")[["prior_n", "prior_in_tolerance"]]
+    files = ["results/a.yaml", "results/b.yaml", "results/c.yaml"]
+    assert counts.loc[files].values.tolist() == [[0, 0], [1, 1], [2, 1]]
     assert expected > 0.02 > by_file["results/b.yaml"]
     flagged = [f.file for f in ctx.findings if f.code == "false-accept"]
     assert flagged == ["results/c.yaml"]
