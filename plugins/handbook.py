@@ -513,7 +513,8 @@ def _sheet_run(args: argparse.Namespace) -> int:
     from loopledger.config import ConfigError
     from loopledger.host import get_plugin_manager
 
-    ctx = runner.run(runner.RunOptions(args.evidence, overrides=overrides(args)), get_plugin_manager())
+    # made from what the handbook's sheet page is made from, so a plugin's sheet blocks see the same here
+    ctx = runner.run(runner.RunOptions(args.evidence, overrides=overrides(args)), get_plugin_manager()).page_view()
     if args.asset not in ctx.assets.index:
         raise ConfigError(f"asset '{args.asset}' is not in {args.evidence / 'assets.csv'}")
     if args.meter and args.meter not in ctx.instruments.index:
