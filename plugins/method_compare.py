@@ -62,21 +62,18 @@ def alternatives(ctx: RunContext, pts: pd.DataFrame) -> pd.DataFrame:
         if not np.isfinite(ohms):
             continue
         alt = _as_read_by(direct, "shunt", str(ident), amps[direct.index] * ohms, "V")
-        frames.append(_evaluate(ctx, alt, f"shunt {ident} ({ohms:g} Ω) on {_meters(direct)} volts"))
+        frames.append(_evaluate(ctx, alt, f"shunt {ident} ({ohms:g} Ω) on " + direct["meter"].astype(str) + " volts"))
     shunted = pts[(pts["method"] == "shunt") & current & pts["meter"].notna()]
     if len(shunted):
         alt = _as_read_by(shunted, "direct", None, shunted["measured"], shunted["output_unit"])
-        frames.append(_evaluate(ctx, alt, f"direct on {_meters(shunted)} current range"))
+        frames.append(_evaluate(ctx, alt, "direct on " + shunted["meter"].astype(str) + " current range"))
     frames = [f for f in frames if len(f)]
     return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(columns=COLUMNS)
 
 
-def _meters(pts: pd.DataFrame) -> str:
-    return "/".join(sorted(str(m) for m in pd.unique(pts["meter"].dropna())))
-
-
 def _evaluate(ctx: RunContext, alt: pd.DataFrame, label: Any) -> pd.DataFrame:
-    """U and TUR of each point of ``alt`` by the uncertainty stage's budget; ``label`` names the rig(s)."""
+    """U and TUR of each point of ``alt`` by the uncertainty stage's budget; ``label`` names the rig, one
+    per point (the point's own meter: never another test's)."""
     _, per, problems = budget.compute(ctx, alt)
     frame = alt[["test", "phase", "point", "method", "shunt"]].copy()
     frame["alternative"] = label
