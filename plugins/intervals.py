@@ -86,10 +86,15 @@ def add_months(dates: pd.Series, months: pd.Series) -> pd.Series:
     return out
 
 
+def _counted(tests: pd.DataFrame) -> pd.Series:
+    """The tests whose as-found result counts towards reliability: valid, and found in or out of tolerance."""
+    return tests["valid"].fillna(False).astype(bool) & tests["as_found"].isin(["pass", "fail"])
+
+
 def eopr(tests: pd.DataFrame, assets: pd.DataFrame) -> pd.DataFrame:
     """In-tolerance fraction of as-found results per signal type and per description."""
     tests = tests.reindex(columns=list(dict.fromkeys([*tests.columns, "valid", "as_found", "asset"])))
-    t = tests[tests["valid"].fillna(False).astype(bool) & tests["as_found"].isin(["pass", "fail"])]
+    t = tests[_counted(tests)]
     t = t.assign(in_tol=(t["as_found"] == "pass").astype(int))
     frames = []
     for by in ("signal", "description"):
@@ -143,14 +148,14 @@ def prior_reliability(tests: pd.DataFrame, assets: pd.DataFrame) -> pd.DataFrame
     t = tests.reindex(columns=list(dict.fromkeys([*tests.columns, "valid", "as_found", "asset", "date"])))
     signal = t["asset"].map(assets["signal"]) if "signal" in assets.columns else pd.Series(np.nan, index=t.index)
     date = pd.to_datetime(t["date"], format="%Y-%m-%d", errors="coerce")
-    counted = (t["valid"].fillna(False).astype(bool) & t["as_found"].isin(["pass", "fail"]) & date.notna()
-               & signal.notna()).to_numpy()
+    counted = (_counted(t) & date.notna()).to_numpy()
     n = np.zeros(len(t), dtype=np.int64)
     k = np.zeros(len(t), dtype=np.int64)
     when = date.to_numpy(dtype="datetime64[ns]")
     passed = (t["as_found"] == "pass").to_numpy(dtype=bool)
-    for _, rows in pd.Series(np.arange(len(t)), index=t.index).groupby(signal.to_numpy(), sort=False):
-        mine = rows.to_numpy()
+    codes = pd.factorize(signal)[0]  # -1: no signal type, so no prior
+    for code in range(codes.max() + 1 if len(codes) else 0):
+        mine = np.flatnonzero(codes == code)
         hist = mine[counted[mine]]
         order = np.argsort(when[hist], kind="stable")
         dates, ok = when[hist][order], passed[hist][order]
