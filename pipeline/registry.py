@@ -31,10 +31,10 @@ def load_assets(evidence: Path) -> tuple[pd.DataFrame, list[Finding]]:
     except (ValueError, pd.errors.ParserError) as exc:
         return empty, [error(f"cannot read: {exc}", file=ASSETS)]
     frame.columns = [str(c).strip() for c in frame.columns]
-    frame = frame.apply(lambda col: col.str.strip()).replace("", pd.NA)
-    for name in OPTIONAL:
+    for name in OPTIONAL:  # a column left out is read as one left empty (pd.NA put in as such cannot be coerced)
         if name not in frame.columns:
-            frame[name] = pd.NA
+            frame[name] = ""
+    frame = frame.apply(lambda col: col.str.strip()).replace("", pd.NA)
     frame, findings = validate(frame, AssetsFile, lambda i: {"file": ASSETS, "line": 0 if i is None else int(i) + 2})
     frame = frame.astype({c: "object" for c in frame.columns if frame[c].dtype == "string"})
     frame["characteristic"] = frame["characteristic"].fillna("linear")

@@ -154,6 +154,25 @@ def test_unparseable_assets_csv_is_reported_not_a_crash(tmp_path):
     assert rows[0]["verdict"] == "invalid" and "T-CT1" in rows[0]["errors"]
 
 
+def test_optional_columns_may_be_left_out_of_assets_csv(tmp_path, run_folder):
+    """README's assets.csv format: only the required columns must be there; a column left out reads as one
+    left empty (this once failed as "'<NA>' is not a number" for every numeric column left out)."""
+    from loopledger.schemas.assets import OPTIONAL, REQUIRED
+
+    ev = write_evidence(tmp_path / "ev", {"good.yaml": GOOD})
+    keep = [*REQUIRED, "ct_ratio"]  # the current transducer's primary injection needs its ratio
+    lines = (ev / "assets.csv").read_text(encoding="utf-8").splitlines()
+    header = lines[0].split(",")
+    rows = [dict(zip(header, line.split(","), strict=True)) for line in lines[1:]]
+    (ev / "assets.csv").write_text("\n".join([",".join(keep), *(",".join(r[c] for c in keep) for r in rows)]) + "\n",
+                                   encoding="utf-8")
+    ctx = run_folder(ev)
+    assert [f for f in ctx.findings if f.severity == "error"] == []
+    assert ctx.tests["verdict"].tolist() == ["pass"]
+    assert set(OPTIONAL) <= set(ctx.assets.columns)
+    assert ctx.assets[[c for c in OPTIONAL if c not in ("ct_ratio", "characteristic")]].isna().all().all()
+
+
 def test_decimal_comma_split_by_yaml_flow_syntax_is_named(tmp_path, run_folder):
     # In `{input: 50 %, reading: 12,010 mA}` YAML reads `reading: 12` and a field `010 mA`.
     text = result_yaml(as_found=good_points()).replace("reading: 12.0000 mA", "reading: 12,010 mA")
