@@ -49,18 +49,22 @@ def validate(frame: pd.DataFrame, model: Any, where: Callable[[Any], dict[str, A
         cases = exc.failure_cases
     findings: list[Finding] = []
     bad_rows: set[Any] = set()
+    said: set[tuple[str, Any, str]] = set()  # pandera reports a cell it cannot coerce twice (coerce, dtype)
     for case in cases.itertuples(index=False):
         column = str(case.column) if case.column is not None and str(case.column) != "None" else ""
         check = str(case.check)
         index = case.index
-        if index is None or (isinstance(index, float) and pd.isna(index)):
-            findings.append(error(f"{column or 'table'} {describe(check, case.failure_case)}".strip(),
-                                  field=column, **where(None)))
+        whole = index is None or (isinstance(index, float) and pd.isna(index))
+        message = f"{(column or 'table') if whole else column} {describe(check, case.failure_case)}".strip()
+        if (column, None if whole else index, message) in said:
+            continue
+        said.add((column, None if whole else index, message))
+        if whole:
+            findings.append(error(message, field=column, **where(None)))
             bad_rows.update(frame.index)
             continue
         bad_rows.add(index)
-        findings.append(error(f"{column} {describe(check, case.failure_case)}".strip(), field=column,
-                              **where(index)))
+        findings.append(error(message, field=column, **where(index)))
     kept = frame.drop(index=[i for i in bad_rows if i in frame.index])
     if kept.empty:
         return kept, findings

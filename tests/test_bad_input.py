@@ -173,6 +173,18 @@ def test_optional_columns_may_be_left_out_of_assets_csv(tmp_path, run_folder):
     assert ctx.assets[[c for c in OPTIONAL if c not in ("ct_ratio", "characteristic")]].isna().all().all()
 
 
+def test_a_bad_number_in_assets_csv_is_reported_once(tmp_path, run_folder):
+    ev = write_evidence(tmp_path / "ev", {"good.yaml": GOOD})
+    text = (ev / "assets.csv").read_text(encoding="utf-8")
+    lines = text.splitlines()
+    cells = lines[1].split(",")
+    cells[lines[0].split(",").index("input_max")] = "one"
+    (ev / "assets.csv").write_text("\n".join([lines[0], ",".join(cells)]) + "\n", encoding="utf-8")
+    ctx = run_folder(ev)
+    said = [f for f in ctx.findings if f.file == "assets.csv"]
+    assert [(f.line, f.field, f.message) for f in said] == [(2, "input_max", "input_max 'one' is not a number")]
+
+
 def test_decimal_comma_split_by_yaml_flow_syntax_is_named(tmp_path, run_folder):
     # In `{input: 50 %, reading: 12,010 mA}` YAML reads `reading: 12` and a field `010 mA`.
     text = result_yaml(as_found=good_points()).replace("reading: 12.0000 mA", "reading: 12,010 mA")
