@@ -51,8 +51,13 @@ def write(ctx: RunContext, test: str, out: TextIO) -> None:
     budget = budget[budget["test"] == test]
     rule = ctx.decision_rules.get(str(head.get("decision_rule")))
     out.write(f"Test {test} ({head['source_file']})\n")
-    out.write(f"  asset {head['asset']} on {head['date']}, method {head['method']}, source {head['source']}, "
-              f"meter {head['meter']}, shunt {head['shunt']}, ambient {head['ambient_c']} °C\n")
+    def given(name: str, suffix: str = "") -> str:  # a header field left out reads "none given", never "nan"
+        value = head.get(name)
+        return "none given" if value is None or (not isinstance(value, str) and pd.isna(value)) else \
+            f"{value}{suffix}"
+
+    out.write(f"  asset {head['asset']} on {head['date']}, method {head['method']}, source {given('source')}, "
+              f"meter {given('meter')}, shunt {given('shunt')}, ambient {given('ambient_c', ' °C')}\n")
     out.write(f"  decision rule: {head.get('decision_rule')}"
               f"{' — ' + rule.description if rule is not None else ''}\n")
     out.write(f"  verdict: {head['verdict']}\n")

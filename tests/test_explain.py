@@ -30,6 +30,15 @@ def test_explain_prints_the_calculation_trail(tmp_path, capsys):
     assert "analysis (as-found" in out and "Zero error" in out
 
 
+def test_explain_says_none_given_for_a_field_left_out(tmp_path, capsys):
+    """A direct reading has no shunt and this file gives no ambient temperature: the header says so."""
+    doc = result_yaml(as_found=[("50 %", "12.003 mA")]).replace("ambient_c: 23.0\n", "")
+    ev = write_evidence(tmp_path / "ev", {"d.yaml": doc})
+    assert main(["explain", str(ev / "results" / "d.yaml")]) == 0
+    head = capsys.readouterr().out.splitlines()[1]
+    assert "shunt none given" in head and "ambient none given" in head and "nan" not in head
+
+
 def test_explain_of_an_invalid_file_says_why(tmp_path, capsys):
     doc = result_yaml(as_found=[("50 %", "twelve mA")])
     ev = write_evidence(tmp_path / "ev", {"bad.yaml": doc})
