@@ -44,6 +44,11 @@ def conversion(ctx: RunContext, r: pd.Series) -> str:
     return f"{r['reading_text']} (method {r['method']}) → {fmt(r['measured'], 6)} {unit}"
 
 
+def _with(text: str, after: str) -> str:
+    """``text`` and its unit (or ``:1``); a figure not worked out is a dash alone."""
+    return text if text == "—" else text + after
+
+
 def write(ctx: RunContext, test: str, out: TextIO) -> None:
     pts = ctx.points[ctx.points["test"] == test].sort_values(["phase", "point"])
     head = ctx.tests[ctx.tests["test"] == test].iloc[0]
@@ -75,9 +80,10 @@ def write(ctx: RunContext, test: str, out: TextIO) -> None:
         for b in rows.itertuples():
             out.write(f"               {b.component:<20}{b.distribution:<17}{fmt(b.half_width) + ' ' + str(b.unit):>18}"
                       f"{fmt(b.divisor):>9}{fmt(b.sensitivity):>13}{fmt(b.contribution):>14}{fmt(b.dof, 3):>6}\n")
-        out.write(f"  combined     u = {fmt(r.get('u'))} {unit}, ν_eff = {fmt(r.get('nu_eff'), 3)}, "
-                  f"k = {fmt(r.get('k'), 4)}, U = {fmt(r.get('U'))} {unit} (95.45 %)\n")
-        out.write(f"  capability   TUR = {fmt(r.get('tur'), 3)}:1, specific risk = {percent(r.get('risk'))}\n")
+        out.write(f"  combined     u = {_with(fmt(r.get('u')), ' ' + unit)}, ν_eff = {fmt(r.get('nu_eff'), 3)}, "
+                  f"k = {fmt(r.get('k'), 4)}, U = {_with(fmt(r.get('U')), ' ' + unit)} (95.45 %)\n")
+        out.write(f"  capability   TUR = {_with(fmt(r.get('tur'), 3), ':1')}, "
+                  f"specific risk = {percent(r.get('risk'))}\n")
         out.write(f"  decision     {r['decision']} by rule {r['decision_rule']} "
                   f"(acceptance limit |e| ≤ {fmt(r['acceptance_limit'])} {unit})\n")
     analysis = ctx.extras.get("analysis")

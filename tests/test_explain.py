@@ -35,8 +35,10 @@ def test_explain_says_none_given_for_a_field_left_out(tmp_path, capsys):
     doc = result_yaml(as_found=[("50 %", "12.003 mA")]).replace("ambient_c: 23.0\n", "")
     ev = write_evidence(tmp_path / "ev", {"d.yaml": doc})
     assert main(["explain", str(ev / "results" / "d.yaml")]) == 0
-    head = capsys.readouterr().out.splitlines()[1]
+    out = capsys.readouterr().out
+    head = out.splitlines()[1]
     assert "shunt none given" in head and "ambient none given" in head and "nan" not in head
+    assert "U = 0.0" in out and " mA (95.45 %)" in out  # worked out: with its unit
 
 
 def test_explain_of_an_invalid_file_says_why(tmp_path, capsys):
