@@ -44,6 +44,12 @@ def conversion(ctx: RunContext, r: pd.Series) -> str:
     return f"{r['reading_text']} (method {r['method']}) → {fmt(r['measured'], 6)} {unit}"
 
 
+def _given(head: pd.Series, name: str, suffix: str = "") -> str:
+    """A header field as given, or "none given" when the file leaves it out (never "nan")."""
+    value = head.get(name)
+    return "none given" if value is None or (not isinstance(value, str) and pd.isna(value)) else f"{value}{suffix}"
+
+
 def _with(text: str, after: str) -> str:
     """``text`` and its unit (or ``:1``); a figure not worked out is a dash alone."""
     return text if text == "—" else text + after
@@ -56,13 +62,9 @@ def write(ctx: RunContext, test: str, out: TextIO) -> None:
     budget = budget[budget["test"] == test]
     rule = ctx.decision_rules.get(str(head.get("decision_rule")))
     out.write(f"Test {test} ({head['source_file']})\n")
-    def given(name: str, suffix: str = "") -> str:  # a header field left out reads "none given", never "nan"
-        value = head.get(name)
-        return "none given" if value is None or (not isinstance(value, str) and pd.isna(value)) else \
-            f"{value}{suffix}"
-
-    out.write(f"  asset {head['asset']} on {head['date']}, method {head['method']}, source {given('source')}, "
-              f"meter {given('meter')}, shunt {given('shunt')}, ambient {given('ambient_c', ' °C')}\n")
+    out.write(f"  asset {head['asset']} on {head['date']}, method {head['method']}, "
+              f"source {_given(head, 'source')}, meter {_given(head, 'meter')}, shunt {_given(head, 'shunt')}, "
+              f"ambient {_given(head, 'ambient_c', ' °C')}\n")
     out.write(f"  decision rule: {head.get('decision_rule')}"
               f"{' — ' + rule.description if rule is not None else ''}\n")
     out.write(f"  verdict: {head['verdict']}\n")
