@@ -226,7 +226,7 @@ def before_swap(check: Callable[[], None]) -> Iterator[None]:
         _BEFORE_SWAP.remove(check)
 
 
-def clear_leftovers(final: Path) -> None:
+def _clear_leftovers(final: Path) -> None:
     """Remove the staging folders a killed run left beside ``final`` (``final`` itself is never touched)."""
     for stale in final.parent.glob(f".{final.name}.new-*"):
         if stale.is_dir():
@@ -238,10 +238,11 @@ def staged_dir(final: Path) -> Iterator[Path]:
     """Yield a staging folder beside ``final``; on success swap it into place.
 
     If the body raises (or the process dies), or a :func:`before_swap` check fails, ``final`` is left
-    as it was.
+    as it was. What an earlier run killed mid-swap or mid-build left beside ``final`` is tidied first.
     """
     final.parent.mkdir(parents=True, exist_ok=True)
     recover(final)
+    _clear_leftovers(final)
     stage = Path(tempfile.mkdtemp(prefix=f".{final.name}.new-", dir=final.parent))
     try:
         yield stage

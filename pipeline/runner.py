@@ -130,11 +130,10 @@ def export(ctx: RunContext, out: Path) -> list[Path]:
     The tables are written into a staging folder swapped in whole, so data/
     always holds the tables of one complete run.
     """
-    from loopledger.output import clear_leftovers, staged_dir, write_csvs
+    from loopledger.output import staged_dir, write_csvs
 
     tables = {name: frame for found in ctx.pm.hook.ll_export_tables(ctx=ctx)
               for name, frame in (found or {}).items()}  # one file per name (a later plugin's wins, as before)
-    clear_leftovers(out / "data")
     with staged_dir(out / "data") as folder:
         write_csvs([(folder / f"{name}.csv", frame) for name, frame in tables.items()])
     return [out / "data" / f"{name}.csv" for name in tables]

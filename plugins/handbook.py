@@ -483,10 +483,9 @@ def _write(path: Path, data: bytes) -> None:
 
 @hookimpl
 def ll_publish(ctx: RunContext, out: Path) -> list[Finding]:
-    from loopledger.output import clear_leftovers, staged_dir
+    from loopledger.output import staged_dir
 
     live = out / "handbook"
-    clear_leftovers(live)
     with staged_dir(live) as folder:
         ctx.extras["handbook_build"] = build(ctx, folder, previous=live if live.is_dir() else None)
     return []
