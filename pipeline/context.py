@@ -45,6 +45,8 @@ class RunContext:
     methods: dict[str, ReadingMethod] = field(default_factory=dict)
     decision_rules: dict[str, DecisionRule] = field(default_factory=dict)
     raw_files: dict[str, bytes] = field(default_factory=dict)
+    #: asset ids of assets.csv rows dropped for errors, with their line numbers
+    rejected_assets: dict[str, int] = field(default_factory=dict)
     #: names of ``extras`` entries, and ``"tests.COLUMN"`` / ``"points.COLUMN"``, that depend on the
     #: whole fleet (the fleet's as-found reliability, say): the handbook leaves them out of the context
     #: its asset, test and sheet pages are made from, so one new test does not make every page again

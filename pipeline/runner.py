@@ -55,7 +55,7 @@ def prepare(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
     if rule not in ctx.decision_rules:
         raise ConfigError(f"loopledger.toml: unknown decision rule '{rule}' "
                           f"(known: {', '.join(sorted(ctx.decision_rules))})")
-    ctx.assets, found = load_assets(opts.evidence)
+    ctx.assets, found, ctx.rejected_assets = load_assets(opts.evidence)
     ctx.findings += _stamp(found, "registry")
     ctx.instruments, ctx.ranges, found = load_instruments(opts.evidence)
     ctx.findings += _stamp(found, "registry")

@@ -10,10 +10,22 @@ import pandas as pd
 from loopledger.findings import Finding, error
 
 _ISIN = re.compile(r"^isin\((.*)\)$")
+_BOUND = re.compile(r"^(greater_than_or_equal_to|less_than_or_equal_to|greater_than|less_than)\((.*)\)$")
+_BOUNDS = {"greater_than": "greater than", "greater_than_or_equal_to": "at least", "less_than": "less than",
+           "less_than_or_equal_to": "at most"}
+
+
+def _short(value: Any, limit: int = 60) -> str:
+    """A value as text, cut to ``limit`` characters (a finding quotes what it refuses, not all of it)."""
+    text = str(value)
+    return text if len(text) <= limit else text[: limit - 1] + "…"
 
 
 def describe(check: str, case: Any) -> str:
     """A sentence for one pandera failure case."""
+    case = _short(case)
+    if check.startswith("must "):  # a check of our own, its error text written to follow the value
+        return f"'{case}' {check}"
     m = _ISIN.match(check)
     if m:
         return f"'{case}' is not one of {m.group(1)}"
@@ -27,9 +39,22 @@ def describe(check: str, case: Any) -> str:
         return f"'{case}' appears more than once"
     if check.startswith("str_matches"):
         return f"'{case}' has characters that are not allowed here"
+    bound = _BOUND.match(check)
+    if bound:
+        return f"'{case}' must be {_BOUNDS[bound.group(1)]} {bound.group(2)}"
+    if check.startswith("str_length"):
+        return f"'{case}' is too long or empty (allowed: {check[len('str_length'):].strip('()').replace(', ', ' to ')} characters)"
     if check == "column_in_dataframe":
         return f"column '{case}' is missing"
     return f"'{case}' fails the check: {check}"
+
+
+def _row_check(frame: pd.DataFrame, index: Any, check: str) -> tuple[str, str]:
+    """(field, message) for a failed check across a row: the columns its text names, with their values."""
+    named = sorted((m.start(), c) for c in frame.columns
+                   if (m := re.search(rf"\b{re.escape(str(c))}\b", check)) is not None)
+    values = ", ".join(f"{c} {frame.at[index, c]!s}" for _, c in named) if index in frame.index else ""
+    return (str(named[0][1]) if named else ""), check + (f" ({values})" if values else "")
 
 
 def validate(frame: pd.DataFrame, model: Any, where: Callable[[Any], dict[str, Any]],
@@ -55,7 +80,11 @@ def validate(frame: pd.DataFrame, model: Any, where: Callable[[Any], dict[str, A
         check = str(case.check)
         index = case.index
         whole = index is None or (isinstance(index, float) and pd.isna(index))
-        message = f"{(column or 'table') if whole else column} {describe(check, case.failure_case)}".strip()
+        if not whole and case.schema_context == "DataFrameSchema":
+            # a check across the row: pandera lists every cell of a failing row; said once, of the columns it names
+            column, message = _row_check(frame, index, check)
+        else:
+            message = f"{(column or 'table') if whole else column} {describe(check, case.failure_case)}".strip()
         if (column, None if whole else index, message) in said:
             continue
         said.add((column, None if whole else index, message))

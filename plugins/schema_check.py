@@ -70,7 +70,11 @@ def _check_references(ctx: RunContext, tests: pd.DataFrame, lines: dict[str, dic
     columns = [tests[c].tolist() for c in ("source_file", "asset", "method", *roles)]  # not row objects: 20k rows
     for rel, asset, method, *idents in zip(*columns, strict=True):
         at = lines.get(rel, {})
-        if asset not in known_assets:
+        if asset in ctx.rejected_assets:
+            findings.append(error(f"asset '{asset}' has errors in its row of assets.csv (line "
+                                  f"{ctx.rejected_assets[asset]}): this file is judged once that row is put right",
+                                  file=rel, line=at.get("asset", 0), field="asset"))
+        elif asset not in known_assets:
             findings.append(error(f"asset '{asset}' is not in assets.csv", file=rel, line=at.get("asset", 0),
                                   field="asset"))
         if method not in ctx.methods:

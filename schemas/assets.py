@@ -18,7 +18,7 @@ class AssetsFile(pa.DataFrameModel):
     - ``display_*`` is the control system's engineering range for the same signal;
     - ``max_load_ohm``, ``power``, ``supply_v``, ``min_terminal_v``, ``receiver_ohm`` and the
       ``cable_*`` columns describe the loop for the burden check;
-    - ``interval_months`` is the planned test interval.
+    - ``interval_months`` is the planned test interval, in whole months (1 to 240).
     """
 
     asset: Series[str] = pa.Field(unique=True, str_matches=ASSET_ID, str_length={"min_value": 1, "max_value": 120})
@@ -46,7 +46,12 @@ class AssetsFile(pa.DataFrameModel):
     cable_mm2: Series[float] = pa.Field(nullable=True, gt=0)
     cable_awg: Series[float] = pa.Field(nullable=True)
     cable_length_m: Series[float] = pa.Field(nullable=True, ge=0)
-    interval_months: Series[float] = pa.Field(nullable=True, gt=0)
+    #: whole months, at most 20 years (our own bound: a longer plan is taken for a typing error)
+    interval_months: Series[float] = pa.Field(nullable=True, gt=0, le=240)
+
+    @pa.check("interval_months", error="must be a whole number of months")
+    def whole_months(cls, col):  # type: ignore[no-untyped-def]
+        return col.isna() | (col % 1 == 0)
 
     @pa.dataframe_check(error="input_max must differ from input_min")
     def input_range(cls, df):  # type: ignore[no-untyped-def]

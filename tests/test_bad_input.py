@@ -217,3 +217,47 @@ def test_parsing_over_several_processes_gives_what_one_process_gives(tmp_path, p
     assert len(ahead[0]) == 7, "the files were not parsed in worker processes"
     assert parallel[2] == serial[2] and any("huge.yaml" in f and "limit" in f for f in serial[2])
     assert parallel[0].equals(serial[0]) and parallel[1].equals(serial[1])
+
+
+def _edit_asset(ev, **cells: str) -> None:
+    """Set cells of the first asset row of ``ev``/assets.csv."""
+    lines = (ev / "assets.csv").read_text(encoding="utf-8").splitlines()
+    header = lines[0].split(",")
+    row = lines[1].split(",")
+    for name, value in cells.items():
+        row[header.index(name)] = value
+    (ev / "assets.csv").write_text("\n".join([lines[0], ",".join(row), *lines[2:]]) + "\n", encoding="utf-8")
+
+
+@pytest.mark.parametrize(("cells", "field", "said"), [
+    # a negative or unreadable accuracy once left the limit empty, and every point failed against it
+    ({"accuracy": "-0.5"}, "accuracy", "must be a non-negative number"),
+    # % of range and digits are meter terms; read as zero for an asset they failed a good device
+    ({"accuracy": "0.1 %fs"}, "accuracy", "meter terms"),
+    ({"accuracy": "0.05 V"}, "accuracy", "is not in mA"),
+    # an interval of billions of months once crashed the due-date arithmetic
+    ({"interval_months": "99999999999"}, "interval_months", "must be at most 240"),
+    ({"interval_months": "1.5"}, "interval_months", "must be a whole number of months"),
+])
+def test_an_asset_row_that_gives_no_sound_limit_or_interval_is_refused(tmp_path, run_folder, cells, field, said):
+    """The row is reported at its line and field; the asset's result file is invalid (not failed, not
+    crashed) and says which row of assets.csv to put right."""
+    ev = write_evidence(tmp_path / "ev", {"good.yaml": GOOD})
+    _edit_asset(ev, **cells)
+    ctx = run_folder(ev)
+    reg = [f for f in ctx.findings if f.file == "assets.csv"]
+    assert [(f.line, f.field) for f in reg] == [(2, field)] and said in reg[0].message, [f.format() for f in reg]
+    assert ctx.tests["verdict"].tolist() == ["invalid"]
+    mine = [f for f in ctx.findings if f.file == "results/good.yaml" and f.severity == "error"]
+    assert [f.message for f in mine] == [
+        "asset 'T-CT1' has errors in its row of assets.csv (line 2): this file is judged once that row is put right"]
+
+
+def test_a_check_across_a_row_is_said_once_with_the_values_it_compares(tmp_path, run_folder):
+    """pandera lists every cell of a row that fails a check across columns; it is reported once."""
+    ev = write_evidence(tmp_path / "ev", {"good.yaml": GOOD})
+    _edit_asset(ev, input_min="5", input_max="5")
+    ctx = run_folder(ev)
+    reg = [f for f in ctx.findings if f.file == "assets.csv"]
+    assert [(f.line, f.field, f.message) for f in reg] == [
+        (2, "input_max", "input_max must differ from input_min (input_max 5, input_min 5)")]
