@@ -47,6 +47,8 @@ class RunContext:
     raw_files: dict[str, bytes] = field(default_factory=dict)
     #: asset ids of assets.csv rows dropped for errors, with their line numbers
     rejected_assets: dict[str, int] = field(default_factory=dict)
+    #: instrument ids of instruments.yaml entries dropped for errors, with the lines of their ids
+    rejected_instruments: dict[str, int] = field(default_factory=dict)
     #: names of ``extras`` entries, and ``"tests.COLUMN"`` / ``"points.COLUMN"``, that depend on the
     #: whole fleet (the fleet's as-found reliability, say): the handbook leaves them out of the context
     #: its asset, test and sheet pages are made from, so one new test does not make every page again

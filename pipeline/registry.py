@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import io
+import math
 from pathlib import Path
 from typing import Any
 
@@ -70,8 +71,9 @@ def _check_accuracy(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[Finding]]:
     return frame.drop(index=bad), findings
 
 
-def load_instruments(evidence: Path) -> tuple[pd.DataFrame, pd.DataFrame, list[Finding]]:
-    """instruments.yaml as two tables: instruments and meter ranges."""
+def load_instruments(evidence: Path) -> tuple[pd.DataFrame, pd.DataFrame, list[Finding], dict[str, int]]:
+    """instruments.yaml as two tables, instruments and meter ranges; and the ids of instruments dropped for
+    errors, with the line of each."""
     from loopledger.plugins._text import decode
     from loopledger.schemas.instruments import InstrumentsTable, MeterRanges
 
@@ -79,13 +81,20 @@ def load_instruments(evidence: Path) -> tuple[pd.DataFrame, pd.DataFrame, list[F
     empty = pd.DataFrame(columns=["instrument", "kind"]).set_index("instrument", drop=False)
     no_ranges = pd.DataFrame(columns=["instrument", "range", "accuracy", "resolution", "burden"])
     if not path.is_file():
-        return empty, no_ranges, [error(f"no {INSTRUMENTS} in the evidence folder", file=INSTRUMENTS)]
-    try:
-        doc = yaml.safe_load(decode(path.read_bytes()))
-    except (yaml.YAMLError, ValueError) as exc:
-        return empty, no_ranges, [error(f"cannot read: {exc}", file=INSTRUMENTS)]
-    if not isinstance(doc, dict):
-        return empty, no_ranges, [error("expected a mapping of instrument id -> details", file=INSTRUMENTS)]
+        return empty, no_ranges, [error(f"no {INSTRUMENTS} in the evidence folder", file=INSTRUMENTS)], {}
+    from loopledger.plugins.read_yaml import compose, key_lines
+
+    try:  # safe loading with the result files' loader: dates stay text, so one bad date is one instrument's error
+        doc, node = compose(decode(path.read_bytes()))
+    except yaml.YAMLError as exc:
+        mark = getattr(exc, "problem_mark", None)
+        return empty, no_ranges, [error(f"cannot read: {getattr(exc, 'problem', None) or exc}", file=INSTRUMENTS,
+                                        line=int(mark.line) + 1 if mark is not None else 0)], {}
+    except ValueError as exc:
+        return empty, no_ranges, [error(f"cannot read: {exc}", file=INSTRUMENTS)], {}
+    if not isinstance(doc, dict) or node is None:
+        return empty, no_ranges, [error("expected a mapping of instrument id -> details", file=INSTRUMENTS)], {}
+    at = {key: line for key, (line, _) in key_lines(node).items()}
     rows: list[dict[str, Any]] = []
     ranges: list[dict[str, Any]] = []
     findings: list[Finding] = []
@@ -106,12 +115,51 @@ def load_instruments(evidence: Path) -> tuple[pd.DataFrame, pd.DataFrame, list[F
         if col not in table.columns:
             table[col] = None
     table, more = validate(table, InstrumentsTable, lambda i: {
-        "file": INSTRUMENTS, "point": "" if i is None else f"instrument {rows[i]['instrument']}"})
+        "file": INSTRUMENTS, "line": 0 if i is None else at.get(rows[i]["instrument"], 0),
+        "point": "" if i is None else f"instrument {rows[i]['instrument']}"})
     findings += more
     range_table = pd.DataFrame(ranges, columns=["instrument", "range", "accuracy", "resolution", "burden"])
+    bad, more = _check_magnitudes(table, range_table, at)
+    findings += more
+    table = table[~table["instrument"].astype(str).isin(bad)]
+    range_table = range_table[~range_table["instrument"].astype(str).isin(bad)].reset_index(drop=True)
+    rejected = {str(r["instrument"]): at.get(str(r["instrument"]), 0) for r in rows
+                if str(r["instrument"]) not in set(table["instrument"].astype(str))}
     if not range_table.empty:
         range_table, more = validate(range_table, MeterRanges,
-                                     lambda i: {"file": INSTRUMENTS, "point": "" if i is None else
+                                     lambda i: {"file": INSTRUMENTS, "line": at.get(ranges[i]["instrument"], 0)
+                                                if i is not None else 0, "point": "" if i is None else
                                                 f"instrument {ranges[i]['instrument']} range"})
         findings += more
-    return table.set_index("instrument", drop=False).rename_axis(None), range_table, findings
+    return table.set_index("instrument", drop=False).rename_axis(None), range_table, findings, rejected
+
+
+def _check_magnitudes(table: pd.DataFrame, ranges: pd.DataFrame, at: dict[str, int]) -> tuple[set[str], list[Finding]]:
+    """The instruments whose values cannot be measured against: a shunt without a resistance above zero
+    (a negative one would turn every reading around and be taken for reversed leads), a meter range or
+    resolution that is not above zero. Each is reported at its line and left out."""
+    from loopledger import quantities as q
+
+    bad: set[str] = set()
+    findings: list[Finding] = []
+
+    def positive(ident: str, field: str, text: Any, unit: str | None, example: str) -> None:
+        try:
+            value = q.to_float(text, unit) if unit else q.parse_one(text).value
+            ok = math.isfinite(value) and value > 0
+        except ValueError:
+            ok = False
+        if not ok:
+            bad.add(ident)
+            said = "is missing" if text is None else f"'{text}' must be a quantity above zero"
+            findings.append(error(f"{field} {said} (e.g. {example})", file=INSTRUMENTS,
+                                  line=at.get(ident, 0), field=field, point=f"instrument {ident}"))
+
+    for ident, kind, resistance in zip(table["instrument"], table["kind"], table["resistance"], strict=True):
+        if kind == "shunt":
+            positive(str(ident), "resistance", resistance, "ohm", "100 ohm")
+    for ident, rng, resolution in zip(ranges["instrument"], ranges["range"], ranges["resolution"], strict=True):
+        positive(str(ident), "range", rng, None, "20 mA")
+        if resolution is not None and not (isinstance(resolution, float) and math.isnan(resolution)):
+            positive(str(ident), "resolution", resolution, None, "0.001 mA")
+    return bad, findings

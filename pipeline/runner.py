@@ -57,7 +57,7 @@ def prepare(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
                           f"(known: {', '.join(sorted(ctx.decision_rules))})")
     ctx.assets, found, ctx.rejected_assets = load_assets(opts.evidence)
     ctx.findings += _stamp(found, "registry")
-    ctx.instruments, ctx.ranges, found = load_instruments(opts.evidence)
+    ctx.instruments, ctx.ranges, found, ctx.rejected_instruments = load_instruments(opts.evidence)
     ctx.findings += _stamp(found, "registry")
     return ctx
 

@@ -34,6 +34,7 @@ def describe(check: str, case: Any) -> str:
     if check.startswith("coerce_dtype") or check.startswith("dtype"):
         wanted = check.split("(", 1)[-1].rstrip(")").strip("'")
         wanted = {"float64": "a number", "int64": "a whole number", "str": "text"}.get(wanted, wanted)
+        wanted = "a date (YYYY-MM-DD)" if wanted.startswith("datetime64") else wanted
         return f"'{case}' is not {wanted}"
     if check == "field_uniqueness" or check.startswith("unique"):
         return f"'{case}' appears more than once"

@@ -71,7 +71,7 @@ def _expanded_size(node: yaml.Node, budget: int) -> int:
     return seen
 
 
-def _compose(text: str) -> tuple[Any, yaml.Node | None]:
+def compose(text: str) -> tuple[Any, yaml.Node | None]:
     loader = Loader(text)
     try:
         node = loader.get_single_node()
@@ -83,7 +83,7 @@ def _compose(text: str) -> tuple[Any, yaml.Node | None]:
         loader.dispose()
 
 
-def _key_lines(node: yaml.Node) -> dict[str, tuple[int, yaml.Node]]:
+def key_lines(node: yaml.Node) -> dict[str, tuple[int, yaml.Node]]:
     if not isinstance(node, yaml.MappingNode):
         return {}
     return {str(k.value): (_line(k), v) for k, v in node.value if isinstance(k, yaml.ScalarNode)}
@@ -92,7 +92,7 @@ def _key_lines(node: yaml.Node) -> dict[str, tuple[int, yaml.Node]]:
 def parse(text: str, rel: str) -> ResultRead:
     findings: list[Finding] = []
     try:
-        doc, node = _compose(text)
+        doc, node = compose(text)
     except yaml.YAMLError as exc:
         mark = getattr(exc, "problem_mark", None)
         line = int(mark.line) + 1 if mark is not None else 0
@@ -106,7 +106,7 @@ def parse(text: str, rel: str) -> ResultRead:
     if not isinstance(doc, dict) or node is None:
         return ResultRead({}, [], findings=[error("expected a mapping of test fields (asset, date, ...)",
                                                   file=rel, line=1, code="yaml")])
-    lines = _key_lines(node)
+    lines = key_lines(node)
     header: dict[str, Any] = {}
     header_lines: dict[str, int] = {}
     for key, value in doc.items():
@@ -119,7 +119,7 @@ def parse(text: str, rel: str) -> ResultRead:
                 findings.append(error("expected a mapping such as {source: ID, meter: ID, shunt: ID}",
                                       file=rel, line=line, field=key))
                 continue
-            inner = _key_lines(lines[key][1])
+            inner = key_lines(lines[key][1])
             for role, ident in value.items():
                 role = str(role)
                 if role not in INSTRUMENT_ROLES:

@@ -83,7 +83,11 @@ def _check_references(ctx: RunContext, tests: pd.DataFrame, lines: dict[str, dic
         for role, ident in zip(roles, idents, strict=True):
             if ident is None or (isinstance(ident, float) and np.isnan(ident)):
                 continue
-            if ident not in kinds:
+            if ident in ctx.rejected_instruments:
+                findings.append(error(f"instrument '{ident}' has errors in instruments.yaml (line "
+                                      f"{ctx.rejected_instruments[ident]}): this file is judged once they are put "
+                                      "right", file=rel, line=at.get(role, 0), field=f"instruments.{role}"))
+            elif ident not in kinds:
                 findings.append(error(f"instrument '{ident}' is not in instruments.yaml", file=rel,
                                       line=at.get(role, 0), field=f"instruments.{role}"))
             elif kinds[ident] != INSTRUMENT_KIND[role]:

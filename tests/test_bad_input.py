@@ -261,3 +261,34 @@ def test_a_check_across_a_row_is_said_once_with_the_values_it_compares(tmp_path,
     reg = [f for f in ctx.findings if f.file == "assets.csv"]
     assert [(f.line, f.field, f.message) for f in reg] == [
         (2, "input_max", "input_max must differ from input_min (input_max 5, input_min 5)")]
+
+
+def _instruments_text(ev, old: str, new: str) -> None:
+    text = (ev / "instruments.yaml").read_text(encoding="utf-8")
+    assert old in text, text
+    (ev / "instruments.yaml").write_text(text.replace(old, new, 1), encoding="utf-8")
+
+
+@pytest.mark.parametrize(("method", "old", "new", "ident", "field", "said"), [
+    # an impossible date once made instruments.yaml unreadable as a whole, and every result file invalid
+    ("direct", "due: '2027-01-01'", "due: 2027-13-45", "SRC-1", "due", "'2027-13-45' is not a date (YYYY-MM-DD)"),
+    # a negative shunt once turned every reading around, taken for reversed leads and failed
+    ("shunt", "resistance: 100 ohm", "resistance: -100 ohm", "SH-100", "resistance", "must be a quantity above zero"),
+    ("direct", "resolution: 0.001 mA", "resolution: 0 mA", "DMM-1", "resolution", "must be a quantity above zero"),
+])
+def test_an_instrument_that_cannot_be_measured_against_is_refused(tmp_path, run_folder, method, old, new, ident,
+                                                                 field, said):
+    """That instrument alone is reported, at the line of its id; the result file that used it is invalid
+    and names it (rather than failing, or saying the instrument is not there)."""
+    ev = write_evidence(tmp_path / "ev", {"used.yaml": result_yaml(method=method, as_found=good_points(
+        0.01, shunt=method == "shunt"), instruments={"source": "SRC-1", "meter": "DMM-1",
+                                                     **({"shunt": "SH-100"} if method == "shunt" else {})})})
+    _instruments_text(ev, old, new)
+    lines = (ev / "instruments.yaml").read_text(encoding="utf-8").splitlines()
+    ctx = run_folder(ev)
+    reg = [f for f in ctx.findings if f.file == "instruments.yaml"]
+    assert [(f.line, f.field, f.point) for f in reg] == [(lines.index(f"{ident}:") + 1, field, f"instrument {ident}")]
+    assert said in reg[0].message, reg[0].format()
+    assert ctx.tests["verdict"].tolist() == ["invalid"]
+    mine = [f.message for f in ctx.findings if f.file == "results/used.yaml" and f.severity == "error"]
+    assert any(m.startswith(f"instrument '{ident}' has errors in instruments.yaml (line ") for m in mine), mine
