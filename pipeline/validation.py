@@ -44,7 +44,8 @@ def describe(check: str, case: Any) -> str:
     if bound:
         return f"'{case}' must be {_BOUNDS[bound.group(1)]} {bound.group(2)}"
     if check.startswith("str_length"):
-        return f"'{case}' is too long or empty (allowed: {check[len('str_length'):].strip('()').replace(', ', ' to ')} characters)"
+        allowed = check[len("str_length"):].strip("()").replace(", ", " to ")
+        return f"'{case}' is too long or empty (allowed: {allowed} characters)"
     if check == "column_in_dataframe":
         return f"column '{case}' is missing"
     return f"'{case}' fails the check: {check}"
