@@ -44,8 +44,10 @@ def describe(check: str, case: Any) -> str:
     if bound:
         return f"'{case}' must be {_BOUNDS[bound.group(1)]} {bound.group(2)}"
     if check.startswith("str_length"):
-        allowed = check[len("str_length"):].strip("()").replace(", ", " to ")
-        return f"'{case}' is too long or empty (allowed: {allowed} characters)"
+        low, _, high = check[len("str_length"):].strip("()").partition(", ")
+        if high == "None":
+            return "is empty"
+        return f"'{case}' is too long or empty (allowed: {low} to {high} characters)"
     if check == "column_in_dataframe":
         return f"column '{case}' is missing"
     return f"'{case}' fails the check: {check}"
@@ -66,6 +68,10 @@ def validate(frame: pd.DataFrame, model: Any, where: Callable[[Any], dict[str, A
     ``where(index)`` returns the finding fields (file, line, point) of a row.
     Rows that fail are dropped from the returned (coerced) frame; every failure
     becomes one finding naming the row and field.
+
+    A failure pandera cannot pin on a row (a missing column, say) fails every row, but only once the
+    rows that failed on their own are set aside: a cell that cannot be coerced ('warm' for a number)
+    also makes the column's range check fail as a whole, and that must not drop every other row.
     """
     import pandera.errors
 
@@ -76,6 +82,7 @@ def validate(frame: pd.DataFrame, model: Any, where: Callable[[Any], dict[str, A
         cases = exc.failure_cases
     findings: list[Finding] = []
     bad_rows: set[Any] = set()
+    wholes: list[Finding] = []
     said: set[tuple[str, Any, str]] = set()  # pandera reports a cell it cannot coerce twice (coerce, dtype)
     for case in cases.itertuples(index=False):
         column = str(case.column) if case.column is not None and str(case.column) != "None" else ""
@@ -91,12 +98,16 @@ def validate(frame: pd.DataFrame, model: Any, where: Callable[[Any], dict[str, A
             continue
         said.add((column, None if whole else index, message))
         if whole:
-            findings.append(error(message, field=column, **where(None)))
-            bad_rows.update(frame.index)
+            wholes.append(error(message, field=column, **where(None)))
             continue
         bad_rows.add(index)
         findings.append(error(message, field=column, **where(index)))
     kept = frame.drop(index=[i for i in bad_rows if i in frame.index])
+    if wholes and bad_rows and not kept.empty:  # were they only the echo of the rows set aside?
+        rest, more = validate(kept, model, where)
+        return rest, findings + more
+    if wholes:
+        return frame.iloc[0:0], findings + wholes
     if kept.empty:
         return kept, findings
     return schema.validate(kept, lazy=False), findings

@@ -4,8 +4,13 @@ from __future__ import annotations
 
 import numpy as np
 from loopledger.context import RunContext
-from loopledger.findings import Finding, error
+from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl
+from loopledger.plugins.scaling import where
+
+#: inputs this far outside the asset's range are flagged (bounds of our own: over-range points to 120 %
+#: are common practice; beyond these the expected output is an extrapolation the output stage may not follow)
+OUTSIDE_PCT = (-5.0, 125.0)
 
 
 @hookimpl
@@ -35,4 +40,9 @@ def evaluate_all(ctx: RunContext) -> list[Finding]:
         for col in frame.columns:
             pts.loc[idx, col] = frame[col]
     ctx.points = pts
+    low, high = OUTSIDE_PCT
+    outside = pts.index[(pts["input_pct"] < low) | (pts["input_pct"] > high)]
+    findings += [warning(f"input at {pts.at[i, 'input_pct']:.0f} % of the asset's input range: outside it the "
+                         "expected output is extrapolated, and a 4-20 mA output stops near 3.8 and 20.5 mA "
+                         "(NE 43); check the input written", field="input", **where(pts, i)) for i in outside]
     return findings

@@ -17,6 +17,9 @@ from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.validation import validate
 
+#: the earliest test date taken as real (a bound of our own, well before 4-20 mA loops were in use;
+#: a year 0001 once reached date arithmetic that cannot hold it)
+EARLIEST = dt.date(1950, 1, 1)
 INSTRUMENT_KIND = {"source": "source", "meter": "meter", "shunt": "shunt"}
 
 
@@ -40,11 +43,21 @@ def check_tests(ctx: RunContext) -> list[Finding]:
 
     checked, findings = validate(valid, TestHeader, where)
     findings = [_with_line(f, lines) for f in findings]
+    named = {f.file for f in findings if f.file}
+    unpinned = "; ".join(f.message for f in findings if not f.file)
+    for idx in valid.index.difference(checked.index):  # never left valid without its header checked
+        rel = valid.at[idx, "source_file"]
+        if rel not in named:
+            findings.append(error(f"the header could not be checked ({unpinned or 'no reason given'})", file=rel))
     today = dt.date.today()
     dates = pd.to_datetime(checked["date"].astype(str).str.slice(0, 10), format="%Y-%m-%d", errors="coerce")
     for idx in checked.index[dates.dt.date > today]:
         rel = checked.at[idx, "source_file"]
         findings.append(error(f"date {checked.at[idx, 'date']} is in the future", file=rel,
+                              line=lines.get(rel, {}).get("date", 0), field="date"))
+    for idx in checked.index[dates.dt.date < EARLIEST]:
+        rel = checked.at[idx, "source_file"]
+        findings.append(error(f"date {checked.at[idx, 'date']} is before {EARLIEST.year}: a typing error?", file=rel,
                               line=lines.get(rel, {}).get("date", 0), field="date"))
     checked["date"] = dates.dt.strftime("%Y-%m-%d")
     findings += _check_references(ctx, checked, lines)
@@ -234,5 +247,18 @@ def ll_check(ctx: RunContext) -> list[Finding]:
     ctx.invalidate({f.file for f in findings if f.severity == "error"})
     findings += check_points(ctx)
     ctx.invalidate({f.file for f in findings if f.severity == "error"})
+    findings += _without_points(ctx)
+    ctx.invalidate({f.file for f in findings if f.severity == "error"})
     join(ctx)
     return findings
+
+
+def _without_points(ctx: RunContext) -> list[Finding]:
+    """A still-valid test with no point to judge is an error: it has no verdict to give (such a file once
+    went through with none, neither passed nor failed nor listed as invalid)."""
+    valid = ctx.tests[ctx.tests["valid"].astype(bool)]
+    has = set(ctx.points["source_file"]) if len(ctx.points) else set()
+    lines = ctx.extras.get("header_lines", {})
+    return [error("no readings: as_found and as_left are both empty", file=rel,
+                  line=lines.get(rel, {}).get("as_found", 0), field="as_found")
+            for rel in valid["source_file"] if rel not in has]

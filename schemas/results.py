@@ -23,8 +23,11 @@ from pandera.typing import Series
 def _is_iso_date(series):  # type: ignore[no-untyped-def]
     import pandas as pd
 
-    text = series.astype(str).str.slice(0, 10)
-    return pd.to_datetime(text, format="%Y-%m-%d", errors="coerce").notna()
+    # the whole text: "2026-03-04T10:30" once passed here as its first ten characters, and its points,
+    # which keep the text as written, then broke the date arithmetic of the history stage
+    text = series.astype(str).str.strip()
+    shaped = text.str.fullmatch(r"\d{4}-\d{2}-\d{2}")
+    return shaped & pd.to_datetime(text.where(shaped, ""), format="%Y-%m-%d", errors="coerce").notna()
 
 
 class TestHeader(pa.DataFrameModel):

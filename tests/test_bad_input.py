@@ -292,3 +292,45 @@ def test_an_instrument_that_cannot_be_measured_against_is_refused(tmp_path, run_
     assert ctx.tests["verdict"].tolist() == ["invalid"]
     mine = [f.message for f in ctx.findings if f.file == "results/used.yaml" and f.severity == "error"]
     assert any(m.startswith(f"instrument '{ident}' has errors in instruments.yaml (line ") for m in mine), mine
+
+
+def test_a_word_where_a_number_belongs_does_not_stop_the_other_files_being_checked(tmp_path, run_folder):
+    """'warm' for ambient_c cannot be coerced, so pandera's range check on that column fails as a whole;
+    that once dropped every file's header from the check, and a file naming an unknown asset went through
+    unchecked. Each file must get its own finding."""
+    ev = write_evidence(tmp_path / "ev", {
+        "good.yaml": GOOD,
+        "warm.yaml": result_yaml(as_found=good_points(), date="2026-03-02", ambient_c="warm"),
+        "ghost.yaml": result_yaml(asset="NOPE-1", as_found=good_points(), date="2026-03-03")})
+    ctx = run_folder(ev)
+    verdicts = ctx.tests.set_index("source_file")["verdict"].to_dict()
+    assert verdicts == {"results/good.yaml": "pass", "results/warm.yaml": "invalid", "results/ghost.yaml": "invalid"}
+    said = {(f.file, f.field, f.message) for f in ctx.findings if f.severity == "error"}
+    assert said == {("results/warm.yaml", "ambient_c", "ambient_c 'warm' is not a number"),
+                    ("results/ghost.yaml", "asset", "asset 'NOPE-1' is not in assets.csv")}
+
+
+@pytest.mark.parametrize(("header", "field", "said"), [
+    ({"date": "2026-03-04T10:30:00"}, "date", "a real date written YYYY-MM-DD"),
+    ({"date": "0001-01-01"}, "date", "before 1950"),
+    ({"ambient_c": 1e6}, "ambient_c", "must be at most 90"),
+])
+def test_header_values_no_test_could_have(tmp_path, run_folder, header, field, said):
+    text = result_yaml(as_found=good_points(), **{"date": "2026-03-04", **header})
+    errs = _run(tmp_path, "bad.yaml", text, run_folder)
+    assert said in _one(errs, field).message
+
+
+def test_a_file_without_readings_is_invalid_not_left_without_a_verdict(tmp_path, run_folder):
+    errs = _run(tmp_path, "empty.yaml", result_yaml(as_found=[], date="2026-03-04"), run_folder)
+    assert _one(errs, "as_found").message == "no readings: as_found and as_left are both empty"
+
+
+def test_an_input_far_outside_the_range_is_flagged(tmp_path, run_folder):
+    # -0.6 A on the fixture's 0-1 A input is -60 % of the range: a typing error more often than a test point
+    pts = [("-0.6 A", "4.00 mA"), *good_points()[1:]]
+    ev = write_evidence(tmp_path / "ev", {"t.yaml": result_yaml(as_found=pts)})
+    ctx = run_folder(ev)
+    flagged = [f for f in ctx.findings if f.field == "input" and f.severity == "warning"]
+    assert [(f.point, f.message.split(":")[0]) for f in flagged] == [
+        ("as_found #1", "input at -60 % of the asset's input range")]
