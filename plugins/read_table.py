@@ -40,6 +40,11 @@ def _table(path: Path, data: bytes) -> Table:
     header = next(reader, None)
     if header is None:
         return [], []
+    if len(header) == 1:
+        sep = next((s for s in (";", "\t", "|") if s in header[0]), None)
+        if sep is not None:  # a sheet saved where the list separator is ';' (and the decimal mark, a comma)
+            raise BadShape(f"the columns are separated by {'tabs' if sep == chr(9) else repr(sep)}, not commas: save "
+                           "the sheet as comma-separated CSV with '.' as the decimal mark, or write it as YAML", 1)
     rows: list[tuple[int, list[str]]] = []
     start = 2
     for cells in reader:
@@ -51,12 +56,19 @@ def _table(path: Path, data: bytes) -> Table:
     return header, rows
 
 
-class RaggedRow(ValueError):
+class BadShape(ValueError):
+    """A table that cannot be split into its cells as written, at ``line``."""
+
+    def __init__(self, message: str, line: int) -> None:
+        super().__init__(message)
+        self.line = line
+
+
+class RaggedRow(BadShape):
     """A row longer or shorter than the header (a reader that shifted or dropped cells would invent data)."""
 
     def __init__(self, line: int, cells: int, header: int) -> None:
-        super().__init__(f"row has {cells} cells but the header row has {header}")
-        self.line = line
+        super().__init__(f"row has {cells} cells but the header row has {header}", line)
 
 
 def parse(table: Table, rel: str) -> ResultRead:
@@ -122,7 +134,7 @@ def ll_read_result(path: Path, rel: str, data: bytes) -> ResultRead | None:
         return None
     try:
         table = _table(path, data)
-    except RaggedRow as exc:
+    except BadShape as exc:
         return ResultRead({}, [], findings=[error(str(exc), file=rel, line=exc.line, code="table")])
     except ValueError as exc:
         return ResultRead({}, [], findings=[error(str(exc), file=rel, code="encoding")])

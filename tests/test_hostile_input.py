@@ -161,6 +161,10 @@ CASES = [
          ["bad/rag.csv:2", "error", "row has 14 cells but the header row has 12"]),
     Case("csv-bad-phase", "bad/ph.csv", _b(_csv([("0 %", "4.01 mA")]).replace("as_found", "as_fnd")),
          ["bad/ph.csv:2", "field 'phase'", "as_fnd"]),
+    # a spreadsheet saved where the list separator is ';' (with decimal commas, as often as not)
+    Case("csv-semicolons", "bad/semi.csv",
+         _b(_csv([("0 %", "4.01 mA"), ("50 %", "12.01 mA")]).replace(",", ";").replace(".01 mA", ",01 mA")),
+         ["bad/semi.csv:1", "error", "separated by ';', not commas"]),
 ]
 
 
