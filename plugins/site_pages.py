@@ -319,6 +319,10 @@ TEST_COLS = ["test", "page", "asset", "asset_page", "date", "technician", "verdi
              "source_file", "reference_out_of_cal", "reference_issues", "valid"]
 
 
+#: the evidence folder's files that are not result files: a problem in one is shown on the index page
+REGISTERS = ("assets.csv", "instruments.yaml", "loopledger.toml")
+
+
 def index_data(ctx: RunContext, assets: pd.DataFrame, tests: pd.DataFrame) -> dict[str, Any]:
     groups = []
     filled = assets.assign(site=assets["site"].fillna("").astype(str), area=assets["area"].fillna("").astype(str)) \
@@ -334,7 +338,8 @@ def index_data(ctx: RunContext, assets: pd.DataFrame, tests: pd.DataFrame) -> di
     return {"counts": counts(assets), "groups": groups,
             "action": {"failed": records(failed, ASSET_COLS), "overdue": records(overdue, ASSET_COLS),
                        "predicted": records(predicted, ASSET_COLS),
-                       "reference": records(ref, TEST_COLS), "invalid": records(invalid, TEST_COLS)},
+                       "reference": records(ref, TEST_COLS), "invalid": records(invalid, TEST_COLS),
+                       "registers": [f.format() for f in ctx.findings if f.file in REGISTERS]},
             "history_available": isinstance(ctx.extras.get("assets_summary"), pd.DataFrame)}
 
 

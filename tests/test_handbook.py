@@ -535,3 +535,15 @@ def test_page_names_are_unique_and_stable():
     assert all(n.startswith("a_b-") for n in names[:3])
     assert sp.page_names(["a b", "a_b"]) == names[:2]
     assert sp.page_names(["a b"]) == ["a_b"]
+
+
+def test_register_problems_are_shown_on_the_index(tmp_path):
+    """A row of assets.csv left out for an error is said on the index page, so a reader of the handbook alone
+    learns why that asset is missing from it (it was shown on the terminal only)."""
+    ev = write_evidence(tmp_path / "ev", {"t.yaml": result_yaml(as_found=good_points())},
+                        assets=[CT_ASSET, {**CT_ASSET, "asset": "T-BAD", "accuracy": "-1"}])
+    assert main(["run", str(ev), "--out", str(tmp_path / "out")]) == 2
+    page = html.unescape((tmp_path / "out" / "handbook" / "index.html").read_text(encoding="utf-8"))
+    assert "Problems in the registers (1)" in page
+    assert "assets.csv:3: error: accuracy '-1': accuracy term '-1' must be a non-negative number" in page
+    assert "T-BAD" not in page.split("Assets by site and area")[1]  # left out of the register's table
