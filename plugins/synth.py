@@ -138,10 +138,18 @@ def _add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def _run(args: argparse.Namespace) -> int:
+    import datetime as dt
     import sys
+
+    from loopledger.plugins.schema_check import EARLIEST
 
     if args.assets < 1 or args.years < 1:
         sys.stderr.write("loopledger synth: --assets and --years must be at least 1\n")
+        return 3
+    if args.last_year >= dt.date.today().year or args.last_year - args.years + 1 < EARLIEST.year:
+        # the schema check refuses dates in the future and before EARLIEST: the fleet must pass it
+        sys.stderr.write(f"loopledger synth: the tests must fall between {EARLIEST.year} and last year "
+                         f"(--last-year {args.last_year}, --years {args.years})\n")
         return 3
     if (args.out_dir / "results").exists():
         sys.stderr.write(f"loopledger synth: '{args.out_dir}' already holds results/; choose an empty folder\n")
