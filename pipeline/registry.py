@@ -16,6 +16,14 @@ ASSETS = "assets.csv"
 INSTRUMENTS = "instruments.yaml"
 
 
+def absent(what: str, ident: str, rejected: dict[str, int], where: object) -> str:
+    """Why ``ident`` is not among the loaded assets or instruments: left out for errors at a line of
+    ``where``, or not there at all (for the commands that look one up by name)."""
+    if ident in rejected:
+        return f"{what} '{ident}' has errors in {where} (line {rejected[ident]}): put them right first"
+    return f"{what} '{ident}' is not in {where}"
+
+
 def load_assets(evidence: Path) -> tuple[pd.DataFrame, list[Finding], dict[str, int]]:
     """assets.csv validated against :class:`AssetsFile`; bad rows are dropped and reported, and returned
     as the ids they gave with their line numbers (so a result file of such an asset can say why it is not

@@ -409,14 +409,15 @@ def _run(args: argparse.Namespace, out: Callable[[str], Any] | None = None) -> i
     from loopledger.commands.check import find_evidence
     from loopledger.config import ConfigError
     from loopledger.host import get_plugin_manager
+    from loopledger.registry import absent
 
     out = out or sys.stdout.write
     evidence = args.evidence or find_evidence([Path.cwd()])
     ctx = runner.prepare(runner.RunOptions(evidence), get_plugin_manager())
     if args.asset not in ctx.assets.index:
-        raise ConfigError(f"asset '{args.asset}' is not in {evidence / 'assets.csv'}")
+        raise ConfigError(absent("asset", args.asset, ctx.rejected_assets, evidence / "assets.csv"))
     if args.meter and args.meter not in ctx.instruments.index:
-        raise ConfigError(f"meter '{args.meter}' is not in {evidence / 'instruments.yaml'}")
+        raise ConfigError(absent("meter", args.meter, ctx.rejected_instruments, evidence / "instruments.yaml"))
     shunt_ohm, shunt_id = _shunt_plan(ctx, args.shunt) if args.shunt else (None, None)
     plan = {"method": "shunt" if args.shunt else "direct" if args.meter else "display", "shunt_ohm": shunt_ohm,
             "shunt": shunt_id, "meter": args.meter, "connection": "in-loop" if args.in_loop else "standalone",

@@ -511,13 +511,14 @@ def _sheet_run(args: argparse.Namespace) -> int:
     from loopledger.commands.run import overrides
     from loopledger.config import ConfigError
     from loopledger.host import get_plugin_manager
+    from loopledger.registry import absent
 
     # made from what the handbook's sheet page is made from, so a plugin's sheet blocks see the same here
     ctx = runner.run(runner.RunOptions(args.evidence, overrides=overrides(args)), get_plugin_manager()).page_view()
     if args.asset not in ctx.assets.index:
-        raise ConfigError(f"asset '{args.asset}' is not in {args.evidence / 'assets.csv'}")
+        raise ConfigError(absent("asset", args.asset, ctx.rejected_assets, args.evidence / "assets.csv"))
     if args.meter and args.meter not in ctx.instruments.index:
-        raise ConfigError(f"meter '{args.meter}' is not in {args.evidence / 'instruments.yaml'}")
+        raise ConfigError(absent("meter", args.meter, ctx.rejected_instruments, args.evidence / "instruments.yaml"))
     if args.shunt is not None and not args.shunt > 0:
         raise ConfigError("--shunt must be a resistance in ohms greater than zero")
     plan = sp.default_plan(ctx, args.asset, sp.test_table(ctx))

@@ -174,6 +174,7 @@ def _run(args: argparse.Namespace) -> int:
     from loopledger.commands.run import overrides
     from loopledger.config import ConfigError
     from loopledger.host import get_plugin_manager
+    from loopledger.registry import absent
 
     since = None
     if args.since:
@@ -185,7 +186,8 @@ def _run(args: argparse.Namespace) -> int:
     ctx = runner.run(runner.RunOptions(evidence, overrides=overrides(args)), get_plugin_manager())
     if args.instrument not in ctx.instruments.index:
         known = ", ".join(sorted(ctx.instruments.index)) or "none"
-        raise ConfigError(f"instrument '{args.instrument}' is not in instruments.yaml (known: {known})")
+        raise ConfigError(absent("instrument", args.instrument, ctx.rejected_instruments, "instruments.yaml")
+                          + ("" if args.instrument in ctx.rejected_instruments else f" (known: {known})"))
     table, since = impacted(ctx, args.instrument, since)
     w = sys.stdout.write
     w(f"Tests that used {args.instrument} " + (f"since {since.isoformat()}" if since else "(all dates)")

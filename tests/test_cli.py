@@ -7,7 +7,7 @@ import csv
 import pytest
 from loopledger.cli import main
 
-from tests.evidence import good_points, result_yaml, write_evidence
+from tests.evidence import CT_ASSET, good_points, result_yaml, write_evidence
 
 
 def _rows(path):
@@ -149,3 +149,14 @@ def test_staging_folders_a_killed_run_left_are_cleared_by_the_next(tmp_path):
         (out / name / "tests" / "half.html").write_text("<p>half a page", encoding="utf-8")
     assert main(["run", str(ev), "--out", str(out), "--no-cache"]) == 0
     assert sorted(p.name for p in out.iterdir()) == ["data", "handbook"]
+
+
+def test_a_command_naming_an_asset_left_out_for_errors_says_so(tmp_path, capsys):
+    """`loop` and `sheet` look an asset up by name: one whose assets.csv row has errors is named with its line,
+    not reported as missing from the file it is in."""
+    ev = write_evidence(tmp_path / "ev", {"t.yaml": result_yaml(as_found=good_points())},
+                        assets=[CT_ASSET, {**CT_ASSET, "asset": "T-BAD", "interval_months": "0.5"}])
+    for command in (["loop", "T-BAD"], ["sheet", "T-BAD"]):
+        assert main([*command, "--evidence", str(ev)]) == 3
+        said = capsys.readouterr().err
+        assert f"asset 'T-BAD' has errors in {ev / 'assets.csv'} (line 3): put them right first" in said, said
