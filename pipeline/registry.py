@@ -90,7 +90,7 @@ def load_instruments(evidence: Path) -> tuple[pd.DataFrame, pd.DataFrame, list[F
     no_ranges = pd.DataFrame(columns=["instrument", "range", "accuracy", "resolution", "burden"])
     if not path.is_file():
         return empty, no_ranges, [error(f"no {INSTRUMENTS} in the evidence folder", file=INSTRUMENTS)], {}
-    from loopledger.plugins.read_yaml import compose, key_lines
+    from loopledger.plugins.read_yaml import DuplicateKey, compose, key_lines
 
     try:  # safe loading with the result files' loader: dates stay text, so one bad date is one instrument's error
         doc, node = compose(decode(path.read_bytes()))
@@ -98,6 +98,8 @@ def load_instruments(evidence: Path) -> tuple[pd.DataFrame, pd.DataFrame, list[F
         mark = getattr(exc, "problem_mark", None)
         return empty, no_ranges, [error(f"cannot read: {getattr(exc, 'problem', None) or exc}", file=INSTRUMENTS,
                                         line=int(mark.line) + 1 if mark is not None else 0)], {}
+    except DuplicateKey as exc:  # two entries for one id: which is the instrument used cannot be told
+        return empty, no_ranges, [error(f"cannot read: {exc}", file=INSTRUMENTS, line=exc.line)], {}
     except ValueError as exc:
         return empty, no_ranges, [error(f"cannot read: {exc}", file=INSTRUMENTS)], {}
     if not isinstance(doc, dict) or node is None:

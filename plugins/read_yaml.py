@@ -71,6 +71,38 @@ def _expanded_size(node: yaml.Node, budget: int) -> int:
     return seen
 
 
+class DuplicateKey(ValueError):
+    """A mapping that gives the same key twice (YAML loaders keep the last silently: a second ``reading``
+    in a point would replace the first without a word)."""
+
+    def __init__(self, key: str, first: int, again: int) -> None:
+        lines = f"line {again}" if first == again else f"lines {first} and {again}"
+        super().__init__(f"'{key}' is given twice in one mapping ({lines}): keep the one meant")
+        self.line = again
+
+
+def _no_duplicate_keys(node: yaml.Node) -> None:
+    """Raise :class:`DuplicateKey` for the first mapping of ``node`` that repeats a key (aliases are not
+    followed: a document with anchors is bounded by :data:`MAX_NODES` first)."""
+    stack = [node]
+    seen_nodes: set[int] = set()
+    while stack:
+        item = stack.pop()
+        if id(item) in seen_nodes:
+            continue
+        seen_nodes.add(id(item))
+        if isinstance(item, yaml.MappingNode):
+            keys: dict[str, int] = {}
+            for key, value in item.value:
+                if isinstance(key, yaml.ScalarNode) and key.tag != "tag:yaml.org,2002:merge":
+                    if key.value in keys:
+                        raise DuplicateKey(key.value, keys[key.value], _line(key))
+                    keys[key.value] = _line(key)
+                stack.append(value)
+        elif isinstance(item, yaml.SequenceNode):
+            stack.extend(item.value)
+
+
 def compose(text: str) -> tuple[Any, yaml.Node | None]:
     loader = Loader(text)
     try:
@@ -78,6 +110,8 @@ def compose(text: str) -> tuple[Any, yaml.Node | None]:
         if node is not None and "&" in text and _expanded_size(node, MAX_NODES) > MAX_NODES:
             raise AliasBomb(f"YAML anchors and aliases expand to more than {MAX_NODES:,} values (an alias "
                             "bomb?); write the values out")
+        if node is not None:
+            _no_duplicate_keys(node)
         return (loader.construct_document(node) if node is not None else None), node
     finally:
         loader.dispose()
@@ -101,6 +135,8 @@ def parse(text: str, rel: str) -> ResultRead:
                                                   code="yaml")])
     except AliasBomb as exc:
         return ResultRead({}, [], findings=[error(str(exc), file=rel, code="yaml-alias")])
+    except DuplicateKey as exc:
+        return ResultRead({}, [], findings=[error(str(exc), file=rel, line=exc.line, code="yaml-duplicate")])
     except ValueError as exc:  # e.g. an explicit !!timestamp that is not a date
         return ResultRead({}, [], findings=[error(f"YAML value cannot be read: {exc}", file=rel, code="yaml")])
     if not isinstance(doc, dict) or node is None:

@@ -334,3 +334,18 @@ def test_an_input_far_outside_the_range_is_flagged(tmp_path, run_folder):
     flagged = [f for f in ctx.findings if f.field == "input" and f.severity == "warning"]
     assert [(f.point, f.message.split(":")[0]) for f in flagged] == [
         ("as_found #1", "input at -60 % of the asset's input range")]
+
+
+def test_an_instrument_id_given_twice_is_an_error_at_its_line(tmp_path, run_folder):
+    """Two entries under one id: the YAML loader would keep the second silently, and which of the two was
+    the instrument used could not be told."""
+    ev = write_evidence(tmp_path / "ev", {"good.yaml": GOOD})
+    text = (ev / "instruments.yaml").read_text(encoding="utf-8")
+    (ev / "instruments.yaml").write_text(text + "DMM-1:\n  kind: meter\n", encoding="utf-8")
+    line = len(text.splitlines()) + 1
+    ctx = run_folder(ev)
+    reg = [f for f in ctx.findings if f.file == "instruments.yaml"]
+    assert [(f.line, f.message) for f in reg] == [
+        (line, f"cannot read: 'DMM-1' is given twice in one mapping (lines {text.splitlines().index('DMM-1:') + 1} "
+               f"and {line}): keep the one meant")]
+    assert ctx.tests["verdict"].tolist() == ["invalid"]

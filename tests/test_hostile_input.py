@@ -161,6 +161,13 @@ CASES = [
          ["bad/rag.csv:2", "error", "row has 14 cells but the header row has 12"]),
     Case("csv-bad-phase", "bad/ph.csv", _b(_csv([("0 %", "4.01 mA")]).replace("as_found", "as_fnd")),
          ["bad/ph.csv:2", "field 'phase'", "as_fnd"]),
+    # YAML loaders keep the last of two equal keys without a word: a second reading replaced the first
+    Case("duplicate-key-in-point", "bad/dupr.yaml",
+         _b(_yaml_points("{input: 0 %, reading: 4.01 mA, reading: 9.9 mA}", *FIVE[1:])),
+         ["bad/dupr.yaml:9", "error", "'reading' is given twice in one mapping (line 9)"]),
+    Case("duplicate-key-in-header", "bad/dupd.yaml",
+         _b(_yaml_points(*FIVE).replace("date: 2026-05-01\n", "date: 2026-05-01\ndate: 2026-05-02\n")),
+         ["bad/dupd.yaml:3", "error", "'date' is given twice in one mapping (lines 2 and 3)"]),
     # a spreadsheet saved where the list separator is ';' (with decimal commas, as often as not)
     Case("csv-semicolons", "bad/semi.csv",
          _b(_csv([("0 %", "4.01 mA"), ("50 %", "12.01 mA")]).replace(",", ";").replace(".01 mA", ",01 mA")),
