@@ -168,6 +168,9 @@ CASES = [
     Case("duplicate-key-in-header", "bad/dupd.yaml",
          _b(_yaml_points(*FIVE).replace("date: 2026-05-01\n", "date: 2026-05-01\ndate: 2026-05-02\n")),
          ["bad/dupd.yaml:3", "error", "'date' is given twice in one mapping (lines 2 and 3)"]),
+    # caps lock: 'MA' is mega-amperes, which pint converts faithfully; a 4-20 mA output cannot give 4e9 mA
+    Case("mega-for-milli", "bad/mega.yaml", _b(_yaml_points("{input: 0 %, reading: 4.01 MA}", *FIVE[1:])),
+         ["bad/mega.yaml:9", "error", "reading '4.01 MA' is 4.01e+09 mA, beyond anything a 4-20 mA output"]),
     # a spreadsheet saved where the list separator is ';' (with decimal commas, as often as not)
     Case("csv-semicolons", "bad/semi.csv",
          _b(_csv([("0 %", "4.01 mA"), ("50 %", "12.01 mA")]).replace(",", ";").replace(".01 mA", ",01 mA")),
