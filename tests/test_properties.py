@@ -8,7 +8,9 @@ Properties, and where each comes from:
   flow is common practice), checked against numpy's own sqrt;
 - the error is zero when the reading equals the expected output (error = measured − expected,
   the definition in ILAC-G8:2019 / JCGM 200:2012 2.16 "measurement error");
-- no valid record makes a stage raise, and every valid record is judged.
+- no valid record makes a stage raise, and every valid record is judged;
+- a field replaced by any value at all leaves that file judged or listed as invalid with an error naming it,
+  and a good file beside it judged (issue 8's rule that bad input never hides or spares other evidence).
 Records are invented (plumbing fixtures), never reference values.
 """
 
@@ -21,7 +23,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 from loopledger import runner
 from loopledger.host import get_plugin_manager
@@ -124,3 +126,36 @@ def test_no_valid_record_makes_a_stage_raise(recs: list[dict[str, object]]) -> N
     assert set(ctx.tests["verdict"]) <= {"pass", "fail", "adjusted"}
     assert len(ctx.tests) == len(recs)
     assert ctx.points["error"].notna().all() and ctx.points["mpe"].notna().all()
+
+
+#: any value a spreadsheet or a hand-edited file might put in a field
+hostile = st.one_of(st.text(max_size=12), st.floats(allow_nan=True, allow_infinity=True),
+                    st.integers(-10**15, 10**15), st.none(), st.booleans(),
+                    st.lists(st.integers(0, 9), max_size=2), st.dictionaries(st.text(max_size=3), st.integers(),
+                                                                            max_size=1))
+HEADER_FIELDS = ["asset", "date", "technician", "connection", "method", "injection", "ambient_c"]
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.lists(st.tuples(st.sampled_from([*HEADER_FIELDS, "input", "reading"]), hostile), min_size=1, max_size=4))
+@example(damage=[("ambient_c", "warm"), ("asset", 12345)])  # the case that once went through unchecked
+def test_a_damaged_field_never_hides_or_spares_another_file(damage: list[tuple[str, object]]) -> None:
+    """Each file with one field replaced by anything at all is judged or listed as invalid with an error
+    naming it (never left without a verdict), and a good file beside them is still judged. Once, a word
+    in one file's ambient_c made the header check of every file quietly drop out."""
+    good = [("0 %", "4.0000 mA"), ("50 %", "12.0000 mA"), ("100 %", "20.0000 mA")]
+    results = {"good.yaml": result_yaml(as_found=good, date="2026-01-01")}
+    for i, (name, value) in enumerate(damage):
+        if name in ("input", "reading"):
+            point = {"input": "50 %", "reading": "12.0000 mA", name: value}
+            pts = [good[0], (point["input"], point["reading"]), good[2]]
+            results[f"d{i}.yaml"] = result_yaml(as_found=pts, date=f"2025-0{i + 1}-01")  # type: ignore[arg-type]
+        else:
+            results[f"d{i}.yaml"] = result_yaml(as_found=good, **{"date": f"2025-0{i + 1}-01", name: value})
+    ctx = _run(results, [CT_ASSET])
+    verdicts = ctx.tests.set_index("source_file")["verdict"].to_dict()
+    assert verdicts.pop("results/good.yaml") == "pass"
+    named = {f.file for f in ctx.findings if f.severity == "error"}
+    for rel, verdict in verdicts.items():
+        assert verdict in {"pass", "fail", "adjusted", "invalid"}, (rel, verdict)
+        assert (verdict == "invalid") == (rel in named), (rel, verdict, [f.format() for f in ctx.findings])
