@@ -147,7 +147,7 @@ def prior_reliability(tests: pd.DataFrame, assets: pd.DataFrame) -> pd.DataFrame
     test's date, ``in_tolerance`` of them passing, ``eopr`` their ratio (NaN when ``n`` is 0)."""
     t = tests.reindex(columns=list(dict.fromkeys([*tests.columns, "valid", "as_found", "asset", "date"])))
     signal = t["asset"].map(assets["signal"]) if "signal" in assets.columns else pd.Series(np.nan, index=t.index)
-    date = pd.to_datetime(t["date"], format="%Y-%m-%d", errors="coerce")
+    date = pd.to_datetime(t["date"].astype(str), format="%Y-%m-%d", errors="coerce")  # invalid tests: any value
     counted = (_counted(t) & date.notna()).to_numpy()
     n = np.zeros(len(t), dtype=np.int64)
     k = np.zeros(len(t), dtype=np.int64)

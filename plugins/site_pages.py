@@ -191,7 +191,7 @@ def usage(ctx: RunContext) -> pd.DataFrame:
     known = long["instrument"].isin(inst.index) if len(inst) else pd.Series(False, index=long.index)
     cal = pd.Series(_dates(_col(inst, "calibrated").reindex(long["instrument"])).to_numpy(), index=long.index)
     due = pd.Series(_dates(_col(inst, "due").reindex(long["instrument"])).to_numpy(), index=long.index)
-    on = _dates(long["date"])
+    on = _dates(long["date"].astype(str))  # invalid tests: any value
     due_text, cal_text = due.dt.strftime("%Y-%m-%d"), cal.dt.strftime("%Y-%m-%d")
     early = cal.notna() & on.notna() & (on < cal)
     late = due.notna() & on.notna() & (on > due)

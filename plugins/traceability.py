@@ -50,7 +50,7 @@ def uses(tests: pd.DataFrame, instruments: pd.DataFrame) -> pd.DataFrame:
     reg = instruments if not instruments.empty else pd.DataFrame(columns=["calibrated", "due"])
     for col in ("calibrated", "due"):
         long[col] = pd.to_datetime(long["instrument"].map(reg[col]) if col in reg.columns else pd.NaT)
-    when = pd.to_datetime(long["date"], format="%Y-%m-%d", errors="coerce")
+    when = pd.to_datetime(long["date"].astype(str), format="%Y-%m-%d", errors="coerce")  # invalid tests: any value
     known = long["instrument"].isin(reg.index)
     long["status"] = np.select(
         [~known, long["due"].notna() & (when > long["due"]),
@@ -139,7 +139,7 @@ def impacted(ctx: RunContext, instrument: str, since: dt.date | None) -> tuple[p
     table = uses(ctx.tests, ctx.instruments)
     mine = table[table["instrument"] == instrument]
     if since is not None:
-        mine = mine[pd.to_datetime(mine["date"], errors="coerce") >= pd.Timestamp(since)]
+        mine = mine[pd.to_datetime(mine["date"].astype(str), errors="coerce", format="%Y-%m-%d") >= pd.Timestamp(since)]
     mine = mine.groupby("test", sort=False).agg(date=("date", "first"), role=("role", ", ".join),
                                                 source_file=("source_file", "first"), status=("status", "first"))
     info = ctx.tests.set_index("test")

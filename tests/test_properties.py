@@ -159,3 +159,39 @@ def test_a_damaged_field_never_hides_or_spares_another_file(damage: list[tuple[s
     for rel, verdict in verdicts.items():
         assert verdict in {"pass", "fail", "adjusted", "invalid"}, (rel, verdict)
         assert (verdict == "invalid") == (rel in named), (rel, verdict, [f.format() for f in ctx.findings])
+
+
+CSV_FIELDS = ["asset", "date", "technician", "connection", "method", "injection", "ambient_c", "source", "meter",
+              "phase", "input", "reading"]
+cell = st.one_of(st.text(max_size=12), st.sampled_from(["warm", "nan", "inf", "1e999", "-0", "4,01", "12345",
+                                                        "2026-02-30", "0 %", "12 A", "4.0 mA"]))
+
+
+@settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.lists(st.tuples(st.sampled_from(CSV_FIELDS), cell), min_size=1, max_size=4))
+def test_a_damaged_csv_cell_never_hides_or_spares_another_file(damage: list[tuple[str, str]]) -> None:
+    """The same rule for a CSV result file, one cell of its middle row replaced by any text."""
+    good = {"asset": "T-CT1", "technician": "T. Tester", "connection": "standalone", "method": "direct",
+            "injection": "secondary", "ambient_c": "23", "source": "SRC-1", "meter": "DMM-1", "phase": "as_found"}
+    rows = [("0 %", "4.0000 mA"), ("50 %", "12.0000 mA"), ("100 %", "20.0000 mA")]
+
+    def table(date: str, field: str | None = None, value: str = "") -> str:
+        out = io.StringIO()
+        writer = csv.DictWriter(out, fieldnames=CSV_FIELDS, lineterminator="\n")
+        writer.writeheader()
+        for k, (i, r) in enumerate(rows):
+            row = {**good, "date": date, "input": i, "reading": r}
+            if field is not None and k == 1:
+                row[field] = value
+            writer.writerow(row)
+        return out.getvalue()
+
+    results = {"good.csv": table("2026-01-01")}
+    results.update({f"d{i}.csv": table(f"2025-0{i + 1}-01", name, value) for i, (name, value) in enumerate(damage)})
+    ctx = _run(results, [CT_ASSET])
+    verdicts = ctx.tests.set_index("source_file")["verdict"].to_dict()
+    assert verdicts.pop("results/good.csv") == "pass"
+    named = {f.file for f in ctx.findings if f.severity == "error"}
+    for rel, verdict in verdicts.items():
+        assert verdict in {"pass", "fail", "adjusted", "invalid"}, (rel, verdict)
+        assert (verdict == "invalid") == (rel in named), (rel, verdict, [f.format() for f in ctx.findings])
