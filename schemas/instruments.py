@@ -45,6 +45,10 @@ class InstrumentsTable(pa.DataFrameModel):
     tempco: Series[str] = pa.Field(nullable=True)
     reference_temperature: Series[str] = pa.Field(nullable=True)
 
+    @pa.dataframe_check(error="due must not be before calibrated")
+    def due_after_calibration(cls, df):  # type: ignore[no-untyped-def]
+        return df["due"].isna() | df["calibrated"].isna() | (df["due"] >= df["calibrated"])
+
     class Config:
         strict = False
         coerce = True

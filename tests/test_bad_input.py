@@ -272,6 +272,9 @@ def _instruments_text(ev, old: str, new: str) -> None:
 @pytest.mark.parametrize(("method", "old", "new", "ident", "field", "said"), [
     # an impossible date once made instruments.yaml unreadable as a whole, and every result file invalid
     ("direct", "due: '2027-01-01'", "due: 2027-13-45", "SRC-1", "due", "'2027-13-45' is not a date (YYYY-MM-DD)"),
+    # due before calibrated is a typing error; taken as written, every later test was "past due"
+    ("direct", "due: '2027-01-01'", "due: 2025-01-01", "SRC-1", "due",
+     "due must not be before calibrated (due 2025-01-01, calibrated 2026-01-01)"),
     # a negative shunt once turned every reading around, taken for reversed leads and failed
     ("shunt", "resistance: 100 ohm", "resistance: -100 ohm", "SH-100", "resistance", "must be a quantity above zero"),
     ("direct", "resolution: 0.001 mA", "resolution: 0 mA", "DMM-1", "resolution", "must be a quantity above zero"),
