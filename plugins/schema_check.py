@@ -180,6 +180,9 @@ def _parse_readings(pts: pd.DataFrame, where) -> list[Finding]:  # type: ignore[
             findings.append(error(f"reading: {problem}", field="reading", **where(idx)))
         # the column was the raw text; keep the number only where it parsed
     rows = pts.index[repeats & (given == 1)]
+    empty = [idx for idx in rows if isinstance(pts.at[idx, "readings"], tuple | list) and not pts.at[idx, "readings"]]
+    findings += [error("readings is an empty list", field="readings", **where(idx)) for idx in empty]
+    rows = rows.difference(empty)
     if len(rows):
         long = pts.loc[rows, "readings"].explode()
         parsed = q.parse_column(long.reset_index(drop=True)).set_index(long.index)
@@ -187,6 +190,11 @@ def _parse_readings(pts: pd.DataFrame, where) -> list[Finding]:  # type: ignore[
             findings.append(error(f"readings: {problem}", field="readings", **where(idx)))
         first_unit = parsed["unit"].groupby(level=0).first()
         values = q.convert(parsed["value"], parsed["unit"], first_unit.reindex(parsed.index))
+        # a repeat in units the first cannot convert to would drop out of the mean without a word
+        lost = values.isna() & parsed["value"].notna() & parsed["problem"].isna()
+        for idx in pd.unique(lost[lost].index):
+            findings.append(error(f"readings: every repeat must be in units of the first ('{first_unit[idx]}')",
+                                  field="readings", **where(idx)))
         stats = values.groupby(level=0).agg(["mean", "std", "count"])
         pts.loc[stats.index, "reading"] = stats["mean"]
         pts.loc[stats.index, "reading_sd"] = stats["std"]
@@ -201,6 +209,10 @@ def _parse_readings(pts: pd.DataFrame, where) -> list[Finding]:  # type: ignore[
                 if pd.notna(frame.at[idx, "problem"]):
                     findings.append(error(f"{name}: {frame.at[idx, 'problem']}", field=name, **where(idx)))
         hi_v = q.convert(hi["value"], hi["unit"], lo["unit"])
+        apart = hi_v.isna() & hi["value"].notna() & lo["value"].notna()
+        for idx in apart[apart].index:
+            findings.append(error(f"reading_max must be in units of reading_min ('{lo.at[idx, 'unit']}')",
+                                  field="reading_max", **where(idx)))
         bad = hi_v < lo["value"]
         for idx in bad[bad].index:
             findings.append(error("reading_max is below reading_min", field="reading_max", **where(idx)))

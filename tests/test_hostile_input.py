@@ -171,6 +171,16 @@ CASES = [
     # caps lock: 'MA' is mega-amperes, which pint converts faithfully; a 4-20 mA output cannot give 4e9 mA
     Case("mega-for-milli", "bad/mega.yaml", _b(_yaml_points("{input: 0 %, reading: 4.01 MA}", *FIVE[1:])),
          ["bad/mega.yaml:9", "error", "reading '4.01 MA' is 4.01e+09 mA, beyond anything a 4-20 mA output"]),
+    # a repeat in other units once dropped out of the mean without a word; min and max in units that do not
+    # convert once gave a NaN error judged as a fail
+    Case("repeats-in-two-units", "bad/rep2.yaml",
+         _b(_yaml_points("{input: 0 %, readings: [4.01 mA, 4.02 V]}", *FIVE[1:])),
+         ["bad/rep2.yaml:9", "error", "every repeat must be in units of the first ('mA')"]),
+    Case("repeats-empty", "bad/rep0.yaml", _b(_yaml_points("{input: 0 %, readings: []}", *FIVE[1:])),
+         ["bad/rep0.yaml:9", "error", "readings is an empty list"]),
+    Case("min-max-in-two-units", "bad/mm.yaml",
+         _b(_yaml_points("{input: 0 %, reading_min: 4.0 mA, reading_max: 4.1 V}", *FIVE[1:])),
+         ["bad/mm.yaml:9", "error", "reading_max must be in units of reading_min ('mA')"]),
     # a spreadsheet saved where the list separator is ';' (with decimal commas, as often as not)
     Case("csv-semicolons", "bad/semi.csv",
          _b(_csv([("0 %", "4.01 mA"), ("50 %", "12.01 mA")]).replace(",", ";").replace(".01 mA", ",01 mA")),
