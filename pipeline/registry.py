@@ -58,7 +58,8 @@ def load_assets(evidence: Path) -> tuple[pd.DataFrame, list[Finding], dict[str, 
 
 
 def _check_accuracy(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[Finding]]:
-    """Rows whose ``accuracy`` cannot give a limit in the output's unit are dropped and reported.
+    """Rows whose units are not units, whose output is neither a current nor a voltage, or whose
+    ``accuracy`` cannot give a limit in the output's unit are dropped and reported.
 
     A term of a meter's datasheet that means nothing for an asset (% of range, digits) is refused rather
     than read as zero: a zero limit would fail every point of a good device."""
@@ -66,7 +67,19 @@ def _check_accuracy(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[Finding]]:
 
     findings: list[Finding] = []
     bad: list[Any] = []
+    signals = (q.unit_check("mA"), q.unit_check("V"))
+    for index, given_in, given_out in zip(frame.index, frame["input_unit"], frame["output_unit"], strict=True):
+        for field, unit in (("input_unit", given_in), ("output_unit", given_out)):
+            try:
+                dimension = q.unit_check(q.normalise_unit(str(unit)))
+                if field == "output_unit" and dimension not in signals:
+                    raise ValueError(f"'{unit}' is not a current or a voltage (an output is read as mA or V)")
+            except ValueError as exc:
+                bad.append(index)
+                findings.append(error(f"{field}: {exc}", file=ASSETS, line=int(index) + 2, field=field))
     for index, text, unit in zip(frame.index, frame["accuracy"], frame["output_unit"], strict=True):
+        if index in bad:
+            continue
         try:
             spec = q.parse_spec(str(text))
             if spec.pct_range or spec.digits:
@@ -76,7 +89,7 @@ def _check_accuracy(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[Finding]]:
         except ValueError as exc:
             bad.append(index)
             findings.append(error(f"accuracy '{text}': {exc}", file=ASSETS, line=int(index) + 2, field="accuracy"))
-    return frame.drop(index=bad), findings
+    return frame.drop(index=list(dict.fromkeys(bad))), findings
 
 
 def load_instruments(evidence: Path) -> tuple[pd.DataFrame, pd.DataFrame, list[Finding], dict[str, int]]:

@@ -19,8 +19,10 @@ from loopledger.plugins.scaling import where
 
 
 def _unit_error(points: pd.DataFrame, bad: pd.Series, wanted: str) -> list[Finding]:
-    return [error(f"reading '{points.at[i, 'reading_unit']}' is not {wanted}", field="reading",
-                  **where(points, i)) for i in points.index[bad]]
+    """One error per point of ``bad``; ``OUTPUT_UNIT`` in ``wanted`` becomes the asset's output unit."""
+    return [error(f"reading unit '{points.at[i, 'reading_unit']}' is not {wanted}".replace(
+                  "OUTPUT_UNIT", str(points.at[i, "output_unit"])), field="reading", **where(points, i))
+            for i in points.index[bad]]
 
 
 class Direct(ReadingMethod):
@@ -30,7 +32,7 @@ class Direct(ReadingMethod):
     def measured(self, points: pd.DataFrame, ctx: RunContext) -> tuple[pd.Series, list[Finding]]:
         value = q.convert(points["reading"], points["reading_unit"], points["output_unit"])
         bad = value.isna() & points["reading"].notna()
-        return value, _unit_error(points, bad, "in units of the output (e.g. mA)")
+        return value, _unit_error(points, bad, "in units of the output (OUTPUT_UNIT)")
 
 
 def shunt_ohms(ctx: RunContext, ids: pd.Series) -> pd.Series:

@@ -238,6 +238,9 @@ def _edit_asset(ev, **cells: str) -> None:
     # an interval of billions of months once crashed the due-date arithmetic
     ({"interval_months": "99999999999"}, "interval_months", "must be at most 240"),
     ({"interval_months": "1.5"}, "interval_months", "must be a whole number of months"),
+    # units: each must be one pint knows; an output is read as a current or a voltage
+    ({"input_unit": "amperez"}, "input_unit", "'amperez' is not a unit loopledger knows"),
+    ({"output_unit": "mAh"}, "output_unit", "'mAh' is not a current or a voltage"),
 ])
 def test_an_asset_row_that_gives_no_sound_limit_or_interval_is_refused(tmp_path, run_folder, cells, field, said):
     """The row is reported at its line and field; the asset's result file is invalid (not failed, not
