@@ -355,3 +355,14 @@ def test_an_instrument_id_given_twice_is_an_error_at_its_line(tmp_path, run_fold
         (line, f"cannot read: 'DMM-1' is given twice in one mapping (lines {text.splitlines().index('DMM-1:') + 1} "
                f"and {line}): keep the one meant")]
     assert ctx.tests["verdict"].tolist() == ["invalid"]
+
+
+def test_a_test_dated_after_as_of_is_judged_and_said(tmp_path, run_folder):
+    """A status 'as of' a date that shows a later test is taken for a mistake in as_of (a fixed as_of left in
+    loopledger.toml while new tests come in): the test is judged, with a warning saying so."""
+    ev = write_evidence(tmp_path / "ev", {"good.yaml": GOOD}, config="as_of = 2026-02-01\n")
+    ctx = run_folder(ev)
+    assert ctx.tests["verdict"].tolist() == ["pass"]
+    said = [f for f in ctx.findings if f.field == "date"]
+    assert [(f.severity, f.file, f.message.split(":")[0]) for f in said] == [
+        ("warning", "results/good.yaml", "date 2026-03-01 is after this run's as_of date 2026-02-01")]
