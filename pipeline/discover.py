@@ -68,12 +68,17 @@ def _walk(root: Path, evidence: Path) -> tuple[list[SourceFile], list[Finding]]:
     return found, findings
 
 
+#: the evidence folder's own files besides results/: naming one judges every result file
+REGISTERS = ("assets.csv", "instruments.yaml", "loopledger.toml")
+
+
 def select(evidence: Path, paths: list[Path]) -> tuple[list[SourceFile], list[Finding]]:
     """The result files named on a command line: files, or folders searched like ``results/``.
 
     The evidence folder itself (or any folder above ``results/``) means its
-    ``results/``; registries and other files outside ``results/`` are never
-    taken for result files.
+    ``results/``; so does one of its registers (assets.csv, instruments.yaml,
+    loopledger.toml), whose change may change any verdict. Other files outside
+    ``results/`` are never taken for result files.
     """
     findings: list[Finding] = []
     chosen: dict[str, SourceFile] = {}
@@ -101,6 +106,11 @@ def select(evidence: Path, paths: list[Path]) -> tuple[list[SourceFile], list[Fi
             chosen.update((s.rel, s) for s in found)
         elif given.is_file():
             rel = rel_path.as_posix()
+            if rel in REGISTERS and results.is_dir():  # a register changed: any verdict may have changed with it
+                found, more = _walk(results, base)
+                findings += more
+                chosen.update((s.rel, s) for s in found)
+                continue
             if not rel.startswith(RESULTS_DIR + "/"):
                 findings.append(error(f"not a result file: result files live under {RESULTS_DIR}/", file=rel,
                                       code="not-a-result"))

@@ -304,7 +304,10 @@ def test_pre_commit_hook_definitions_are_present():
     pattern = re.compile(hook["files"])
     assert pattern.search("results/2026/QM-1_2026-01-02.yaml")
     assert pattern.search("plant/results/a.csv")
-    assert not pattern.search("assets.csv") and not pattern.search("instruments.yaml")
+    # a staged register is checked too (every result file is judged again with it)
+    assert pattern.search("assets.csv") and pattern.search("plant/instruments.yaml")
+    assert pattern.search("loopledger.toml")
+    assert not pattern.search("README.md") and not pattern.search("notes/assets.csv.bak")
     assert os.access(ROOT / "hooks" / "pre-commit", os.X_OK)
 
 
@@ -328,3 +331,14 @@ def test_plain_git_hook_checks_staged_result_files(tmp_path):
     bad = subprocess.run(["sh", str(hook)], cwd=ev, env=env, capture_output=True, text=True, check=False)
     assert bad.returncode == 2
     assert "results/b.yaml" in bad.stdout and "decimal comma" in bad.stdout
+    # a staged assets.csv alone: its rows are checked and every result file judged again with them
+    (ev / "results" / "b.yaml").unlink()
+    subprocess.run(["git", "rm", "-q", "--cached", "results/b.yaml"], cwd=ev, check=True, env=env)
+    subprocess.run(["git", "commit", "-q", "-m", "a"], cwd=ev, check=True, env=env)
+    text = (ev / "assets.csv").read_text(encoding="utf-8")
+    (ev / "assets.csv").write_text(text.replace(",0.5,", ",-0.5,"), encoding="utf-8")
+    subprocess.run(["git", "add", "assets.csv"], cwd=ev, check=True, env=env)
+    reg = subprocess.run(["sh", str(hook)], cwd=ev, env=env, capture_output=True, text=True, check=False)
+    assert reg.returncode == 2, reg.stdout + reg.stderr
+    assert "assets.csv:2: error: accuracy '-0.5'" in reg.stdout
+    assert "results/a.yaml" in reg.stdout and "1 file(s), 0 failing, 1 invalid" in reg.stdout
