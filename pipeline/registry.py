@@ -47,7 +47,7 @@ def load_assets(evidence: Path) -> tuple[pd.DataFrame, list[Finding], dict[str, 
     frame = frame.apply(lambda col: col.str.strip()).replace("", pd.NA)
     given = frame["asset"] if "asset" in frame.columns else pd.Series(dtype=object)
     frame, findings = validate(frame, AssetsFile, lambda i: {"file": ASSETS, "line": 0 if i is None else int(i) + 2})
-    frame, more = _check_accuracy(frame)
+    frame, more = _check_units_and_accuracy(frame)
     findings += more
     frame = frame.astype({c: "object" for c in frame.columns if frame[c].dtype == "string"})
     frame["characteristic"] = frame["characteristic"].fillna("linear")
@@ -57,7 +57,7 @@ def load_assets(evidence: Path) -> tuple[pd.DataFrame, list[Finding], dict[str, 
     return frame.set_index("asset", drop=False).rename_axis(None), findings, rejected
 
 
-def _check_accuracy(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[Finding]]:
+def _check_units_and_accuracy(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[Finding]]:
     """Rows whose units are not units, whose output is neither a current nor a voltage, or whose
     ``accuracy`` cannot give a limit in the output's unit are dropped and reported.
 
@@ -145,16 +145,18 @@ def load_instruments(evidence: Path) -> tuple[pd.DataFrame, pd.DataFrame, list[F
     bad, more = _check_magnitudes(table, range_table, at)
     findings += more
     table = table[~table["instrument"].astype(str).isin(bad)]
-    range_table = range_table[~range_table["instrument"].astype(str).isin(bad)].reset_index(drop=True)
-    rejected = {str(r["instrument"]): at.get(str(r["instrument"]), 0) for r in rows
-                if str(r["instrument"]) not in set(table["instrument"].astype(str))}
+    kept = set(table["instrument"].astype(str))
+    rejected = {str(r["instrument"]): at.get(str(r["instrument"]), 0) for r in rows if str(r["instrument"]) not in kept}
+    # the ranges of the instruments kept, on their index in ``ranges`` (which the findings' lines look up)
+    range_table = range_table[range_table["instrument"].astype(str).isin(kept)]
     if not range_table.empty:
         range_table, more = validate(range_table, MeterRanges,
                                      lambda i: {"file": INSTRUMENTS, "line": at.get(ranges[i]["instrument"], 0)
                                                 if i is not None else 0, "point": "" if i is None else
                                                 f"instrument {ranges[i]['instrument']} range"})
         findings += more
-    return table.set_index("instrument", drop=False).rename_axis(None), range_table, findings, rejected
+    return (table.set_index("instrument", drop=False).rename_axis(None), range_table.reset_index(drop=True),
+            findings, rejected)
 
 
 def _check_magnitudes(table: pd.DataFrame, ranges: pd.DataFrame, at: dict[str, int]) -> tuple[set[str], list[Finding]]:
