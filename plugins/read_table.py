@@ -32,8 +32,8 @@ def _table(path: Path, data: bytes) -> Table:
     if path.suffix.lower() == ".xlsx":
         import pandas as pd
 
-        frame = pd.read_excel(io.BytesIO(data), dtype=str, engine="openpyxl").fillna("")
-        return [str(c) for c in frame.columns], [(i + 2, [str(v) for v in row])
+        frame = pd.read_excel(io.BytesIO(data), dtype=object, engine="openpyxl")
+        return [str(c) for c in frame.columns], [(i + 2, [_cell(v) for v in row])
                                                  for i, row in enumerate(frame.itertuples(index=False))]
     text = decode(data)
     reader = csv.reader(io.StringIO(text), skipinitialspace=True)
@@ -54,6 +54,20 @@ def _table(path: Path, data: bytes) -> Table:
             rows.append((start, cells))
         start = reader.line_num + 1
     return header, rows
+
+
+def _cell(value: Any) -> str:
+    """A spreadsheet cell as the text it shows: a date cell (a datetime at midnight) as YYYY-MM-DD, as the
+    schema check wants it; an empty cell as ''."""
+    import datetime as dt
+
+    if value is None or (isinstance(value, float) and value != value):
+        return ""
+    if isinstance(value, dt.datetime) and value.time() == dt.time(0, 0):
+        return value.date().isoformat()
+    if isinstance(value, dt.date | dt.datetime):
+        return value.isoformat()
+    return str(value)
 
 
 class BadShape(ValueError):

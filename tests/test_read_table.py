@@ -63,3 +63,19 @@ def test_xlsx_first_sheet_is_read(tmp_path, run_folder):
     ctx = run_folder(ev)
     assert ctx.findings == []
     assert ctx.points.sort_values("point")["error"].round(6).tolist() == [0.01] * 5
+
+
+def test_xlsx_date_cells_are_read_as_dates(tmp_path, run_folder):
+    """A spreadsheet's date column holds date cells, not text; such a cell is read as YYYY-MM-DD (the
+    schema check takes exactly that), and the test is judged as its text twin is."""
+    import datetime as dt
+
+    rows = [r.split(",") for r in _csv_rows(good_points(0.01))]
+    frame = pd.DataFrame(rows, columns=HEADER.split(","))
+    frame["date"] = [dt.datetime.strptime(d, "%Y-%m-%d") for d in frame["date"]]
+    ev = write_evidence(tmp_path / "ev", {})
+    (ev / "results").mkdir()
+    frame.to_excel(ev / "results" / "t.xlsx", index=False, engine="openpyxl")
+    ctx = run_folder(ev)
+    assert ctx.findings == []
+    assert ctx.tests["date"].tolist() == ["2026-04-14"] and ctx.tests["verdict"].tolist() == ["pass"]
