@@ -25,7 +25,7 @@ INSTRUMENT_KIND = {"source": "source", "meter": "meter", "shunt": "shunt"}
 
 def check_tests(ctx: RunContext) -> list[Finding]:
     """Validate the header of every still-valid test; mark failures invalid."""
-    from loopledger.schemas.results import TestHeader
+    from loopledger.schemas.results import TestHeader, date_part
 
     tests = ctx.tests
     valid = tests[tests["valid"].astype(bool)].copy()
@@ -50,7 +50,7 @@ def check_tests(ctx: RunContext) -> list[Finding]:
         if rel not in named:
             findings.append(error(f"the header could not be checked ({unpinned or 'no reason given'})", file=rel))
     today = dt.date.today()
-    dates = pd.to_datetime(checked["date"].astype(str).str.slice(0, 10), format="%Y-%m-%d", errors="coerce")
+    dates = date_part(checked["date"])
     for idx in checked.index[dates.dt.date > today]:
         rel = checked.at[idx, "source_file"]
         findings.append(error(f"date {checked.at[idx, 'date']} is in the future", file=rel,

@@ -2,7 +2,7 @@
 
 A result file is YAML, CSV or .xlsx; README shows each. Fields:
 
-- header: ``asset``, ``date`` (YYYY-MM-DD), ``technician``, ``connection``
+- header: ``asset``, ``date`` (YYYY-MM-DD; a time of day after it is dropped), ``technician``, ``connection``
   (standalone | in-loop), ``method`` (a reading method: direct | shunt |
   display, or one a plugin adds), ``injection`` (secondary | primary),
   ``ambient_c``, instruments ``source`` / ``meter`` / ``shunt``, ``remarks``
@@ -20,14 +20,22 @@ import pandera.pandas as pa
 from pandera.typing import Series
 
 
-def _is_iso_date(series):  # type: ignore[no-untyped-def]
+#: a date, YYYY-MM-DD (month and day may be one digit), optionally with a time of day, which is dropped
+DATE = r"(\d{4}-\d{1,2}-\d{1,2})(?:[T ]\d{1,2}:\d{2}(?::\d{2}(?:\.\d+)?)?)?"
+
+
+def date_part(series):  # type: ignore[no-untyped-def]
+    """The date of each text as a datetime (NaT where the text is not a date as :data:`DATE` has it:
+    trailing text of any other kind is refused, never cut off)."""
     import pandas as pd
 
-    # the whole text: "2026-03-04T10:30" once passed here as its first ten characters, and its points,
-    # which keep the text as written, then broke the date arithmetic of the history stage
-    text = series.astype(str).str.strip()
-    shaped = text.str.fullmatch(r"\d{4}-\d{2}-\d{2}")
-    return shaped & pd.to_datetime(text.where(shaped, ""), format="%Y-%m-%d", errors="coerce").notna()
+    found = series.astype(str).str.strip().str.fullmatch(DATE)
+    day = series.astype(str).str.strip().str.extract(f"^{DATE}$", expand=False)
+    return pd.to_datetime(day.where(found, ""), format="%Y-%m-%d", errors="coerce")
+
+
+def _is_iso_date(series):  # type: ignore[no-untyped-def]
+    return date_part(series).notna()
 
 
 class TestHeader(pa.DataFrameModel):

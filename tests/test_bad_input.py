@@ -317,7 +317,7 @@ def test_a_word_where_a_number_belongs_does_not_stop_the_other_files_being_check
 
 
 @pytest.mark.parametrize(("header", "field", "said"), [
-    ({"date": "2026-03-04T10:30:00"}, "date", "a real date written YYYY-MM-DD"),
+    ({"date": "2026-03-04 after lunch"}, "date", "a real date written YYYY-MM-DD"),
     ({"date": "0001-01-01"}, "date", "before 1950"),
     ({"ambient_c": 1e6}, "ambient_c", "must be at most 90"),
 ])
@@ -366,3 +366,18 @@ def test_a_test_dated_after_as_of_is_judged_and_said(tmp_path, run_folder):
     said = [f for f in ctx.findings if f.field == "date"]
     assert [(f.severity, f.file, f.message.split(":")[0]) for f in said] == [
         ("warning", "results/good.yaml", "date 2026-03-01 is after this run's as_of date 2026-02-01")]
+
+
+def test_a_date_with_a_time_of_day_or_single_digits_is_read_as_its_date(tmp_path, run_folder):
+    """'2026-3-5T10:30' names a day as plainly as '2026-03-05': the test is judged on that day, and every
+    table carries it as YYYY-MM-DD (a raw text once reached the history stage's date arithmetic and broke it,
+    when a word in another file's ambient_c had stopped the header check)."""
+    ev = write_evidence(tmp_path / "ev", {
+        "good.yaml": GOOD,
+        "timed.yaml": result_yaml(as_found=good_points(0.01), date="2026-3-5T10:30"),
+        "warm.yaml": result_yaml(as_found=good_points(), date="2026-03-06", ambient_c="warm")})
+    ctx = run_folder(ev)
+    tests = ctx.tests.set_index("source_file")
+    assert tests.at["results/timed.yaml", "date"] == "2026-03-05"
+    assert tests.at["results/timed.yaml", "verdict"] == "pass"
+    assert set(ctx.points.loc[ctx.points["source_file"] == "results/timed.yaml", "date"]) == {"2026-03-05"}
