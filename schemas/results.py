@@ -19,7 +19,6 @@ from __future__ import annotations
 import pandera.pandas as pa
 from pandera.typing import Series
 
-
 #: a date, YYYY-MM-DD (month and day may be one digit), optionally with a time of day, which is dropped
 DATE = r"(\d{4}-\d{1,2}-\d{1,2})(?:[T ]\d{1,2}:\d{2}(?::\d{2}(?:\.\d+)?)?)?"
 
