@@ -381,3 +381,15 @@ def test_a_date_with_a_time_of_day_or_single_digits_is_read_as_its_date(tmp_path
     assert tests.at["results/timed.yaml", "date"] == "2026-03-05"
     assert tests.at["results/timed.yaml", "verdict"] == "pass"
     assert set(ctx.points.loc[ctx.points["source_file"] == "results/timed.yaml", "date"]) == {"2026-03-05"}
+
+
+def test_check_of_a_lone_file_without_readings_still_checks_its_header(tmp_path, capsys):
+    """With no point in the run the judging stages are skipped; the header check once was too, so a staged
+    file with an unknown asset and no readings passed the pre-commit check with exit code 0."""
+    ev = write_evidence(tmp_path / "ev", {"lone.yaml": result_yaml(asset="TYPO-1", as_found=[])})
+    assert main(["check", "--evidence", str(ev), str(ev / "results" / "lone.yaml")]) == 2
+    said = capsys.readouterr().out
+    assert "results/lone.yaml:1: error: asset 'TYPO-1' is not in assets.csv" in said
+    (ev / "results" / "lone.yaml").write_text(result_yaml(as_found=[]), encoding="utf-8")
+    assert main(["check", "--evidence", str(ev), str(ev / "results" / "lone.yaml")]) == 2
+    assert "results/lone.yaml: error: no readings: as_found and as_left are both empty" in capsys.readouterr().out
