@@ -52,6 +52,10 @@ def _walk(root: Path, evidence: Path) -> tuple[list[SourceFile], list[Finding]]:
                 continue
             path = here / name
             rel = path.relative_to(evidence).as_posix()
+            if name.startswith("~$"):  # an office program's lock file beside a workbook that is open
+                findings.append(warning("a lock file of a workbook open in a spreadsheet program; skipped",
+                                        file=rel, code="skipped"))
+                continue
             if path.is_symlink():
                 findings.append(error("symbolic link is not followed; copy the file in instead",
                                       file=rel, code="symlink"))

@@ -262,6 +262,17 @@ def test_symlinks_inside_results_are_not_followed(tmp_path: Path, capsys: pytest
     assert _tree_hash(ev) == before
 
 
+def test_a_spreadsheet_lock_file_is_skipped(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """A spreadsheet program keeps '~$NAME.xlsx' beside a workbook it has open; read as a result file it was
+    an error that stopped the commit while the technician had the sheet open."""
+    ev = write_evidence(tmp_path / "ev", {GOOD_NAME: GOOD})
+    (ev / "results" / "~$T-CT1_2026-05-02.xlsx").write_bytes(b"\x0bT. Tester" + bytes(150))
+    code, text = _run(ev, tmp_path / "out", capsys)
+    assert code == 0, text
+    assert "results/~$T-CT1_2026-05-02.xlsx: warning: a lock file of a workbook open in a spreadsheet program" in text
+    assert list(_tests_csv(tmp_path / "out")) == ["results/" + GOOD_NAME]
+
+
 def test_page_names_never_leave_out(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     """An asset id with ../ and slashes that *is* registered still gets a page, inside OUT."""
     nasty = "../../x/..\\y"
