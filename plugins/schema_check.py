@@ -83,8 +83,10 @@ def _with_line(f: Finding, lines: dict[str, dict[str, int]]) -> Finding:
 def _check_references(ctx: RunContext, tests: pd.DataFrame, lines: dict[str, dict[str, int]]) -> list[Finding]:
     findings: list[Finding] = []
     known_assets = set(ctx.assets.index)
+    near = _Near(known_assets)
     methods = sorted(ctx.methods)
     kinds = ctx.instruments["kind"].to_dict() if not ctx.instruments.empty else {}
+    near_instrument = _Near(set(kinds))
     roles = ("source", "meter", "shunt")
     columns = [tests[c].tolist() for c in ("source_file", "asset", "method", *roles)]  # not row objects: 20k rows
     for rel, asset, method, *idents in zip(*columns, strict=True):
@@ -94,8 +96,8 @@ def _check_references(ctx: RunContext, tests: pd.DataFrame, lines: dict[str, dic
                                   f"{ctx.rejected_assets[asset]}): this file is judged once that row is put right",
                                   file=rel, line=at.get("asset", 0), field="asset"))
         elif asset not in known_assets:
-            findings.append(error(f"asset '{asset}' is not in assets.csv", file=rel, line=at.get("asset", 0),
-                                  field="asset"))
+            findings.append(error(f"asset '{asset}' is not in assets.csv{near(asset)}", file=rel,
+                                  line=at.get("asset", 0), field="asset"))
         if method not in ctx.methods:
             findings.append(error(f"unknown method '{method}' (known: {', '.join(methods)})", file=rel,
                                   line=at.get("method", 0), field="method"))
@@ -107,8 +109,8 @@ def _check_references(ctx: RunContext, tests: pd.DataFrame, lines: dict[str, dic
                                       f"{ctx.rejected_instruments[ident]}): this file is judged once they are put "
                                       "right", file=rel, line=at.get(role, 0), field=f"instruments.{role}"))
             elif ident not in kinds:
-                findings.append(error(f"instrument '{ident}' is not in instruments.yaml", file=rel,
-                                      line=at.get(role, 0), field=f"instruments.{role}"))
+                findings.append(error(f"instrument '{ident}' is not in instruments.yaml{near_instrument(ident)}",
+                                      file=rel, line=at.get(role, 0), field=f"instruments.{role}"))
             elif kinds[ident] != INSTRUMENT_KIND[role]:
                 findings.append(error(f"instrument '{ident}' is a {kinds[ident]}, not a {role}", file=rel,
                                       line=at.get(role, 0), field=f"instruments.{role}"))
@@ -117,6 +119,48 @@ def _check_references(ctx: RunContext, tests: pd.DataFrame, lines: dict[str, dic
             findings.append(error("method 'shunt' needs instruments.shunt (the shunt's id)", file=rel,
                                   line=at.get("method", 0), field="instruments.shunt"))
     return findings
+
+
+#: characters a word processor or another keyboard puts where an id has an ASCII hyphen or space
+_LOOKALIKES = str.maketrans({c: "-" for c in "\u2010\u2011\u2012\u2013\u2014\u2212\ufe63\uff0d"} |
+                            {c: " " for c in "\u00a0\u2007\u202f"})
+
+
+class _Near:
+    """': did you mean ...' for an unknown id that differs from a known one by case, look-alike dashes and
+    spaces, or a slip of a character or two (difflib), naming the characters that are not plain ASCII.
+    Worked out for the first :data:`LIMIT` distinct unknown ids only (difflib over a large register costs
+    milliseconds an id; a folder whose ids all changed must not take minutes to say so)."""
+
+    LIMIT = 50
+
+    def __init__(self, known: set[Any]) -> None:
+        self.known = [str(k) for k in known]
+        self.plain: dict[str, str] | None = None
+        self.said: dict[str, str] = {}
+
+    @staticmethod
+    def _fold(text: str) -> str:
+        import unicodedata
+
+        return unicodedata.normalize("NFKC", text).translate(_LOOKALIKES).casefold()
+
+    def __call__(self, ident: Any) -> str:
+        import difflib
+
+        text = str(ident)
+        if text in self.said or len(self.said) >= self.LIMIT:
+            return self.said.get(text, "")
+        if self.plain is None:
+            self.plain = {self._fold(k): k for k in self.known}
+        match = self.plain.get(self._fold(text)) or next(
+            iter(difflib.get_close_matches(text, self.known, n=1, cutoff=0.85)), None)
+        odd = sorted({f"U+{ord(c):04X}" for c in text if ord(c) > 126})
+        hint = "" if match is None else f"; did you mean '{match}'?" + (
+            f" (it holds {', '.join(odd)}, not the plain ASCII character{'s' if len(odd) > 1 else ''} "
+            f"{'they resemble' if len(odd) > 1 else 'it resembles'})" if odd else "")
+        self.said[text] = hint
+        return hint
 
 
 def _check_duplicate_files(tests: pd.DataFrame, lines: dict[str, dict[str, int]]) -> list[Finding]:

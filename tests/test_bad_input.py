@@ -393,3 +393,15 @@ def test_check_of_a_lone_file_without_readings_still_checks_its_header(tmp_path,
     (ev / "results" / "lone.yaml").write_text(result_yaml(as_found=[]), encoding="utf-8")
     assert main(["check", "--evidence", str(ev), str(ev / "results" / "lone.yaml")]) == 2
     assert "results/lone.yaml: error: no readings: as_found and as_left are both empty" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize(("written", "hint"), [
+    # a word processor's hyphen (U+2010) looks like the ASCII one and is not: the commonest copy-paste slip
+    ("T\u2010CT1", "; did you mean 'T-CT1'? (it holds U+2010, not the plain ASCII character it resembles)"),
+    ("t-ct1", "; did you mean 'T-CT1'?"),
+    ("T-CT11", "; did you mean 'T-CT1'?"),
+    ("PUMP-9", ""),
+])
+def test_an_unknown_asset_id_close_to_a_known_one_is_pointed_at(tmp_path, run_folder, written, hint):
+    errs = _run(tmp_path, "bad.yaml", result_yaml(asset=written, as_found=good_points()), run_folder)
+    assert _one(errs, "asset").message == f"asset '{written}' is not in assets.csv{hint}"
