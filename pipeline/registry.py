@@ -20,7 +20,8 @@ def absent(what: str, ident: str, rejected: dict[str, int], where: object) -> st
     """Why ``ident`` is not among the loaded assets or instruments: left out for errors at a line of
     ``where``, or not there at all (for the commands that look one up by name)."""
     if ident in rejected:
-        return f"{what} '{ident}' has errors in {where} (line {rejected[ident]}): put them right first"
+        at = f"line {rejected[ident]}" if rejected[ident] else "errors of the whole file"
+        return f"{what} '{ident}' has errors in {where} ({at}): put them right first"
     return f"{what} '{ident}' is not in {where}"
 
 
@@ -41,6 +42,10 @@ def load_assets(evidence: Path) -> tuple[pd.DataFrame, list[Finding], dict[str, 
     except (ValueError, pd.errors.ParserError) as exc:
         return empty, [error(f"cannot read: {exc}", file=ASSETS)], {}
     frame.columns = [str(c).strip() for c in frame.columns]
+    if len(frame.columns) == 1 and (sep := next((c for c in ";\t|" if c in frame.columns[0]), None)):
+        name = "tabs" if sep == "\t" else repr(sep)
+        return empty, [error(f"the columns are separated by {name}, not commas: save it as comma-separated CSV "
+                             "with '.' as the decimal mark", file=ASSETS, line=1)], {}
     for name in OPTIONAL:  # a column left out is read as one left empty (pd.NA put in as such cannot be coerced)
         if name not in frame.columns:
             frame[name] = ""
@@ -52,8 +57,9 @@ def load_assets(evidence: Path) -> tuple[pd.DataFrame, list[Finding], dict[str, 
     frame = frame.astype({c: "object" for c in frame.columns if frame[c].dtype == "string"})
     frame["characteristic"] = frame["characteristic"].fillna("linear")
     rejected: dict[str, int] = {}
+    whole = any(f.line == 0 for f in findings)  # a fault of the file (a column missing): no row is read
     for index, ident in given.drop(index=frame.index, errors="ignore").dropna().items():
-        rejected.setdefault(str(ident), int(index) + 2)
+        rejected.setdefault(str(ident), 0 if whole else int(index) + 2)
     return frame.set_index("asset", drop=False).rename_axis(None), findings, rejected
 
 
@@ -67,6 +73,8 @@ def _check_units_and_accuracy(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[F
 
     findings: list[Finding] = []
     bad: list[Any] = []
+    if frame.empty:  # nothing kept (or the file's columns were not there to keep)
+        return frame, findings
     signals = (q.unit_check("mA"), q.unit_check("V"))
     for index, given_in, given_out in zip(frame.index, frame["input_unit"], frame["output_unit"], strict=True):
         for field, unit in (("input_unit", given_in), ("output_unit", given_out)):

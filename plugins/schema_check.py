@@ -92,9 +92,11 @@ def _check_references(ctx: RunContext, tests: pd.DataFrame, lines: dict[str, dic
     for rel, asset, method, *idents in zip(*columns, strict=True):
         at = lines.get(rel, {})
         if asset in ctx.rejected_assets:
-            findings.append(error(f"asset '{asset}' has errors in its row of assets.csv (line "
-                                  f"{ctx.rejected_assets[asset]}): this file is judged once that row is put right",
-                                  file=rel, line=at.get("asset", 0), field="asset"))
+            row = ctx.rejected_assets[asset]
+            said = f"has errors in its row of assets.csv (line {row}): this file is judged once that row is put " \
+                "right" if row else "is in an assets.csv whose errors stop any row being read: this file is judged " \
+                "once they are put right"
+            findings.append(error(f"asset '{asset}' {said}", file=rel, line=at.get("asset", 0), field="asset"))
         elif asset not in known_assets:
             findings.append(error(f"asset '{asset}' is not in assets.csv{near(asset)}", file=rel,
                                   line=at.get("asset", 0), field="asset"))

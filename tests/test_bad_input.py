@@ -405,3 +405,30 @@ def test_check_of_a_lone_file_without_readings_still_checks_its_header(tmp_path,
 def test_an_unknown_asset_id_close_to_a_known_one_is_pointed_at(tmp_path, run_folder, written, hint):
     errs = _run(tmp_path, "bad.yaml", result_yaml(asset=written, as_found=good_points()), run_folder)
     assert _one(errs, "asset").message == f"asset '{written}' is not in assets.csv{hint}"
+
+
+def test_an_assets_csv_without_a_required_column_names_the_column_and_no_row(tmp_path, run_folder):
+    """A fault of the whole file is said once, naming the column (not pandera's model), and a result file
+    is not sent looking for a faulty row (this once crashed the registry check, which read that column)."""
+    ev = write_evidence(tmp_path / "ev", {"good.yaml": GOOD})
+    lines = (ev / "assets.csv").read_text(encoding="utf-8").splitlines()
+    at = lines[0].split(",").index("input_unit")
+    (ev / "assets.csv").write_text("\n".join(",".join(c for i, c in enumerate(line.split(",")) if i != at)
+                                             for line in lines) + "\n", encoding="utf-8")
+    ctx = run_folder(ev)
+    assert [(f.line, f.field, f.message) for f in ctx.findings if f.file == "assets.csv"] == [
+        (0, "input_unit", "column 'input_unit' is missing")]
+    mine = [f.message for f in ctx.findings if f.file == "results/good.yaml"]
+    assert mine == ["asset 'T-CT1' is in an assets.csv whose errors stop any row being read: this file is judged "
+                    "once they are put right"]
+
+
+def test_an_assets_csv_saved_with_semicolons_says_so(tmp_path, run_folder):
+    ev = write_evidence(tmp_path / "ev", {"good.yaml": GOOD})
+    (ev / "assets.csv").write_text((ev / "assets.csv").read_text(encoding="utf-8").replace(",", ";"),
+                                   encoding="utf-8")
+    ctx = run_folder(ev)
+    assert [(f.line, f.message) for f in ctx.findings if f.file == "assets.csv"] == [
+        (1, "the columns are separated by ';', not commas: save it as comma-separated CSV with '.' as the decimal "
+            "mark")]
+    assert ctx.tests["verdict"].tolist() == ["invalid"]
