@@ -10,7 +10,8 @@ Properties, and where each comes from:
   the definition in ILAC-G8:2019 / JCGM 200:2012 2.16 "measurement error");
 - no valid record makes a stage raise, and every valid record is judged;
 - a field replaced by any value at all leaves that file judged or listed as invalid with an error naming it,
-  and a good file beside it judged (issue 8's rule that bad input never hides or spares other evidence).
+  and a good file beside it judged (issue 8's rule that bad input never hides or spares other evidence);
+  the same for a cell of a CSV result file and for a cell of assets.csv.
 Records are invented (plumbing fixtures), never reference values.
 """
 
@@ -29,7 +30,7 @@ from loopledger import runner
 from loopledger.host import get_plugin_manager
 from loopledger.plugins import read_table, read_yaml, scaling
 
-from tests.evidence import CT_ASSET, result_yaml, write_evidence
+from tests.evidence import ASSET_COLUMNS, CT_ASSET, result_yaml, write_evidence
 
 SETTINGS = settings(max_examples=20, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
@@ -195,3 +196,25 @@ def test_a_damaged_csv_cell_never_hides_or_spares_another_file(damage: list[tupl
     for rel, verdict in verdicts.items():
         assert verdict in {"pass", "fail", "adjusted", "invalid"}, (rel, verdict)
         assert (verdict == "invalid") == (rel in named), (rel, verdict, [f.format() for f in ctx.findings])
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.lists(st.tuples(st.sampled_from(ASSET_COLUMNS), cell), min_size=1, max_size=3))
+@example(damage=[("input_unit", "mAh")])
+@example(damage=[("accuracy", "-1")])
+def test_a_damaged_register_cell_never_hides_or_spares_a_file(damage: list[tuple[str, str]]) -> None:
+    """A cell of assets.csv replaced by any text: the run never raises, the asset's test is judged or listed
+    as invalid with an error naming it, and the test of an untouched asset beside it is judged."""
+    second = {**CT_ASSET, "asset": "T-CT2"}
+    for name, value in damage:
+        second[name] = value.replace(",", " ").replace("\n", " ").replace("\r", " ").replace('"', "'")
+    good = [("0 %", "4.0000 mA"), ("50 %", "12.0000 mA"), ("100 %", "20.0000 mA")]
+    results = {"one.yaml": result_yaml(as_found=good, date="2026-01-01"),
+               "two.yaml": result_yaml(asset="T-CT2", as_found=good, date="2026-01-02")}
+    ctx = _run(results, [CT_ASSET, second])
+    verdicts = ctx.tests.set_index("source_file")["verdict"].to_dict()
+    if str(second["asset"]).strip() != "T-CT1":  # a damaged id that names the first asset takes it over
+        assert verdicts["results/one.yaml"] == "pass", [f.format() for f in ctx.findings]
+    named = {f.file for f in ctx.findings if f.severity == "error"}
+    assert verdicts["results/two.yaml"] in {"pass", "fail", "adjusted", "invalid"}
+    assert (verdicts["results/two.yaml"] == "invalid") == ("results/two.yaml" in named)
