@@ -9,7 +9,7 @@ from typing import Any
 
 import pandas as pd
 import yaml
-from loopledger.findings import Finding, error
+from loopledger.findings import Finding, error, warning
 from loopledger.validation import validate
 
 ASSETS = "assets.csv"
@@ -151,7 +151,7 @@ def load_instruments(evidence: Path) -> tuple[pd.DataFrame, pd.DataFrame, list[F
     findings += more
     range_table = pd.DataFrame(ranges, columns=["instrument", "range", "accuracy", "resolution", "burden"])
     bad, more = _check_magnitudes(table, range_table, at)
-    findings += more
+    findings += more + _check_specs(table, range_table, at)
     table = table[~table["instrument"].astype(str).isin(bad)]
     kept = set(table["instrument"].astype(str))
     rejected = {str(r["instrument"]): at.get(str(r["instrument"]), 0) for r in rows if str(r["instrument"]) not in kept}
@@ -196,3 +196,23 @@ def _check_magnitudes(table: pd.DataFrame, ranges: pd.DataFrame, at: dict[str, i
         if resolution is not None and not (isinstance(resolution, float) and math.isnan(resolution)):
             positive(str(ident), "resolution", resolution, None, "0.001 mA")
     return bad, findings
+
+
+def _check_specs(table: pd.DataFrame, ranges: pd.DataFrame, at: dict[str, int]) -> list[Finding]:
+    """A warning at its line for an accuracy specification that cannot be read: the instrument is kept
+    (the simple rule needs no uncertainty), and each test that used it says it has none."""
+    from loopledger import quantities as q
+
+    findings: list[Finding] = []
+    specs = [(str(i), "accuracy", a) for i, a in zip(table["instrument"], table["accuracy"], strict=True)]
+    specs += [(str(i), "ranges.accuracy", a) for i, a in zip(ranges["instrument"], ranges["accuracy"], strict=True)]
+    for ident, field, text in specs:
+        if text is None or (isinstance(text, float) and math.isnan(text)):
+            continue
+        try:
+            q.parse_spec(str(text))
+        except ValueError as exc:
+            findings.append(warning(f"{field} '{text}': {exc}: no uncertainty is worked out for the tests that "
+                                    "used it", file=INSTRUMENTS, line=at.get(ident, 0), field=field,
+                                    point=f"instrument {ident}"))
+    return findings

@@ -432,3 +432,17 @@ def test_an_assets_csv_saved_with_semicolons_says_so(tmp_path, run_folder):
         (1, "the columns are separated by ';', not commas: save it as comma-separated CSV with '.' as the decimal "
             "mark")]
     assert ctx.tests["verdict"].tolist() == ["invalid"]
+
+
+def test_an_unreadable_instrument_specification_is_said_at_its_line(tmp_path, run_folder):
+    """The instrument is kept (the simple rule needs no uncertainty) but instruments.yaml says, at the
+    instrument's line, why the tests that used it have none."""
+    ev = write_evidence(tmp_path / "ev", {"good.yaml": GOOD})
+    _instruments_text(ev, "accuracy: 0.05 %rdg + 2 digits", "accuracy: 0.05 %rdg + two digits")
+    lines = (ev / "instruments.yaml").read_text(encoding="utf-8").splitlines()
+    ctx = run_folder(ev)
+    reg = [f for f in ctx.findings if f.file == "instruments.yaml"]
+    assert [(f.severity, f.line, f.field, f.point) for f in reg] == [
+        ("warning", lines.index("DMM-1:") + 1, "ranges.accuracy", "instrument DMM-1")]
+    assert "cannot read accuracy term 'two digits'" in reg[0].message
+    assert ctx.tests["verdict"].tolist() == ["pass"]
