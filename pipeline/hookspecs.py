@@ -62,6 +62,17 @@ def ll_decision_rules() -> list[DecisionRule]:
 
 
 @hookspec
+def ll_config_keys() -> dict[str, list[str]] | None:
+    """The loopledger.toml tables this plugin reads, each with the keys it reads in it.
+
+    A table or a key no plugin (and not loopledger itself: ``as_of``, ``[decision] rule``, ``[limits]``)
+    names is a configuration error, so a misspelt ``[decison]`` never leaves a setting silently unused.
+
+    :return: ``{"table": ["key", ...]}``; two plugins may name keys of the same table.
+    """
+
+
+@hookspec
 def ll_configure(config: dict[str, Any]) -> list[Finding] | None:
     """Check this plugin's section of loopledger.toml before anything is read.
 

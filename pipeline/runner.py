@@ -43,6 +43,7 @@ def prepare(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
     if not opts.evidence.is_dir():
         raise ConfigError(f"evidence folder '{opts.evidence}' does not exist")
     config = load_config(opts.evidence, opts.overrides)
+    _known_keys(config, pm)
     ctx = RunContext(evidence=opts.evidence, config=config, pm=pm)
     for found in pm.hook.ll_configure(config=config):
         errors = [f for f in found or [] if f.severity == "error"]
@@ -60,6 +61,29 @@ def prepare(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
     ctx.instruments, ctx.ranges, found, ctx.rejected_instruments = load_instruments(opts.evidence)
     ctx.findings += _stamp(found, "registry")
     return ctx
+
+
+def _known_keys(config: dict[str, Any], pm: pluggy.PluginManager) -> None:
+    """A ConfigError for a table or key of loopledger.toml that neither loopledger nor a plugin reads."""
+    from loopledger.config import CONFIG_NAME, DEFAULTS
+
+    known: dict[str, set[str]] = {name: set(value) for name, value in DEFAULTS.items() if isinstance(value, dict)}
+    for found in pm.hook.ll_config_keys():
+        for table, keys in (found or {}).items():
+            known.setdefault(table, set()).update(keys)
+    for name, value in config.items():
+        if name == "as_of":
+            continue
+        if name not in known:
+            tables = ", ".join(f"[{t}]" for t in sorted(known))
+            raise ConfigError(f"{CONFIG_NAME}: no plugin reads a setting '{name}' (the tables read: {tables}, and "
+                              "as_of); is it misspelt?")
+        if not isinstance(value, dict):
+            raise ConfigError(f"{CONFIG_NAME}: [{name}] must be a table")
+        for key in value:
+            if key not in known[name]:
+                raise ConfigError(f"{CONFIG_NAME}: [{name}] has no setting '{key}' (known: "
+                                  f"{', '.join(sorted(known[name]))}); is it misspelt?")
 
 
 def _named(groups: list[list[Any]], what: str) -> dict[str, Any]:

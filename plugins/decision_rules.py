@@ -123,6 +123,11 @@ def ll_decision_rules() -> list[DecisionRule]:
 
 
 @hookimpl
+def ll_config_keys() -> dict[str, list[str]]:
+    return {"decision": ["risk_target"]}
+
+
+@hookimpl
 def ll_configure(config: dict[str, Any]) -> list[Finding]:
     decision = config.get("decision", {})
     if not isinstance(decision, dict) or "risk_target" not in decision:

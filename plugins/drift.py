@@ -169,6 +169,11 @@ def ll_history(ctx: RunContext) -> list[Finding]:
 
 
 @hookimpl
+def ll_config_keys() -> dict[str, list[str]]:
+    return {"drift": list(DEFAULTS)}
+
+
+@hookimpl
 def ll_configure(config: dict[str, Any]) -> list[Finding]:
     section = config.get("drift", {})
     if not isinstance(section, dict):

@@ -291,6 +291,11 @@ def shown(pfa: pd.Series, limit: float) -> tuple[pd.Series, pd.Series]:
 
 
 @hookimpl
+def ll_config_keys() -> dict[str, list[str]]:
+    return {"intervals": list(DEFAULTS)}
+
+
+@hookimpl
 def ll_configure(config: dict[str, Any]) -> list[Finding]:
     section = config.get("intervals", {})
     if not isinstance(section, dict):

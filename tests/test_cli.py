@@ -160,3 +160,18 @@ def test_a_command_naming_an_asset_left_out_for_errors_says_so(tmp_path, capsys)
         assert main([*command, "--evidence", str(ev)]) == 3
         said = capsys.readouterr().err
         assert f"asset 'T-BAD' has errors in {ev / 'assets.csv'} (line 3): put them right first" in said, said
+
+
+@pytest.mark.parametrize(("toml", "said"), [
+    # a misspelt table once left the guard-banded rule silently unused: the run judged by the simple rule
+    ('[decison]\nrule = "guarded"\n', "no plugin reads a setting 'decison'"),
+    ('rule = "guarded"\n', "no plugin reads a setting 'rule'"),
+    ("[limits]\nmax_point = 5\n", "[limits] has no setting 'max_point' (known: max_file_bytes, max_points, "
+                                  "max_repeats)"),
+    ("[decision]\nrisk_tagret = 0.02\n", "[decision] has no setting 'risk_tagret' (known: risk_target, rule)"),
+])
+def test_a_setting_nothing_reads_is_a_configuration_error(tmp_path, capsys, toml, said):
+    ev = write_evidence(tmp_path / "ev", {"t.yaml": result_yaml(as_found=good_points())},
+                        config="as_of = 2026-11-30\n" + toml)
+    assert main(["check", str(ev)]) == 3
+    assert said in capsys.readouterr().err
