@@ -51,7 +51,7 @@ def minimax_line(x: np.ndarray, y: np.ndarray) -> tuple[float, float, float]:
     from scipy.optimize import linprog
 
     n = len(x)
-    if n == 0:
+    if n == 0 or not (np.isfinite(x).all() and np.isfinite(y).all()):  # no line through an infinite value
         return np.nan, np.nan, np.nan
     ones = np.ones(n)
     a_ub = np.vstack([np.column_stack([-ones, -x, -ones]), np.column_stack([ones, x, -ones])])

@@ -22,6 +22,7 @@ def ratio(text: pd.Series) -> pd.Series:
     codes, distinct = pd.factorize(text.astype("string"), use_na_sentinel=True)
     parts = pd.Series(distinct, dtype="string").str.extract(r"^\s*([\d.]+)\s*/\s*([\d.]+)\s*$")
     each = pd.to_numeric(parts[0], errors="coerce") / pd.to_numeric(parts[1], errors="coerce")
+    each = each.where(np.isfinite(each) & (each > 0))  # the schemas refuse 0/1 and 1/0; never infinite here
     return pd.Series(each.array.take(codes, allow_fill=True), index=text.index)
 
 

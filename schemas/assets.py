@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import pandera.pandas as pa
+from loopledger.schemas.signals import RATIO_ERROR, ratio_ok
 from pandera.typing import Series
 
 #: an asset id is used in page names: no path separators or control characters
@@ -34,7 +35,7 @@ class AssetsFile(pa.DataFrameModel):
     output_unit: Series[str]
     characteristic: Series[str] = pa.Field(isin=["linear", "sqrt"], nullable=True)
     accuracy: Series[str]
-    ct_ratio: Series[str] = pa.Field(nullable=True, str_matches=r"^\s*\d+(\.\d+)?\s*/\s*\d+(\.\d+)?\s*$")
+    ct_ratio: Series[str] = pa.Field(nullable=True)
     display_min: Series[float] = pa.Field(nullable=True)
     display_max: Series[float] = pa.Field(nullable=True)
     display_unit: Series[str] = pa.Field(nullable=True)
@@ -48,6 +49,10 @@ class AssetsFile(pa.DataFrameModel):
     cable_length_m: Series[float] = pa.Field(nullable=True, ge=0)
     #: whole months, at most 20 years (our own bound: a longer plan is taken for a typing error)
     interval_months: Series[float] = pa.Field(nullable=True, gt=0, le=240)
+
+    @pa.check("ct_ratio", error=RATIO_ERROR)
+    def ct_ratio_ok(cls, col):  # type: ignore[no-untyped-def]
+        return ratio_ok(col)
 
     @pa.check("interval_months", error="must be a whole number of months")
     def whole_months(cls, col):  # type: ignore[no-untyped-def]

@@ -12,8 +12,17 @@ from __future__ import annotations
 import pandera.pandas as pa
 from pandera.typing import Series
 
-#: an instrument-transformer ratio such as ``11000/110``
-RATIO = r"^\s*\d+(\.\d+)?\s*/\s*\d+(\.\d+)?\s*$"
+#: a number above zero as a ratio's side: a non-zero digit before the point or after it
+_SIDE = r"(?:\d*[1-9]\d*(?:\.\d+)?|\d+\.\d*[1-9]\d*)"
+#: an instrument-transformer ratio such as ``11000/110`` (both sides above zero: ``0/1`` once made every
+#: expected value infinite and crashed the linearity fit)
+RATIO = rf"^\s*{_SIDE}\s*/\s*{_SIDE}\s*$"
+RATIO_ERROR = "must be a ratio of two numbers above zero, such as 2000/1"
+
+
+def ratio_ok(series):  # type: ignore[no-untyped-def]
+    """Blank, or a ratio as :data:`RATIO` has it."""
+    return series.isna() | series.astype(str).str.fullmatch(RATIO)
 #: thermocouple types with IEC 60584-1 reference functions
 TC_TYPES = ["B", "E", "J", "K", "N", "R", "S", "T"]
 
@@ -29,14 +38,22 @@ class _Columns(pa.DataFrameModel):
 class VoltageTransducerColumns(_Columns):
     """``voltage-transducer``: ``vt_ratio`` (e.g. ``11000/110``) for primary injection."""
 
-    vt_ratio: Series[str] = pa.Field(nullable=True, str_matches=RATIO)
+    vt_ratio: Series[str] = pa.Field(nullable=True)
+
+    @pa.check("vt_ratio", error=RATIO_ERROR)
+    def vt_ratio_ok(cls, col):  # type: ignore[no-untyped-def]
+        return ratio_ok(col)
 
 
 class PowerTransducerColumns(_Columns):
     """``power-transducer``: ``ct_ratio`` and ``vt_ratio``; primary power = secondary × both."""
 
-    ct_ratio: Series[str] = pa.Field(nullable=True, str_matches=RATIO)
-    vt_ratio: Series[str] = pa.Field(nullable=True, str_matches=RATIO)
+    ct_ratio: Series[str] = pa.Field(nullable=True)
+    vt_ratio: Series[str] = pa.Field(nullable=True)
+
+    @pa.check("ct_ratio", "vt_ratio", error=RATIO_ERROR)
+    def ratios_ok(cls, col):  # type: ignore[no-untyped-def]
+        return ratio_ok(col)
 
 
 class ProcessTransmitterColumns(_Columns):

@@ -241,6 +241,9 @@ def _edit_asset(ev, **cells: str) -> None:
     # units: each must be one pint knows; an output is read as a current or a voltage
     ({"input_unit": "amperez"}, "input_unit", "'amperez' is not a unit loopledger knows"),
     ({"output_unit": "mAh"}, "output_unit", "'mAh' is not a current or a voltage"),
+    # a ratio of 0/1 once made every expected value infinite and crashed the linearity fit (exit code 4)
+    ({"ct_ratio": "0/1"}, "ct_ratio", "'0/1' must be a ratio of two numbers above zero, such as 2000/1"),
+    ({"ct_ratio": "2000/0"}, "ct_ratio", "must be a ratio of two numbers above zero"),
 ])
 def test_an_asset_row_that_gives_no_sound_limit_or_interval_is_refused(tmp_path, run_folder, cells, field, said):
     """The row is reported at its line and field; the asset's result file is invalid (not failed, not
