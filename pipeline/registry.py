@@ -85,7 +85,8 @@ def _check_units_and_accuracy(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[F
             except ValueError as exc:
                 bad.append(index)
                 findings.append(error(f"{field}: {exc}", file=ASSETS, line=int(index) + 2, field=field))
-    for index, text, unit in zip(frame.index, frame["accuracy"], frame["output_unit"], strict=True):
+    for index, text, unit, low, high in zip(frame.index, frame["accuracy"], frame["output_unit"],
+                                            frame["output_min"], frame["output_max"], strict=True):
         if index in bad:
             continue
         try:
@@ -93,7 +94,11 @@ def _check_units_and_accuracy(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[F
             if spec.pct_range or spec.digits:
                 raise ValueError("% of range and digits are meter terms; for an asset write a class index "
                                  "(0.5), % of span (0.25 %span), % of reading (0.1 %rdg) or an amount (0.08 mA)")
-            spec.half_width(1.0, span=1.0, unit=str(unit))
+            span = abs(float(high) - float(low))
+            widest = float(spec.half_width(max(abs(float(low)), abs(float(high))), span=span, unit=str(unit)))
+            if not math.isfinite(widest) or widest >= span / 2:  # a bound of our own
+                raise ValueError(f"it allows ±{widest:.3g} {unit}, half the output span or more: every "
+                                 "reading would pass (a slip of the decimal point?)")
         except ValueError as exc:
             bad.append(index)
             findings.append(error(f"accuracy '{text}': {exc}", file=ASSETS, line=int(index) + 2, field="accuracy"))

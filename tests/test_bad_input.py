@@ -235,6 +235,8 @@ def _edit_asset(ev, **cells: str) -> None:
     # % of range and digits are meter terms; read as zero for an asset they failed a good device
     ({"accuracy": "0.1 %fs"}, "accuracy", "meter terms"),
     ({"accuracy": "0.05 V"}, "accuracy", "is not in mA"),
+    # an accuracy class of 50 (for 0.50) allows ±8 mA on 4-20 mA: every reading would pass
+    ({"accuracy": "50"}, "accuracy", "it allows ±8 mA, half the output span or more"),
     # an interval of billions of months once crashed the due-date arithmetic
     ({"interval_months": "99999999999"}, "interval_months", "must be at most 240"),
     ({"interval_months": "1.5"}, "interval_months", "must be a whole number of months"),
