@@ -129,6 +129,16 @@ def test_no_valid_record_makes_a_stage_raise(recs: list[dict[str, object]]) -> N
     assert ctx.points["error"].notna().all() and ctx.points["mpe"].notna().all()
 
 
+def _judged_or_named(ctx: runner.RunContext, good: str) -> None:
+    """``good`` passed; every other file judged, or invalid with an error naming it (and only then)."""
+    verdicts = ctx.tests.set_index("source_file")["verdict"].to_dict()
+    assert verdicts.pop(good) == "pass", [f.format() for f in ctx.findings]
+    named = {f.file for f in ctx.findings if f.severity == "error"}
+    for rel, verdict in verdicts.items():
+        assert verdict in {"pass", "fail", "adjusted", "invalid"}, (rel, verdict)
+        assert (verdict == "invalid") == (rel in named), (rel, verdict, [f.format() for f in ctx.findings])
+
+
 #: any value a spreadsheet or a hand-edited file might put in a field
 hostile = st.one_of(st.text(max_size=12), st.floats(allow_nan=True, allow_infinity=True),
                     st.integers(-10**15, 10**15), st.none(), st.booleans(),
@@ -153,13 +163,7 @@ def test_a_damaged_field_never_hides_or_spares_another_file(damage: list[tuple[s
             results[f"d{i}.yaml"] = result_yaml(as_found=pts, date=f"2025-0{i + 1}-01")  # type: ignore[arg-type]
         else:
             results[f"d{i}.yaml"] = result_yaml(as_found=good, **{"date": f"2025-0{i + 1}-01", name: value})
-    ctx = _run(results, [CT_ASSET])
-    verdicts = ctx.tests.set_index("source_file")["verdict"].to_dict()
-    assert verdicts.pop("results/good.yaml") == "pass"
-    named = {f.file for f in ctx.findings if f.severity == "error"}
-    for rel, verdict in verdicts.items():
-        assert verdict in {"pass", "fail", "adjusted", "invalid"}, (rel, verdict)
-        assert (verdict == "invalid") == (rel in named), (rel, verdict, [f.format() for f in ctx.findings])
+    _judged_or_named(_run(results, [CT_ASSET]), "results/good.yaml")
 
 
 CSV_FIELDS = ["asset", "date", "technician", "connection", "method", "injection", "ambient_c", "source", "meter",
@@ -190,13 +194,7 @@ def test_a_damaged_csv_cell_never_hides_or_spares_another_file(damage: list[tupl
 
     results = {"good.csv": table("2026-01-01")}
     results.update({f"d{i}.csv": table(f"2025-0{i + 1}-01", name, value) for i, (name, value) in enumerate(damage)})
-    ctx = _run(results, [CT_ASSET])
-    verdicts = ctx.tests.set_index("source_file")["verdict"].to_dict()
-    assert verdicts.pop("results/good.csv") == "pass"
-    named = {f.file for f in ctx.findings if f.severity == "error"}
-    for rel, verdict in verdicts.items():
-        assert verdict in {"pass", "fail", "adjusted", "invalid"}, (rel, verdict)
-        assert (verdict == "invalid") == (rel in named), (rel, verdict, [f.format() for f in ctx.findings])
+    _judged_or_named(_run(results, [CT_ASSET]), "results/good.csv")
 
 
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
