@@ -314,3 +314,15 @@ def test_out_inside_evidence_is_refused(tmp_path: Path, capsys: pytest.CaptureFi
     assert main(["run", str(ev), "--out", str(ev / "build")]) == 3
     assert "inside the evidence folder" in capsys.readouterr().err
     assert _tree_hash(ev) == before
+
+
+@pytest.mark.parametrize("option", ["--out", "--cache"])
+def test_out_or_cache_naming_a_file_is_refused(tmp_path: Path, capsys: pytest.CaptureFixture[str], option: str) -> None:
+    """It said '[Errno 17] File exists' from deep in the writer; the file is left as it was."""
+    ev = write_evidence(tmp_path / "ev", {GOOD_NAME: GOOD})
+    target = tmp_path / "a-file"
+    target.write_text("keep me\n", encoding="utf-8")
+    args = ["run", str(ev), "--out", str(tmp_path / "out")] if option == "--cache" else ["run", str(ev)]
+    assert main([*args, option, str(target)]) == 3
+    assert f"{option} '{target}' is a file; name a folder" in capsys.readouterr().err
+    assert target.read_text(encoding="utf-8") == "keep me\n"

@@ -50,6 +50,8 @@ def outside_evidence(evidence: Path, path: Path, what: str) -> Path:
     resolved = path.resolve()
     if resolved == ev or ev in resolved.parents:
         raise ConfigError(f"{what} '{resolved}' is inside the evidence folder; outputs never go there")
+    if resolved.exists() and not resolved.is_dir():
+        raise ConfigError(f"{what} '{path}' is a file; name a folder (it is made if it is not there)")
     return resolved
 
 
