@@ -137,8 +137,8 @@ def test_tables_that_cannot_be_written_leave_the_previous_ones_and_say_why_once(
     assert {p.name: p.read_bytes() for p in (out / "data").iterdir()} == before
     assert {p.name: p.read_bytes() for p in (out / "data").iterdir()} == before
     assert {p.relative_to(out): p.read_bytes() for p in (out / "handbook").rglob("*") if p.is_file()} == pages
-    assert [p.name for p in out.iterdir() if p.name.startswith(".")] in ([], [".loopledger-cache"]), \
-        "a staging folder was left behind"
+    assert sorted(p.name for p in out.iterdir() if p.name.startswith(".")) in (
+        [".loopledger.lock"], [".loopledger-cache", ".loopledger.lock"]), "a staging folder was left behind"
 
 
 def test_staging_folders_a_killed_run_left_are_cleared_by_the_next(tmp_path):
@@ -148,7 +148,7 @@ def test_staging_folders_a_killed_run_left_are_cleared_by_the_next(tmp_path):
         (out / name / "tests").mkdir(parents=True)
         (out / name / "tests" / "half.html").write_text("<p>half a page", encoding="utf-8")
     assert main(["run", str(ev), "--out", str(out), "--no-cache"]) == 0
-    assert sorted(p.name for p in out.iterdir()) == ["data", "handbook"]
+    assert sorted(p.name for p in out.iterdir()) == [".loopledger.lock", "data", "handbook"]
 
 
 def test_a_command_naming_an_asset_left_out_for_errors_says_so(tmp_path, capsys):

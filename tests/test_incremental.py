@@ -281,7 +281,8 @@ def test_a_killed_run_leaves_the_previous_outputs_whole(tmp_path, capsys):
             proc.send_signal(signal.SIGKILL)
         proc.wait(timeout=60)
         now = _digest(out)
-        assert {p for p in now if not p.startswith(".")} == set(before), "an output disappeared or appeared"
+        assert {p for p in now if not p.startswith(".")} == {p for p in before if not p.startswith(".")}, \
+            "an output disappeared or appeared"
         for folder in ("data/", "handbook/"):
             part_now = {k: v for k, v in now.items() if k.startswith(folder)}
             part_before = {k: v for k, v in before.items() if k.startswith(folder)}
@@ -342,3 +343,26 @@ def test_plain_git_hook_checks_staged_result_files(tmp_path):
     assert reg.returncode == 2, reg.stdout + reg.stderr
     assert "assets.csv:2: error: accuracy '-0.5'" in reg.stdout
     assert "results/a.yaml" in reg.stdout and "1 file(s), 0 failing, 1 invalid" in reg.stdout
+
+
+def test_a_second_run_into_the_same_out_waits_for_the_first(tmp_path):
+    """Two runs writing one OUT at once would each take the other's staging folder for a killed run's
+    leftovers and remove it. While a run holds OUT's lock a second one says it is waiting and does not
+    touch OUT; it goes on when the lock is let go."""
+    import fcntl
+
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(as_found=good_points())})
+    out = tmp_path / "out"
+    out.mkdir()
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    with open(out / ".loopledger.lock", "a+b") as held:
+        fcntl.flock(held.fileno(), fcntl.LOCK_EX)  # as a first run holds it
+        proc = subprocess.Popen([sys.executable, "-m", "loopledger", "run", str(ev), "--out", str(out)], env=env,
+                                stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
+        time.sleep(8)  # time to start and reach the lock (a run of this folder takes a few seconds)
+        assert proc.poll() is None, "the second run did not wait"
+        assert sorted(p.name for p in out.iterdir()) == [".loopledger.lock"], "the waiting run wrote into OUT"
+        fcntl.flock(held.fileno(), fcntl.LOCK_UN)
+    assert proc.wait(timeout=120) == 0
+    assert "another run is writing to" in proc.stderr.read()
+    assert (out / "handbook" / "index.html").is_file()

@@ -98,7 +98,11 @@ def main(args: argparse.Namespace) -> int:
         from loopledger.config import ConfigError
 
         raise ConfigError(f"evidence folder '{args.evidence}' does not exist")
-    return cached(args, cache_for(args), _full)
+    from loopledger.output import exclusive
+
+    cache = cache_for(args)
+    with exclusive(outside_evidence(args.evidence, args.out, "--out"), sys.stderr.write):
+        return cached(args, cache, _full)
 
 
 def cached(args: argparse.Namespace, cache: incremental.Cache | None,
