@@ -61,7 +61,7 @@ def _cell(value: Any) -> str:
     schema check wants it; an empty cell as ''."""
     import datetime as dt
 
-    if value is None or (isinstance(value, float) and value != value):
+    if value is None or value != value:  # NaN, NaT: an empty cell
         return ""
     if isinstance(value, dt.datetime) and value.time() == dt.time(0, 0):
         return value.date().isoformat()
