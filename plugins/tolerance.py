@@ -48,8 +48,8 @@ def mpe(points: pd.DataFrame) -> tuple[pd.Series, list[Finding]]:
         try:
             spec = q.parse_spec(str(text))
             out[idx] = spec.half_width(rows["expected"], span=rows["span"].abs(), unit=str(unit))
-        except ValueError as exc:  # the registry refuses such rows; a plugin's asset columns may not
-            # on the result files, so they are invalid rather than failed against a limit that is not there
+        except ValueError as exc:  # a safety net (the registry refuses such rows): the error goes on the
+            # result files, which are then invalid rather than failed against a limit that is not there
             for rel, asset in rows[["source_file", "asset"]].drop_duplicates().itertuples(index=False):
                 findings.append(error(f"asset {asset}: accuracy '{text}' gives no limit: {exc}", file=rel,
                                       field="accuracy"))
