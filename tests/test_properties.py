@@ -24,6 +24,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+import pytest
 from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 from loopledger import runner
@@ -197,6 +198,7 @@ def test_a_damaged_csv_cell_never_hides_or_spares_another_file(damage: list[tupl
     _judged_or_named(_run(results, [CT_ASSET]), "results/good.csv")
 
 
+@pytest.mark.filterwarnings("ignore:overflow encountered:RuntimeWarning")  # 1e308 ohm of cable, say: numpy says so
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(st.lists(st.tuples(st.sampled_from(ASSET_COLUMNS), cell), min_size=1, max_size=3))
 @example(damage=[("input_unit", "mAh")])
