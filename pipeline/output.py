@@ -59,6 +59,9 @@ def exclusive(folder: Path, say: Callable[[str], Any] | None = None) -> Iterator
             if say is not None:
                 say(f"loopledger: another run is writing to '{folder}'; waiting for it to finish\n")
             fcntl.flock(fh.fileno(), fcntl.LOCK_EX)
+        except OSError:  # a file system that keeps no locks (some network shares): run as before, unlocked
+            yield
+            return
         try:
             yield
         finally:
