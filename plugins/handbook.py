@@ -111,6 +111,7 @@ def environment() -> Any:
             loader=jinja2.PackageLoader("loopledger.site", "templates"),
             autoescape=True, undefined=jinja2.ChainableUndefined, trim_blocks=True, lstrip_blocks=True,
             keep_trailing_newline=True, auto_reload=False,  # templates do not change during a run: no stat per page
+            finalize=_shown,
         )
         env.filters["num"] = _num
         env.filters["signed"] = lambda v, d=3: _num(v, d, sign=True)
@@ -121,6 +122,13 @@ def environment() -> Any:
         env.globals["verdict"] = page_html.verdict
         _ENV = env
     return _ENV
+
+
+def _shown(value: Any) -> Any:
+    """What a page shows for a value: a missing one (None, NaN) as a dash, never the words 'None' or 'nan'."""
+    if value is None or (isinstance(value, float) and value != value):
+        return "—"
+    return value
 
 
 def _g(value: Any) -> str:

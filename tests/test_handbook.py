@@ -547,3 +547,18 @@ def test_register_problems_are_shown_on_the_index(tmp_path):
     assert "Problems in the registers (1)" in page
     assert "assets.csv:3: error: accuracy '-1': accuracy term '-1' must be a non-negative number" in page
     assert "T-BAD" not in page.split("Assets by site and area")[1]  # left out of the register's table
+
+
+def test_a_never_tested_asset_reads_never_tested_not_none(tmp_path):
+    """An asset in the register with no valid test is overdue; its 'was due' once read 'None' on the index
+    and the overdue page. No page shows the words None or nan for a missing value."""
+    ev = write_evidence(tmp_path / "ev", {"t.yaml": result_yaml(as_found=good_points())},
+                        assets=[CT_ASSET, {**CT_ASSET, "asset": "T-NEW"}])
+    main(["run", str(ev), "--out", str(tmp_path / "out")])
+    site = tmp_path / "out" / "handbook"
+    overdue = (site / "overdue.html").read_text(encoding="utf-8")
+    assert "T-NEW" in overdue and "<td>never tested</td>" in overdue
+    assert "— never tested</li>" in (site / "index.html").read_text(encoding="utf-8")
+    for page in site.rglob("*.html"):
+        text = re.sub(r"<[^>]+>", " ", page.read_text(encoding="utf-8"))
+        assert not re.search(r"\b(None(?!\.)|nan|NaT)\b", text), page  # "None." is the pages' word for an empty list
