@@ -87,7 +87,11 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 130
     if code is not None:
         return code
-    parser, runners = build_parser()
+    try:
+        parser, runners = build_parser()  # loads the installed plugins, for their subcommands
+    except ConfigError as exc:
+        sys.stderr.write(f"loopledger: configuration error: {exc}\n")
+        return EXIT_USAGE
     args = parser.parse_args(argv)
     args.looked = looked  # the cache the quick path already compared with the evidence folder
     if not args.command:

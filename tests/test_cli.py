@@ -175,3 +175,24 @@ def test_a_setting_nothing_reads_is_a_configuration_error(tmp_path, capsys, toml
                         config="as_of = 2026-11-30\n" + toml)
     assert main(["check", str(ev)]) == 3
     assert said in capsys.readouterr().err
+
+
+def test_an_installed_plugin_that_does_not_import_is_named(monkeypatch, capsys):
+    """A site plugin with a broken import stopped every command with 'internal error (a bug ...)'; the
+    message names the entry point, and the exit code is a configuration error's (3)."""
+    import importlib.metadata
+
+    import pluggy
+
+    def broken_load(self, group, name=None):  # what pluggy meets when the plugin's module raises
+        raise ModuleNotFoundError("No module named 'site_extras'")
+
+    fake = importlib.metadata.EntryPoint(name="site_plugin", value="site_plugin_that_is_not_there", group="loopledger")
+    monkeypatch.setattr(pluggy.PluginManager, "load_setuptools_entrypoints", broken_load)
+    real = importlib.metadata.entry_points
+    monkeypatch.setattr(importlib.metadata, "entry_points",
+                        lambda **kw: [fake] if kw.get("group") == "loopledger" else real(**kw))
+    assert main(["plugins"]) == 3
+    err = capsys.readouterr().err
+    assert "the installed plugin 'site_plugin = site_plugin_that_is_not_there' could not be loaded" in err
+    assert "internal error" not in err
