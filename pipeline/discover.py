@@ -8,6 +8,7 @@ from pathlib import Path
 
 from loopledger.contracts import SourceFile
 from loopledger.findings import Finding, error, warning
+from loopledger.incremental import REGISTRY_FILES
 
 RESULTS_DIR = "results"
 RESULT_SUFFIXES = (".yaml", ".yml", ".csv", ".xlsx")
@@ -72,10 +73,6 @@ def _walk(root: Path, evidence: Path) -> tuple[list[SourceFile], list[Finding]]:
     return found, findings
 
 
-#: the evidence folder's own files besides results/: naming one judges every result file
-REGISTERS = ("assets.csv", "instruments.yaml", "loopledger.toml")
-
-
 def select(evidence: Path, paths: list[Path]) -> tuple[list[SourceFile], list[Finding]]:
     """The result files named on a command line: files, or folders searched like ``results/``.
 
@@ -110,7 +107,7 @@ def select(evidence: Path, paths: list[Path]) -> tuple[list[SourceFile], list[Fi
             chosen.update((s.rel, s) for s in found)
         elif given.is_file():
             rel = rel_path.as_posix()
-            if rel in REGISTERS and results.is_dir():  # a register changed: any verdict may have changed with it
+            if rel in REGISTRY_FILES and results.is_dir():  # a register changed: any verdict may have changed with it
                 found, more = _walk(results, base)
                 findings += more
                 chosen.update((s.rel, s) for s in found)

@@ -32,6 +32,7 @@ VERSION = 1
 CACHE_NAME = ".loopledger-cache"
 MANIFEST = "manifest.json"
 PARSED = "parsed.json"
+#: the evidence folder's own files besides results/ (a change to one may change any verdict)
 REGISTRY_FILES = ("assets.csv", "instruments.yaml", "loopledger.toml")
 _ANSI = re.compile(r"\x1b\[[0-9;?]*[A-Za-z]")
 

@@ -29,7 +29,7 @@ def load_assets(evidence: Path) -> tuple[pd.DataFrame, list[Finding], dict[str, 
     """assets.csv validated against :class:`AssetsFile`; bad rows are dropped and reported, and returned
     as the ids they gave with their line numbers (so a result file of such an asset can say why it is not
     judged)."""
-    from loopledger.plugins._text import decode
+    from loopledger.plugins._text import decode, other_separator
     from loopledger.schemas.assets import OPTIONAL, REQUIRED, AssetsFile
 
     path = evidence / ASSETS
@@ -42,9 +42,9 @@ def load_assets(evidence: Path) -> tuple[pd.DataFrame, list[Finding], dict[str, 
     except (ValueError, pd.errors.ParserError) as exc:
         return empty, [error(f"cannot read: {exc}", file=ASSETS)], {}
     frame.columns = [str(c).strip() for c in frame.columns]
-    if len(frame.columns) == 1 and (sep := next((c for c in ";\t|" if c in frame.columns[0]), None)):
-        name = "tabs" if sep == "\t" else repr(sep)
-        return empty, [error(f"the columns are separated by {name}, not commas: save it as comma-separated CSV "
+    sep = other_separator(list(frame.columns))
+    if sep is not None:
+        return empty, [error(f"the columns are separated by {sep}, not commas: save it as comma-separated CSV "
                              "with '.' as the decimal mark", file=ASSETS, line=1)], {}
     for name in OPTIONAL:  # a column left out is read as one left empty (pd.NA put in as such cannot be coerced)
         if name not in frame.columns:

@@ -1,4 +1,5 @@
-"""Helpers shared by the readers: decoding bytes into text with a clear message."""
+"""Helpers shared by the readers: decoding bytes into text with a clear message, and naming a table's
+separator when it is not a comma."""
 
 from __future__ import annotations
 
@@ -28,3 +29,12 @@ def decode(data: bytes) -> str:
                              "save the file as UTF-8") from exc
     return text.replace("\r\n", "\n").replace("\r", "\n")
 
+
+
+def other_separator(header: list[str]) -> str | None:
+    """How to name the separator of a table read as one column that holds ';', a tab or '|' (a sheet saved
+    where the list separator is ';', and the decimal mark a comma): "';'", "tabs", "'|'"; None otherwise."""
+    if len(header) != 1:
+        return None
+    sep = next((c for c in ";\t|" if c in header[0]), None)
+    return None if sep is None else "tabs" if sep == "\t" else repr(sep)

@@ -18,7 +18,7 @@ from loopledger.contracts import ResultRead
 from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.load import HEADER_FIELDS, POINT_FIELDS
-from loopledger.plugins._text import decode
+from loopledger.plugins._text import decode, other_separator
 
 UNIT_COLUMNS = {"input_unit": ("input",), "reading_unit": ("reading", "reading_min", "reading_max", "readings")}
 KNOWN = {*HEADER_FIELDS, *POINT_FIELDS, "phase", *UNIT_COLUMNS}
@@ -40,11 +40,10 @@ def _table(path: Path, data: bytes) -> Table:
     header = next(reader, None)
     if header is None:
         return [], []
-    if len(header) == 1:
-        sep = next((s for s in (";", "\t", "|") if s in header[0]), None)
-        if sep is not None:  # a sheet saved where the list separator is ';' (and the decimal mark, a comma)
-            raise BadShape(f"the columns are separated by {'tabs' if sep == chr(9) else repr(sep)}, not commas: save "
-                           "the sheet as comma-separated CSV with '.' as the decimal mark, or write it as YAML", 1)
+    sep = other_separator(header)
+    if sep is not None:
+        raise BadShape(f"the columns are separated by {sep}, not commas: save the sheet as comma-separated CSV "
+                       "with '.' as the decimal mark, or write it as YAML", 1)
     rows: list[tuple[int, list[str]]] = []
     start = 2
     for cells in reader:

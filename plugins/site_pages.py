@@ -22,6 +22,7 @@ from loopledger import quantities as q
 from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.findings import by_file
+from loopledger.incremental import REGISTRY_FILES
 
 CAUTIONS = [
     "Never open-circuit the secondary of a current transformer that may carry primary current: "
@@ -319,10 +320,6 @@ TEST_COLS = ["test", "page", "asset", "asset_page", "date", "technician", "verdi
              "source_file", "reference_out_of_cal", "reference_issues", "valid"]
 
 
-#: the evidence folder's files that are not result files: a problem in one is shown on the index page
-REGISTERS = ("assets.csv", "instruments.yaml", "loopledger.toml")
-
-
 def index_data(ctx: RunContext, assets: pd.DataFrame, tests: pd.DataFrame) -> dict[str, Any]:
     groups = []
     filled = assets.assign(site=assets["site"].fillna("").astype(str), area=assets["area"].fillna("").astype(str)) \
@@ -339,7 +336,7 @@ def index_data(ctx: RunContext, assets: pd.DataFrame, tests: pd.DataFrame) -> di
             "action": {"failed": records(failed, ASSET_COLS), "overdue": records(overdue, ASSET_COLS),
                        "predicted": records(predicted, ASSET_COLS),
                        "reference": records(ref, TEST_COLS), "invalid": records(invalid, TEST_COLS),
-                       "registers": [f.format() for f in ctx.findings if f.file in REGISTERS]},
+                       "registers": [f.format() for f in ctx.findings if f.file in REGISTRY_FILES]},
             "history_available": isinstance(ctx.extras.get("assets_summary"), pd.DataFrame)}
 
 
