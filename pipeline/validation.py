@@ -90,13 +90,12 @@ def validate(frame: pd.DataFrame, model: Any, where: Callable[[Any], dict[str, A
         index = case.index
         whole = index is None or (isinstance(index, float) and pd.isna(index))
         if check == "column_in_dataframe":  # pandera names the model as the column, and the column as the case
-            column = str(case.failure_case)
-        if not whole and case.schema_context == "DataFrameSchema":
+            column, message = str(case.failure_case), describe(check, case.failure_case)
+        elif not whole and case.schema_context == "DataFrameSchema":
             # a check across the row: pandera lists every cell of a failing row; said once, of the columns it names
             column, message = _row_check(frame, index, check)
         else:
-            message = describe(check, case.failure_case) if check == "column_in_dataframe" else \
-                f"{(column or 'table') if whole else column} {describe(check, case.failure_case)}".strip()
+            message = f"{(column or 'table') if whole else column} {describe(check, case.failure_case)}".strip()
         if (column, None if whole else index, message) in said:
             continue
         said.add((column, None if whole else index, message))

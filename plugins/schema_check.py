@@ -51,20 +51,17 @@ def check_tests(ctx: RunContext) -> list[Finding]:
             findings.append(error(f"the header could not be checked ({unpinned or 'no reason given'})", file=rel))
     today = dt.date.today()
     dates = date_part(checked["date"])
-    for idx in checked.index[dates.dt.date > today]:
-        rel = checked.at[idx, "source_file"]
-        findings.append(error(f"date {checked.at[idx, 'date']} is in the future", file=rel,
-                              line=lines.get(rel, {}).get("date", 0), field="date"))
-    for idx in checked.index[dates.dt.date < EARLIEST]:
-        rel = checked.at[idx, "source_file"]
-        findings.append(error(f"date {checked.at[idx, 'date']} is before {EARLIEST.year}: a typing error?", file=rel,
-                              line=lines.get(rel, {}).get("date", 0), field="date"))
-    for idx in checked.index[(dates.dt.date > ctx.as_of) & (dates.dt.date <= today)]:
-        rel = checked.at[idx, "source_file"]
-        findings.append(warning(f"date {checked.at[idx, 'date']} is after this run's as_of date {ctx.as_of}: the "
-                                "status shown 'as of' that date includes this test (update as_of in "
-                                "loopledger.toml, or give --as-of)", file=rel,
-                                line=lines.get(rel, {}).get("date", 0), field="date"))
+    day = dates.dt.date
+    for mask, said, text in (
+            (day > today, error, "is in the future"),
+            (day < EARLIEST, error, f"is before {EARLIEST.year}: a typing error?"),
+            ((day > ctx.as_of) & (day <= today), warning,
+             f"is after this run's as_of date {ctx.as_of}: the status shown 'as of' that date includes this test "
+             "(update as_of in loopledger.toml, or give --as-of)")):
+        for idx in checked.index[mask]:
+            rel = checked.at[idx, "source_file"]
+            findings.append(said(f"date {checked.at[idx, 'date']} {text}", file=rel,
+                                 line=lines.get(rel, {}).get("date", 0), field="date"))
     checked["date"] = dates.dt.strftime("%Y-%m-%d")
     findings += _check_references(ctx, checked, lines)
     findings += _check_duplicate_files(checked, lines)
