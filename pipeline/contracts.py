@@ -38,6 +38,9 @@ class SignalType:
     description: ClassVar[str] = ""
     #: extra assets.csv columns this signal reads, name -> meaning (shown by `loopledger plugins`)
     asset_columns: ClassVar[dict[str, str]] = {}
+    #: one unit of each kind the asset's ``input_unit`` may be (``("A",)`` admits kA and mA as well); an
+    #: asset whose input_unit is of another kind is refused before ``evaluate`` sees it. Empty: any unit
+    input_units: ClassVar[tuple[str, ...]] = ()
 
     def evaluate(self, points: pd.DataFrame, ctx: RunContext) -> tuple[pd.DataFrame, list[Finding]]:
         raise NotImplementedError

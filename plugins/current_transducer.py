@@ -22,6 +22,7 @@ ct_ratio = scaling.ratio
 class CurrentTransducer(SignalType):
     name = "current-transducer"
     description = "Current transducer fed from a current transformer; 4-20 mA (or other) output"
+    input_units = ("A",)
     asset_columns = {"ct_ratio": "current-transformer ratio such as 2000/1, for primary injection"}
 
     def evaluate(self, points: pd.DataFrame, ctx: RunContext) -> tuple[pd.DataFrame, list[Finding]]:

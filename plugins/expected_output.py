@@ -3,7 +3,10 @@
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
+from loopledger import quantities as q
 from loopledger.context import RunContext
+from loopledger.contracts import SignalType
 from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins.scaling import where
@@ -35,6 +38,10 @@ def evaluate_all(ctx: RunContext) -> list[Finding]:
                                "plugin that provides it (`loopledger plugins` lists what is loaded)",
                                file=r.source_file, field="signal") for r in first.itertuples()]
             continue
+        idx, refused = _of_its_kind(pts.loc[idx], handler)
+        findings += refused
+        if idx.empty:
+            continue
         frame, more = handler.evaluate(pts.loc[idx], ctx)
         findings += more
         for col in frame.columns:
@@ -46,3 +53,38 @@ def evaluate_all(ctx: RunContext) -> list[Finding]:
                          "expected output is extrapolated, and a 4-20 mA output stops near 3.8 and 20.5 mA "
                          "(NE 43); check the input written", field="input", **where(pts, i)) for i in outside]
     return findings
+
+
+
+def wrong_kind(points: pd.DataFrame, handler: SignalType) -> dict[str, str]:
+    """The assets among ``points`` whose input_unit is not of a kind ``handler`` takes, with that unit.
+    A current transducer ranged in metres would otherwise be judged on inputs written in %."""
+    if not handler.input_units:
+        return {}
+    kinds = {q.unit_check(u) for u in handler.input_units}
+    wrong: dict[str, str] = {}
+    for asset, unit in points.drop_duplicates("asset")[["asset", "input_unit"]].itertuples(index=False):
+        try:
+            if q.unit_check(q.normalise_unit(str(unit))) in kinds:
+                continue
+        except ValueError:  # not a unit at all (the registry refuses those before any stage runs)
+            pass
+        wrong[str(asset)] = str(unit)
+    return wrong
+
+
+def kind_message(asset: str, unit: str, handler: SignalType) -> str:
+    return (f"asset {asset}: assets.csv input_unit '{unit}' is not a unit a {handler.name} takes as input "
+            f"(one like {' or '.join(handler.input_units)})")
+
+
+def _of_its_kind(points: pd.DataFrame, handler: SignalType) -> tuple[pd.Index, list[Finding]]:
+    """(the rows ``handler`` may evaluate; an error per result file of each asset it may not)."""
+    wrong = wrong_kind(points, handler)
+    if not wrong:
+        return points.index, []
+    refused = points["asset"].astype(str).isin(wrong)
+    files = points.loc[refused].drop_duplicates("source_file")
+    findings = [error(kind_message(str(r.asset), wrong[str(r.asset)], handler), file=str(r.source_file),
+                      field="assets.input_unit") for r in files.itertuples()]
+    return points.index[~refused], findings

@@ -23,6 +23,7 @@ from loopledger.schemas.signals import PowerTransducerColumns
 class PowerTransducer(SignalType):
     name = "power-transducer"
     description = "Power transducer (W, kW, MW; bidirectional ranges such as -500..+500 kW); any output"
+    input_units = ("W",)
     asset_columns = {"ct_ratio": "current-transformer ratio (primary injection)",
                      "vt_ratio": "voltage-transformer ratio (primary injection); primary power = "
                                  "secondary power × ct_ratio × vt_ratio"}

@@ -26,6 +26,7 @@ DEFAULT_R0 = 100.0
 class RtdTransmitter(SignalType):
     name = "rtd-transmitter"
     description = "Platinum RTD transmitter; input as temperature or as decade-box ohms (IEC 60751)"
+    input_units = ("degC",)
     asset_columns = {"r0_ohm": "sensor resistance at 0 °C (blank = 100 ohm, Pt100)"}
 
     def evaluate(self, points: pd.DataFrame, ctx: RunContext) -> tuple[pd.DataFrame, list[Finding]]:

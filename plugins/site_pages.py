@@ -23,6 +23,7 @@ from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.findings import by_file
 from loopledger.incremental import REGISTRY_FILES
+from loopledger.plugins.expected_output import kind_message, wrong_kind
 
 CAUTIONS = [
     "Never open-circuit the secondary of a current transformer that may carry primary current: "
@@ -492,6 +493,11 @@ def _evaluate_planned(ctx: RunContext, frame: pd.DataFrame) -> tuple[pd.DataFram
             notes.update({a: f"no plugin handles signal '{signal}', so no expected values can be given"
                           for a in rows["asset"].unique()})
             continue
+        wrong = wrong_kind(rows, handler)
+        notes.update({a: kind_message(a, unit, handler) for a, unit in wrong.items()})
+        rows = rows[~rows["asset"].astype(str).isin(wrong)]
+        if rows.empty:
+            continue
         try:  # a signal type from a site plugin may not expect planned points: the rest of the site must still build
             evaluated, _ = handler.evaluate(rows, ctx)
             parts.append(rows.assign(**{c: evaluated[c].to_numpy() for c in evaluated.columns}))
@@ -560,7 +566,7 @@ def _sheet(ctx: RunContext, asset: str, plan: dict[str, Any], points: list[tuple
     """One sheet from its planned ``points``: (input %, injected, injected unit, expected, window, MPE)."""
     reg = ctx.assets.loc[asset]
     if points is None or failed:
-        return {"asset": {k: plain(v) for k, v in reg.items()}, "plan": plain(plan), "rows": [], "rule": "",
+        return {"asset": {k: plain(v) for k, v in reg.items()}, "plan": plain(plan), "rows": [], "rule": rule_name,
                 "unit": str(reg.get("output_unit") or ""), "ct_ratio": None, "sections": [],
                 "notes": [failed or f"no plugin handles signal '{reg.get('signal')}', so no expected values "
                                     "can be given"]}

@@ -28,6 +28,7 @@ class ThermocoupleTransmitter(SignalType):
     name = "thermocouple-transmitter"
     description = "Thermocouple transmitter; input as temperature or as mV with cold-junction compensation " \
                   "(IEC 60584-1)"
+    input_units = ("degC",)
     asset_columns = {"tc_type": "thermocouple type: B, E, J, K, N, R, S or T (required)"}
 
     def evaluate(self, points: pd.DataFrame, ctx: RunContext) -> tuple[pd.DataFrame, list[Finding]]:

@@ -30,6 +30,7 @@ def primary_scale(points: pd.DataFrame, ratio: pd.Series, needs: str) -> tuple[p
 class VoltageTransducer(SignalType):
     name = "voltage-transducer"
     description = "Voltage transducer (AC or DC, uni- or bidirectional); mA or V output of any range"
+    input_units = ("V",)
     asset_columns = {"vt_ratio": "voltage-transformer ratio such as 11000/110, for primary injection"}
 
     def evaluate(self, points: pd.DataFrame, ctx: RunContext) -> tuple[pd.DataFrame, list[Finding]]:

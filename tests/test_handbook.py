@@ -354,6 +354,16 @@ def test_sheet_command(tmp_path, capsys):
     assert main(["sheet", "T-CT1", "--evidence", str(ev), "--meter", "NOPE"]) == 3
 
 
+def test_sheet_of_an_asset_ranged_in_a_unit_of_the_wrong_kind(tmp_path, capsys):
+    """pint's dimensionalities: a metre is a [length], a current transducer's input a [current]. The sheet
+    gives no expected values for such an asset, says why, and still names the rule in force."""
+    ev = write_evidence(tmp_path / "ev", {}, assets=[_asset("T-M", input_unit="m")])
+    assert main(["sheet", "T-M", "--evidence", str(ev)]) == 0
+    out = capsys.readouterr().out
+    assert "input_unit 'm' is not a unit a current-transducer takes as input" in out
+    assert "rule 'simple'" in out and "pass from" in out and "12.0800" not in out
+
+
 # --- a real browser ------------------------------------------------------------------------------
 
 @pytest.mark.slow

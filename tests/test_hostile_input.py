@@ -124,6 +124,12 @@ CASES = [
          ["bad/dim.yaml:9", "as_found #1", "field 'reading'", "in units of the output"]),
     Case("wrong-dimension-input", "bad/dimi.yaml", _b(_yaml_points("{input: 0 V, reading: 4.01 mA}", *FIVE[1:])),
          ["bad/dimi.yaml:9", "as_found #1", "field 'input'", "not in units of A"]),
+    # pint's dimensionalities (a general-purpose units library): a furlong is a [length], the input of a
+    # current transducer a [current]; inputs written in % would otherwise be judged against a range in furlongs
+    Case("input-unit-of-wrong-kind", "bad/kind.yaml",
+         _b(_yaml_points(*FIVE).replace("T-CT1", "T-FUR")),
+         ["bad/kind.yaml", "field 'assets.input_unit'", "'furlong' is not a unit a current-transducer takes",
+          "like A"], assets=[{**CT_ASSET, "asset": "T-FUR", "input_unit": "furlong"}]),
     Case("alias-bomb", "bad/bomb.yaml", _b(ALIAS_BOMB),
          ["bad/bomb.yaml", "error", "alias bomb", "expand to more than"]),
     Case("oversized", "bad/big.yaml", _b(_yaml_points(*FIVE) + "remarks: '" + "x" * 2_100_000 + "'\n"),
