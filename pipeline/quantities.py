@@ -34,6 +34,7 @@ PERCENT = "%"
 EVERYDAY = frozenset({
     "A", "mA", "uA", "µA", "kA", "ampere", "amp", "V", "mV", "uV", "µV", "kV", "volt",
     "W", "mW", "kW", "MW", "GW", "watt", "VA", "kVA", "MVA", "volt_ampere", "Hz", "kHz", "hertz",
+    "var", "kvar", "Mvar", "VAr", "kVAr", "MVAr", "volt_ampere_reactive",
     "ohm", "mohm", "kohm", "Mohm", "Ω", "mΩ", "kΩ", "MΩ", "S", "mS", "uS", "µS", "siemens",
     "degC", "degF", "K", "°C", "°F", "celsius", "fahrenheit", "kelvin", "degree_Celsius", "degree_Fahrenheit",
     "bar", "mbar", "Pa", "hPa", "kPa", "MPa", "pascal", "percent", "%", "ppm",
@@ -43,6 +44,10 @@ EVERYDAY = frozenset({
 })
 _NAMES = re.compile(r"[^\s\d*/^().+\-]+")  # the names in a unit text, between operators and exponents
 _UNITS_FILE = Path(__file__).with_name("units.txt")
+#: the var, unit of reactive power (IEC 60050-131 and IEC 60027-1 give it that name; 1 var = 1 V·A, from
+#: memory), which pint's default definitions lack: added to both registries, so a reactive-power transducer
+#: ranged in kvar can be registered. pint treats it as of one kind with W and VA, as the SI does.
+REACTIVE = "volt_ampere_reactive = volt * ampere = var = VAr"
 
 
 @lru_cache(maxsize=1)
@@ -50,15 +55,20 @@ def registry() -> pint.UnitRegistry:
     """pint's full default registry (built on first use)."""
     import pint
 
-    return pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+    ureg: pint.UnitRegistry = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+    ureg.define(REACTIVE)
+    return ureg
 
 
 @lru_cache(maxsize=1)
 def everyday_registry() -> pint.UnitRegistry:
-    """A registry of ``units.txt`` alone: the same definitions as pint's own for :data:`EVERYDAY`."""
+    """A registry of ``units.txt`` and :data:`REACTIVE`: the same definitions as pint's own (and
+    :func:`registry`'s) for :data:`EVERYDAY`."""
     import pint
 
-    return pint.UnitRegistry(str(_UNITS_FILE), autoconvert_offset_to_baseunit=True)
+    ureg: pint.UnitRegistry = pint.UnitRegistry(str(_UNITS_FILE), autoconvert_offset_to_baseunit=True)
+    ureg.define(REACTIVE)
+    return ureg
 
 
 def registry_for(*units: str) -> pint.UnitRegistry:

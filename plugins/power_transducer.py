@@ -3,7 +3,7 @@
 An import/export transducer of −500..+500 kW onto 4-20 mA gives 12 mA at zero
 power: the range arithmetic is the same linear map as any other transducer
 (``plugins/scaling.py``), applied to a range that straddles zero. Inputs are
-written as power (``-250 kW``) or as % of range. With ``injection: primary``
+written as power (``-250 kW``; ``kvar`` for reactive power) or as % of range. With ``injection: primary``
 the written power is primary power, divided by ``ct_ratio`` × ``vt_ratio`` (a blank
 one of the two counts as 1, e.g. a low-voltage transducer wired direct to the busbar).
 """
@@ -22,7 +22,8 @@ from loopledger.schemas.signals import PowerTransducerColumns
 
 class PowerTransducer(SignalType):
     name = "power-transducer"
-    description = "Power transducer (W, kW, MW; bidirectional ranges such as -500..+500 kW); any output"
+    description = ("Power transducer (W, kW, MW; kvar for reactive power; bidirectional ranges such as "
+                   "-500..+500 kW); any output")
     input_units = ("W",)
     asset_columns = {"ct_ratio": "current-transformer ratio (primary injection)",
                      "vt_ratio": "voltage-transformer ratio (primary injection); primary power = "

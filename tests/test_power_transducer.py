@@ -59,3 +59,18 @@ def test_end_to_end_through_the_cli(tmp_path):
     assert main(["run", str(_evidence(tmp_path)), "--out", str(out), "--no-handbook"]) == 0
     points = pd.read_csv(out / "data" / "points.csv")
     assert len(points) == 7 and (points["decision"] == "pass").all()
+
+
+def test_a_reactive_power_transducer_ranged_in_kvar(tmp_path, run_folder):
+    """−500..+500 kvar onto 4-20 mA: the same linear map as in kW (common practice); the var is the unit of
+    reactive power (IEC 60050-131, from memory), 1 Mvar = 1000 kvar."""
+    ev = write_evidence(tmp_path / "ev", {"q.yaml": result_doc("T-QT", [
+        {"input": "-500 kvar", "reading": "4.004 mA"}, {"input": "-0.25 Mvar", "reading": "8.003 mA"},
+        {"input": "0 kvar", "reading": "12.002 mA"}, {"input": "250 kVAr", "reading": "16.001 mA"},
+        {"input": "100 %", "reading": "19.996 mA"}])},
+        assets=[asset("T-QT", "power-transducer", (-500, 500, "kvar"), (4, 20, "mA"))])
+    ctx = run_folder(ev)
+    assert [f for f in ctx.findings if f.severity == "error"] == []
+    q = ctx.points.set_index("point")
+    assert q["expected"].tolist() == pytest.approx([4.0, 8.0, 12.0, 16.0, 20.0])
+    assert q.at[2, "injected"] == pytest.approx(-250.0) and q.at[2, "injected_unit"] == "kvar"

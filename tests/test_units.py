@@ -16,7 +16,23 @@ from loopledger import quantities as q
 
 @pytest.fixture(scope="module")
 def full() -> pint.UnitRegistry:
-    return pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+    """pint's own default definitions, plus the one loopledger adds to both registries (the var)."""
+    ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+    ureg.define(q.REACTIVE)
+    return ureg
+
+
+def test_the_var_is_a_volt_ampere_of_reactive_power():
+    """IEC 60050-131 names the unit of reactive power the var, 1 var = 1 V·A (from memory); pint's default
+    definitions lack it, so a kvar range is read by both registries only thanks to loopledger's own line."""
+    plain = pint.UnitRegistry()
+    with pytest.raises(pint.errors.UndefinedUnitError):
+        plain.Unit("kvar")
+    for ureg in (q.everyday_registry(), q.registry()):
+        assert ureg.Quantity(-250.0, "kvar").to("VA").magnitude == -250_000.0
+        assert ureg.Quantity(1.5, "Mvar").to("kVAr").magnitude == 1500.0
+        assert str(ureg.Unit("var").dimensionality) == str(plain.Unit("W").dimensionality)
+    assert q.registry_for("kvar", "MVAr") is q.everyday_registry()
 
 
 @pytest.mark.parametrize("name", sorted(q.EVERYDAY))
