@@ -61,16 +61,18 @@ def page_name(ident: Any) -> str:
 
 def page_names(idents: Any) -> list[str]:
     """:func:`page_name` of each id, made unique: ids whose safe names coincide (``a/b`` and ``a_b``,
-    or two long ids cut to the same 150 characters) each get a short hash of the id itself, so no
-    page is written over another. The same id always gets the same name, whatever else is listed."""
+    two long ids cut to the same 150 characters, or ``TX-1a`` and ``TX-1A``, one file on a file system
+    that ignores case, as Windows and macOS do by default) each get a short hash of the id itself, so no
+    page is written over another wherever the handbook is copied. The same id always gets the same name,
+    whatever else is listed that does not coincide with it."""
     idents = [str(i) for i in idents]
     names = [page_name(i) for i in idents]
     owners: dict[str, set[str]] = {}
     for ident, name in zip(idents, names, strict=True):
-        owners.setdefault(name, set()).add(ident)
+        owners.setdefault(name.casefold(), set()).add(ident)
     shared = {name for name, who in owners.items() if len(who) > 1}
-    return [f"{name[:140]}-{hashlib.sha256(ident.encode('utf-8')).hexdigest()[:9]}" if name in shared else name
-            for ident, name in zip(idents, names, strict=True)]
+    return [f"{name[:140]}-{hashlib.sha256(ident.encode('utf-8')).hexdigest()[:9]}" if name.casefold() in shared
+            else name for ident, name in zip(idents, names, strict=True)]
 
 
 def plain(value: Any) -> Any:

@@ -545,6 +545,11 @@ def test_page_names_are_unique_and_stable():
     assert all(n.startswith("a_b-") for n in names[:3])
     assert sp.page_names(["a b", "a_b"]) == names[:2]
     assert sp.page_names(["a b"]) == ["a_b"]
+    # on a file system that ignores case (Windows and macOS by default: common knowledge) TX-1a.html and
+    # TX-1A.html are one file, so the second page copied there would replace the first
+    folded = sp.page_names(["TX-1a", "TX-1A", "TX-2"])
+    assert len({n.casefold() for n in folded}) == 3 and folded[2] == "TX-2"
+    assert [n[:5] for n in folded[:2]] == ["TX-1a", "TX-1A"]
 
 
 def test_register_problems_are_shown_on_the_index(tmp_path):
