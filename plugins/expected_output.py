@@ -74,8 +74,8 @@ def wrong_kind(points: pd.DataFrame, handler: SignalType) -> dict[str, str]:
 
 
 def kind_message(asset: str, unit: str, handler: SignalType) -> str:
-    return (f"asset {asset}: assets.csv input_unit '{unit}' is not a unit a {handler.name} takes as input "
-            f"(one like {' or '.join(handler.input_units)})")
+    return (f"asset {asset}: assets.csv input_unit '{unit}' is not of the kind signal '{handler.name}' takes as "
+            f"input (a unit like {' or '.join(handler.input_units)})")
 
 
 def _of_its_kind(points: pd.DataFrame, handler: SignalType) -> tuple[pd.Index, list[Finding]]:

@@ -49,7 +49,8 @@ def input_in_range_unit(points: pd.DataFrame, scale: pd.Series | float = 1.0, al
     pct = pd.Series(np.where(is_pct, value, (native - lo) / (hi - lo) * 100.0), index=points.index)
     injected = pd.Series(np.where(is_pct, (lo + value / 100.0 * (hi - lo)) * scale, converted), index=points.index)
     for idx in points.index[~is_pct & converted.isna()]:
-        units = f"{points.at[idx, 'input_unit']}, {also} or %" if also else f"{points.at[idx, 'input_unit']} or %"
+        named = list(dict.fromkeys(str(u) for u in (points.at[idx, "input_unit"], also, PERCENT) if u))
+        units = ", ".join(named[:-1]) + " or " + named[-1] if len(named) > 1 else named[0]
         findings.append(error(f"input '{points.at[idx, 'input']}' is not in units of {units}", field="input",
                               **where(points, idx)))
     return pct, injected, findings

@@ -360,7 +360,7 @@ def test_sheet_of_an_asset_ranged_in_a_unit_of_the_wrong_kind(tmp_path, capsys):
     ev = write_evidence(tmp_path / "ev", {}, assets=[_asset("T-M", input_unit="m")])
     assert main(["sheet", "T-M", "--evidence", str(ev)]) == 0
     out = capsys.readouterr().out
-    assert "input_unit 'm' is not a unit a current-transducer takes as input" in out
+    assert "input_unit 'm' is not of the kind signal 'current-transducer' takes as input" in out
     assert "rule 'simple'" in out and "pass from" in out and "12.0800" not in out
 
 

@@ -128,8 +128,9 @@ CASES = [
     # current transducer a [current]; inputs written in % would otherwise be judged against a range in furlongs
     Case("input-unit-of-wrong-kind", "bad/kind.yaml",
          _b(_yaml_points(*FIVE).replace("T-CT1", "T-FUR")),
-         ["bad/kind.yaml", "field 'assets.input_unit'", "'furlong' is not a unit a current-transducer takes",
-          "like A"], assets=[{**CT_ASSET, "asset": "T-FUR", "input_unit": "furlong"}]),
+         ["bad/kind.yaml", "field 'assets.input_unit'",
+          "'furlong' is not of the kind signal 'current-transducer' takes", "a unit like A"],
+         assets=[{**CT_ASSET, "asset": "T-FUR", "input_unit": "furlong"}]),
     Case("alias-bomb", "bad/bomb.yaml", _b(ALIAS_BOMB),
          ["bad/bomb.yaml", "error", "alias bomb", "expand to more than"]),
     Case("oversized", "bad/big.yaml", _b(_yaml_points(*FIVE) + "remarks: '" + "x" * 2_100_000 + "'\n"),
