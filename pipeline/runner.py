@@ -50,6 +50,7 @@ def prepare(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
         if errors:
             raise ConfigError("; ".join(f.format() for f in errors))
     ctx.signal_types = _named(pm.hook.ll_signal_types(), "signal type")
+    _declared_units(ctx.signal_types)
     ctx.methods = _named(pm.hook.ll_reading_methods(), "reading method")
     ctx.decision_rules = _named(pm.hook.ll_decision_rules(), "decision rule")
     rule = str(ctx.section("decision").get("rule", "simple"))
@@ -84,6 +85,19 @@ def _known_keys(config: dict[str, Any], pm: pluggy.PluginManager) -> None:
             if key not in known[name]:
                 raise ConfigError(f"{CONFIG_NAME}: [{name}] has no setting '{key}' (known: "
                                   f"{', '.join(sorted(known[name]))}); is it misspelt?")
+
+
+def _declared_units(signals: dict[str, Any]) -> None:
+    """A ConfigError for a signal type whose ``input_units`` names something that is not a unit (a plugin's
+    slip, found before any file is judged rather than as a crash in the expected stage)."""
+    from loopledger import quantities as q
+
+    for name, signal in signals.items():
+        for unit in getattr(signal, "input_units", ()):
+            try:
+                q.unit_check(str(unit))
+            except ValueError as exc:
+                raise ConfigError(f"signal type '{name}' declares input_units {unit!r}: {exc}") from None
 
 
 def _named(groups: list[list[Any]], what: str) -> dict[str, Any]:

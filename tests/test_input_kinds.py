@@ -10,6 +10,7 @@ from __future__ import annotations
 import pandas as pd
 import pint
 import pytest
+from loopledger import runner
 from loopledger.plugins import (
     current_transducer,
     power_transducer,
@@ -48,3 +49,26 @@ def test_a_process_transmitter_takes_any_unit() -> None:
     """Pressure, level, flow or % of a range: the process transmitter declares no kind."""
     points = pd.DataFrame({"asset": ["P1", "P2", "P3"], "input_unit": ["bar", "m", "m^3/h"]})
     assert wrong_kind(points, process_transmitter.ProcessTransmitter()) == {}
+
+
+def test_a_plugin_declaring_something_not_a_unit_is_a_configuration_error(tmp_path, pm) -> None:
+    """A site plugin's typing slip (``ampre`` is not among pint's names) is refused before any
+    file is judged, naming the signal type, rather than crashing the expected stage."""
+    from loopledger.config import ConfigError
+    from loopledger.contracts import SignalType
+    from loopledger.hookspecs import hookimpl
+
+    from tests.evidence import write_evidence
+
+    class Slip(SignalType):
+        name = "slip-transducer"
+        input_units = ("ampre",)
+
+    class Plugin:
+        @hookimpl
+        def ll_signal_types(self) -> list[SignalType]:
+            return [Slip()]
+
+    pm.register(Plugin())
+    with pytest.raises(ConfigError, match="signal type 'slip-transducer' declares input_units 'ampre'"):
+        runner.run(runner.RunOptions(write_evidence(tmp_path / "ev", {})), pm)
