@@ -74,3 +74,29 @@ def test_a_reactive_power_transducer_ranged_in_kvar(tmp_path, run_folder):
     q = ctx.points.set_index("point")
     assert q["expected"].tolist() == pytest.approx([4.0, 8.0, 12.0, 16.0, 20.0])
     assert q.at[2, "injected"] == pytest.approx(-250.0) and q.at[2, "injected_unit"] == "kvar"
+
+
+def test_an_input_of_another_kind_of_power_is_taken_as_written_with_a_warning(tmp_path, run_folder):
+    """Active (W), reactive (var) and apparent (VA) power are distinct quantities sharing one SI unit
+    (IEC 80000-6 names each; from memory): 50 kvar written on a kW transducer converts 1:1, as pint does,
+    and is flagged; the same numbers in kW are not."""
+    ev = write_evidence(tmp_path / "ev", {"p.yaml": result_doc("T-PT-BI", [
+        {"input": "-500 kW", "reading": "4.004 mA"}, {"input": "-250 kvar", "reading": "8.003 mA"},
+        {"input": "0 kW", "reading": "12.002 mA"}, {"input": "250 kVA", "reading": "16.001 mA"},
+        {"input": "100 %", "reading": "19.996 mA"}])}, assets=ASSETS[:1])
+    ctx = run_folder(ev)
+    assert ctx.points.set_index("point")["expected"].tolist() == pytest.approx([4.0, 8.0, 12.0, 16.0, 20.0])
+    kinds = [f for f in ctx.findings if "power but the asset" in f.message]
+    assert sorted(f.point for f in kinds) == ["as_found #2", "as_found #4"]
+    assert "'-250 kvar' is reactive power but the asset is ranged in kW, active power" in kinds[0].message
+    assert all(f.severity == "warning" and f.field == "input" for f in kinds)
+    assert ctx.tests["verdict"].tolist() == ["pass"]
+
+
+@pytest.mark.parametrize(("unit", "kind"), [("W", "active"), ("MW", "active"), ("kilowatt", "active"),
+                                             ("kvar", "reactive"), ("Mvar", "reactive"), ("kVAr", "reactive"),
+                                             ("VA", "apparent"), ("kVA", "apparent"), ("bar", None), ("%", None)])
+def test_power_kind_of_a_unit_name(unit, kind):
+    from loopledger.plugins.power_transducer import power_kind
+
+    assert power_kind(unit) == kind
