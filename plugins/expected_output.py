@@ -55,13 +55,13 @@ def evaluate_all(ctx: RunContext) -> list[Finding]:
     return findings
 
 
-
 def wrong_kind(points: pd.DataFrame, handler: SignalType) -> dict[str, str]:
     """The assets among ``points`` whose input_unit is not of a kind ``handler`` takes, with that unit.
     A current transducer ranged in metres would otherwise be judged on inputs written in %."""
-    if not handler.input_units:
+    declared = getattr(handler, "input_units", ())  # a duck-typed signal type may not carry it
+    if not declared:
         return {}
-    kinds = {q.unit_check(u) for u in handler.input_units}
+    kinds = {q.unit_check(u) for u in declared}
     wrong: dict[str, str] = {}
     for asset, unit in points.drop_duplicates("asset")[["asset", "input_unit"]].itertuples(index=False):
         try:

@@ -38,7 +38,7 @@ def render(entries: list[dict[str, Any]]) -> str:
         lines.append(f"  hooks: {', '.join(entry['hooks'])}")
         for item in entry.get("signal types", []):
             lines.append(f"  signal type {item.name}: {item.description}")
-            if item.input_units:
+            if getattr(item, "input_units", ()):
                 lines.append(f"    input_unit: of the kind of {' or '.join(item.input_units)}")
             for col, meaning in item.asset_columns.items():
                 lines.append(f"    assets.csv column {col}: {meaning}")
