@@ -47,7 +47,7 @@ def phase(v: Any) -> str:
 
 #: the words and marks of each verdict; the marks are hidden from screen readers
 VERDICT_WORDS = {"pass": "Pass", "fail": "Fail", "adjusted": "Adjusted", "invalid": "Invalid file",
-                 "untested": "Not tested", "conditional-pass": "Conditional pass",
+                 "untested": "No valid test", "conditional-pass": "Conditional pass",
                  "conditional-fail": "Conditional fail"}
 VERDICT_MARKS = {"pass": "✓", "fail": "✗", "adjusted": "↻", "invalid": "!", "untested": "–",
                  "conditional-pass": "✓?", "conditional-fail": "✗?"}

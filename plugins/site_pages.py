@@ -264,6 +264,9 @@ def asset_table(ctx: RunContext, tests: pd.DataFrame) -> pd.DataFrame:
     assets["verdict"] = latest["verdict"].reindex(assets.index).fillna("untested")
     assets["n_tests"] = valid.groupby("asset").size().reindex(assets.index).fillna(0).astype(int) \
         if len(valid) else 0
+    invalid = tests[~tests["valid"].astype(bool)] if len(tests) else tests
+    assets["n_invalid"] = invalid.groupby("asset").size().reindex(assets.index).fillna(0).astype(int) \
+        if len(invalid) else 0  # result files of the asset that could not be judged
     summary = ctx.extras.get("assets_summary")
     if isinstance(summary, pd.DataFrame) and "next_due" in summary.columns:
         summary = summary.set_index("asset") if "asset" in summary.columns else summary
@@ -318,7 +321,7 @@ def counts(assets: pd.DataFrame) -> dict[str, int]:
 
 ASSET_COLS = ["asset", "page", "description", "site", "area", "signal", "verdict", "last_date", "last_page",
               "next_due", "overdue", "days_overdue", "due_soon", "predicted", "predicted_soon", "last_ref_out",
-              "n_tests"]
+              "n_tests", "n_invalid"]
 TEST_COLS = ["test", "page", "asset", "asset_page", "date", "technician", "verdict", "as_found", "as_left",
              "source_file", "reference_out_of_cal", "reference_issues", "valid"]
 

@@ -463,7 +463,7 @@ def test_verdicts_are_words_not_only_colour(tmp_path, run_folder):
     ctx = run_folder(_fleet(tmp_path / "ev"))
     handbook.build(ctx, tmp_path / "site")
     index = (tmp_path / "site" / "index.html").read_text(encoding="utf-8")
-    for word in ("Pass", "Fail", "Not tested", "Overdue"):
+    for word in ("Pass", "Fail", "No valid test", "Overdue"):
         assert f"{word}</span>" in index
     test_page = (tmp_path / "site" / "tests" / "b_two.html").read_text(encoding="utf-8")
     assert '<th scope="col">Decision</th>' in test_page and '<desc>Chart of error against input.' in test_page
@@ -577,3 +577,21 @@ def test_a_never_tested_asset_reads_never_tested_not_none(tmp_path):
     for page in site.rglob("*.html"):
         text = re.sub(r"<[^>]+>", " ", page.read_text(encoding="utf-8"))
         assert not re.search(r"\b(None(?!\.)|nan|NaT)\b", text), page  # "None." is the pages' word for an empty list
+
+
+def test_an_asset_whose_only_files_are_invalid_reads_no_valid_test(tmp_path):
+    """Tested, but no file could be judged: not "never tested", which would misstate the evidence. The asset
+    page, the overdue page and the index each say how many of its files could not be judged."""
+    bad = result_yaml(asset="T-BAD", date="2099-01-01", as_found=good_points())  # in the future: invalid
+    ev = write_evidence(tmp_path / "ev", {"t.yaml": result_yaml(as_found=good_points()), "bad.yaml": bad},
+                        assets=[CT_ASSET, {**CT_ASSET, "asset": "T-BAD"}, {**CT_ASSET, "asset": "T-NEW"}])
+    assert main(["run", str(ev), "--out", str(tmp_path / "out")]) == 2
+    site = tmp_path / "out" / "handbook"
+    said = "no valid test (1 result file could not be judged)"
+    asset = html.unescape((site / "assets" / "T-BAD.html").read_text(encoding="utf-8"))
+    assert "No valid test</span> — 1 result file could not be judged: each test's page below says why" in asset
+    overdue = html.unescape((site / "overdue.html").read_text(encoding="utf-8"))
+    assert f"<td>{said}</td>" in overdue and "<td>never tested</td>" in overdue  # T-NEW has no file at all
+    assert f"— {said}</li>" in html.unescape((site / "index.html").read_text(encoding="utf-8"))
+    new = html.unescape((site / "assets" / "T-NEW.html").read_text(encoding="utf-8"))
+    assert "could not be judged" not in new and "No valid test</span> — never tested" in new

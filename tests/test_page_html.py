@@ -16,7 +16,7 @@ from loopledger.plugins import page_html
 REFERENCE = """\
 {% macro verdict(v) -%}
 {%- set words = {'pass': 'Pass', 'fail': 'Fail', 'adjusted': 'Adjusted', 'invalid': 'Invalid file', \
-'untested': 'Not tested', 'conditional-pass': 'Conditional pass', 'conditional-fail': 'Conditional fail'} -%}
+'untested': 'No valid test', 'conditional-pass': 'Conditional pass', 'conditional-fail': 'Conditional fail'} -%}
 {%- set marks = {'pass': '✓', 'fail': '✗', 'adjusted': '↻', 'invalid': '!', 'untested': '–', \
 'conditional-pass': '✓?', 'conditional-fail': '✗?'} -%}
 <span class="verdict v-{{ v or 'none' }}"><span aria-hidden="true">{{ marks.get(v, '·') }} </span>\
