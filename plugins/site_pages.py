@@ -341,7 +341,8 @@ def index_data(ctx: RunContext, assets: pd.DataFrame, tests: pd.DataFrame) -> di
     return {"counts": counts(assets), "groups": groups,
             "action": {"failed": records(failed, ASSET_COLS), "overdue": records(overdue, ASSET_COLS),
                        "predicted": records(predicted, ASSET_COLS),
-                       "reference": records(ref, TEST_COLS), "invalid": records(invalid, TEST_COLS),
+                       "reference": records(ref, TEST_COLS), "invalid": [
+                           {**r, "problem": _first_error(ctx, r["source_file"])} for r in records(invalid, TEST_COLS)],
                        "registers": [f.format() for f in ctx.findings if f.file in REGISTRY_FILES]},
             "history_available": isinstance(ctx.extras.get("assets_summary"), pd.DataFrame)}
 
@@ -371,6 +372,16 @@ def chart_columns(points: pd.DataFrame) -> pd.DataFrame:
 POINT_COLS = ["phase", "point", "input", "input_pct", "reading_text", "expected", "measured", "output_unit",
               "error", "error_pct_span", "mpe", "acceptance_limit", "U", "k", "tur", "decision", "decision_rule",
               "ne43_band", "clipped", "line"]
+
+
+def _first_error(ctx: RunContext, rel: Any) -> str:
+    """The first error of a result file, with its line and field (what the terminal summary shows)."""
+    first = next((f for f in findings_of(ctx, str(rel)) if f.severity == "error"), None)
+    if first is None:
+        return ""
+    where = ", ".join(p for p in (f"line {first.line}" if first.line else "", first.point,
+                                   f"field '{first.field}'" if first.field else "") if p)
+    return first.message + (f" ({where})" if where else "")
 
 
 def findings_of(ctx: RunContext, rel: str) -> list[Any]:

@@ -592,6 +592,10 @@ def test_an_asset_whose_only_files_are_invalid_reads_no_valid_test(tmp_path):
     assert "No valid test</span> — 1 result file could not be judged: each test's page below says why" in asset
     overdue = html.unescape((site / "overdue.html").read_text(encoding="utf-8"))
     assert f"<td>{said}</td>" in overdue and "<td>never tested</td>" in overdue  # T-NEW has no file at all
-    assert f"— {said}</li>" in html.unescape((site / "index.html").read_text(encoding="utf-8"))
+    index = html.unescape((site / "index.html").read_text(encoding="utf-8"))
+    assert f"— {said}</li>" in index
+    # the index names each file that could not be judged with its first error, as the terminal does
+    line = index.split("results/bad.yaml</a>")[1].split("</li>")[0]
+    assert "in the future" in line and "field 'date'" in line
     new = html.unescape((site / "assets" / "T-NEW.html").read_text(encoding="utf-8"))
     assert "could not be judged" not in new and "No valid test</span> — never tested" in new
