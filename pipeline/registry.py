@@ -172,6 +172,11 @@ def load_instruments(evidence: Path) -> tuple[pd.DataFrame, pd.DataFrame, list[F
             findings, rejected)
 
 
+def _blank(value: Any) -> bool:
+    """A value instruments.yaml left out (None, or NaN once in a table)."""
+    return value is None or (isinstance(value, float) and math.isnan(value))
+
+
 def _check_magnitudes(table: pd.DataFrame, ranges: pd.DataFrame, at: dict[str, int]) -> tuple[set[str], list[Finding]]:
     """The instruments whose values cannot be measured against: a shunt without a resistance above zero
     (a negative one would turn every reading around and be taken for reversed leads), a meter range or
@@ -198,7 +203,7 @@ def _check_magnitudes(table: pd.DataFrame, ranges: pd.DataFrame, at: dict[str, i
             positive(str(ident), "resistance", resistance, "ohm", "100 ohm")
     for ident, rng, resolution in zip(ranges["instrument"], ranges["range"], ranges["resolution"], strict=True):
         positive(str(ident), "range", rng, None, "20 mA")
-        if resolution is not None and not (isinstance(resolution, float) and math.isnan(resolution)):
+        if not _blank(resolution):
             positive(str(ident), "resolution", resolution, None, "0.001 mA")
     return bad, findings
 
@@ -212,7 +217,7 @@ def _check_specs(table: pd.DataFrame, ranges: pd.DataFrame, at: dict[str, int]) 
     specs = [(str(i), "accuracy", a) for i, a in zip(table["instrument"], table["accuracy"], strict=True)]
     specs += [(str(i), "ranges.accuracy", a) for i, a in zip(ranges["instrument"], ranges["accuracy"], strict=True)]
     for ident, field, text in specs:
-        if text is None or (isinstance(text, float) and math.isnan(text)):
+        if _blank(text):
             continue
         try:
             q.parse_spec(str(text))

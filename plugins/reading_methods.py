@@ -19,9 +19,9 @@ from loopledger.plugins.scaling import where
 
 
 def _unit_error(points: pd.DataFrame, bad: pd.Series, wanted: str) -> list[Finding]:
-    """One error per point of ``bad``; ``OUTPUT_UNIT`` in ``wanted`` becomes the asset's output unit."""
-    return [error(f"reading unit '{points.at[i, 'reading_unit']}' is not {wanted}".replace(
-                  "OUTPUT_UNIT", str(points.at[i, "output_unit"])), field="reading", **where(points, i))
+    """One error per point of ``bad``; ``{output_unit}`` in ``wanted`` becomes the point's output unit."""
+    return [error(f"reading unit '{points.at[i, 'reading_unit']}' is not "
+                  + wanted.format(output_unit=points.at[i, "output_unit"]), field="reading", **where(points, i))
             for i in points.index[bad]]
 
 
@@ -32,7 +32,7 @@ class Direct(ReadingMethod):
     def measured(self, points: pd.DataFrame, ctx: RunContext) -> tuple[pd.Series, list[Finding]]:
         value = q.convert(points["reading"], points["reading_unit"], points["output_unit"])
         bad = value.isna() & points["reading"].notna()
-        return value, _unit_error(points, bad, "in units of the output (OUTPUT_UNIT)")
+        return value, _unit_error(points, bad, "in units of the output ({output_unit})")
 
 
 def shunt_ohms(ctx: RunContext, ids: pd.Series) -> pd.Series:

@@ -28,9 +28,8 @@ def date_part(series):  # type: ignore[no-untyped-def]
     trailing text of any other kind is refused, never cut off)."""
     import pandas as pd
 
-    found = series.astype(str).str.strip().str.fullmatch(DATE)
-    day = series.astype(str).str.strip().str.extract(f"^{DATE}$", expand=False)
-    return pd.to_datetime(day.where(found, ""), format="%Y-%m-%d", errors="coerce")
+    day = series.astype(str).str.strip().str.extract(f"^{DATE}$", expand=False)  # NaN where it does not match
+    return pd.to_datetime(day, format="%Y-%m-%d", errors="coerce")
 
 
 def _is_iso_date(series):  # type: ignore[no-untyped-def]
