@@ -13,7 +13,7 @@ from pathlib import Path
 
 from loopledger import runner
 from loopledger.host import get_plugin_manager
-from loopledger.plugins import charts, handbook
+from loopledger.plugins.handbook import charts, handbook
 
 
 def main(evidence: Path) -> None:

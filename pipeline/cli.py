@@ -16,7 +16,7 @@ from typing import TYPE_CHECKING
 from loopledger import __version__
 
 if TYPE_CHECKING:
-    from loopledger.incremental import Cache
+    from loopledger.cache.store import Cache
 
 EXIT_USAGE = 3
 EXIT_INTERNAL = 4

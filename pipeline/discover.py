@@ -6,9 +6,9 @@ import os
 import re
 from pathlib import Path
 
+from loopledger.cache.store import REGISTRY_FILES
 from loopledger.contracts import SourceFile
 from loopledger.findings import Finding, error, warning
-from loopledger.incremental import REGISTRY_FILES
 
 RESULTS_DIR = "results"
 RESULT_SUFFIXES = (".yaml", ".yml", ".csv", ".xlsx")

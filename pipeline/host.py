@@ -21,8 +21,8 @@ def get_plugin_manager(*, autoload: bool = True, extra: tuple[object, ...] = ())
 
     pm = pluggy.PluginManager(ENTRY_POINT_GROUP)
     pm.add_hookspecs(hookspecs)
-    for name in BUILTIN:
-        pm.register(importlib.import_module(f"loopledger.plugins.{name}"), name=name)
+    for dotted in BUILTIN:
+        pm.register(importlib.import_module(f"loopledger.plugins.{dotted}"), name=dotted.rsplit(".", 1)[-1])
     if autoload:
         try:
             pm.load_setuptools_entrypoints(ENTRY_POINT_GROUP)

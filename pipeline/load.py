@@ -84,7 +84,7 @@ def _parse_one(source: SourceFile) -> tuple[bytes | None, str, Any, str]:
 def parse_ahead(ctx: Any, files: list[SourceFile], workers: int | None = None) -> dict[str, Any]:
     """Read and parse many files over the machine's cores (forked workers share the plugins without
     copying); {rel: result of :func:`_parse_one`}. Empty when too few files or fork is not offered."""
-    from loopledger.forking import can_fork, fork_pool
+    from loopledger.cache.forking import can_fork, fork_pool
 
     global _PARSING
     workers = workers if workers is not None else (os.cpu_count() or 1)

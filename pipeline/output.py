@@ -115,7 +115,7 @@ def write_csvs(tables: list[tuple[Path, pd.DataFrame]], workers: int | None = No
     are large: forked workers share the frames without copying, each takes tables of about equal size
     (largest first) and writes them itself. Where fork is not offered, or the tables are small, they are
     written here, one after another. An error in any worker is raised here."""
-    from loopledger.forking import can_fork, fork_pool, share_out
+    from loopledger.cache.forking import can_fork, fork_pool, share_out
 
     global _TABLES
     workers = workers if workers is not None else (os.cpu_count() or 1)

@@ -29,8 +29,8 @@ def load_assets(evidence: Path) -> tuple[pd.DataFrame, list[Finding], dict[str, 
     """assets.csv validated against :class:`AssetsFile`; bad rows are dropped and reported, and returned
     as the ids they gave with their line numbers (so a result file of such an asset can say why it is not
     judged)."""
-    from loopledger.plugins._text import decode, other_separator
     from loopledger.schemas.assets import OPTIONAL, REQUIRED, AssetsFile
+    from loopledger.textio import decode, other_separator
 
     path = evidence / ASSETS
     empty = pd.DataFrame(columns=REQUIRED + OPTIONAL).set_index("asset", drop=False).rename_axis(None)
@@ -108,15 +108,15 @@ def _check_units_and_accuracy(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[F
 def load_instruments(evidence: Path) -> tuple[pd.DataFrame, pd.DataFrame, list[Finding], dict[str, int]]:
     """instruments.yaml as two tables, instruments and meter ranges; and the ids of instruments dropped for
     errors, with the line of each."""
-    from loopledger.plugins._text import decode
     from loopledger.schemas.instruments import InstrumentsTable, MeterRanges
+    from loopledger.textio import decode
 
     path = evidence / INSTRUMENTS
     empty = pd.DataFrame(columns=["instrument", "kind"]).set_index("instrument", drop=False)
     no_ranges = pd.DataFrame(columns=["instrument", "range", "accuracy", "resolution", "burden"])
     if not path.is_file():
         return empty, no_ranges, [error(f"no {INSTRUMENTS} in the evidence folder", file=INSTRUMENTS)], {}
-    from loopledger.plugins.read_yaml import DuplicateKey, compose, key_lines
+    from loopledger.textio import DuplicateKey, compose, key_lines
 
     try:  # safe loading with the result files' loader: dates stay text, so one bad date is one instrument's error
         doc, node = compose(decode(path.read_bytes()))

@@ -143,7 +143,7 @@ def run(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
     parsed, save = opts.parsed, opts.save_parsed
     writing: contextlib.AbstractContextManager[Any] = contextlib.nullcontext()
     if parsed is not None and save is not None:  # the cache is written on the core the stages leave idle
-        from loopledger.forking import side_job
+        from loopledger.cache.forking import side_job
 
         def parsed_cache() -> None:
             save(parsed)
@@ -183,7 +183,7 @@ def export_and_publish(ctx: RunContext, out: Path) -> None:
     run one after the other. ``ll_export_tables`` hooks only read the run, so the handbook sees what it
     would have seen after them. The new handbook replaces the live one only once the tables are written:
     if they cannot be, both stay as the previous run left them."""
-    from loopledger.forking import side_job
+    from loopledger.cache.forking import side_job
     from loopledger.output import before_swap
 
     def tables() -> None:

@@ -1,40 +1,59 @@
-"""Built-in plugins. Each module is registered with the same call an installed plugin goes through.
+"""Built-in plugins, one subpackage per stage, listed in the order a run calls them.
 
-The order below is registration order only; the run order is set by the
-stage hooks in :mod:`loopledger.hookspecs`.
+Each module named in :data:`BUILTIN` is registered with the same ``register`` call an installed plugin
+goes through, under the module's last name (``read_yaml``, ``burden``, ...). The run order itself is set
+by the stage hooks in :mod:`loopledger.hookspecs`; the list follows it so the architecture can be read
+from the files:
+
+read → check → signals (expected) → measure → uncertainty → judge → analyse → history → export → handbook
+
+``sheet`` and ``tools`` add commands; ``examples`` holds an installable site plugin that imports only
+:mod:`loopledger.api`.
 """
 
 BUILTIN: tuple[str, ...] = (
-    "read_yaml",
-    "read_table",
-    "schema_check",
-    "expected_output",
-    "current_transducer",
-    "voltage_transducer",
-    "power_transducer",
-    "process_transmitter",
-    "rtd_transmitter",
-    "thermocouple_transmitter",
-    "measured_output",
-    "reading_methods",
-    "counts_reading",
-    "tolerance",
-    "uncertainty",
-    "decision_rules",
-    "conformity",
-    "linearity",
-    "method_compare",
-    "explain",
-    "loop_split",
-    "burden",
-    "signal_integrity",
-    "fault_signatures",
-    "history",
-    "drift",
-    "intervals",
-    "traceability",
-    "export_csv",
-    "handbook",
-    "synth",
-    "plugin_list",
+    # read: each result file into a header and points
+    "read.read_yaml",
+    "read.read_table",
+    # ll_check
+    "check.schema_check",
+    # ll_expected, and the signal types it dispatches to
+    "signals.expected_output",
+    "signals.current_transducer",
+    "signals.voltage_transducer",
+    "signals.power_transducer",
+    "signals.process_transmitter",
+    "signals.rtd_transmitter",
+    "signals.thermocouple_transmitter",
+    # ll_measured, and the reading methods
+    "measure.measured_output",
+    "measure.reading_methods",
+    "measure.counts_reading",
+    # ll_uncertainty
+    "uncertainty.uncertainty",
+    # ll_judge, and the decision rules
+    "judge.tolerance",
+    "judge.decision_rules",
+    "judge.conformity",
+    # ll_analyse
+    "analyse.linearity",
+    "analyse.method_compare",
+    "analyse.loop_split",
+    "analyse.burden",
+    "analyse.signal_integrity",
+    "analyse.fault_signatures",
+    # ll_history
+    "history.history",
+    "history.drift",
+    "history.intervals",
+    "history.traceability",
+    # ll_export_tables
+    "export.export_csv",
+    # ll_publish
+    "handbook.handbook",
+    # commands
+    "sheet",
+    "tools.explain",
+    "tools.synth",
+    "tools.plugin_list",
 )

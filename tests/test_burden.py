@@ -5,7 +5,7 @@ from __future__ import annotations
 import pandas as pd
 import pytest
 from loopledger.cli import main
-from loopledger.plugins import burden
+from loopledger.plugins.analyse import burden
 
 from tests.evidence import CT_ASSET, INSTRUMENTS, blocks, good_points, result_yaml, write_evidence
 
@@ -192,7 +192,7 @@ def test_figures_are_formatted_value_by_value_as_python_does():
     value (reference: str.format): -0.0 keeps its sign, 1 and True are not merged, missing is '?'."""
     import math
 
-    from loopledger.plugins.burden import fmt
+    from loopledger.plugins.analyse.burden import fmt
 
     values = [0.0, -0.0, 2.5, float("nan"), 2.5, 1e-7]
     assert fmt(pd.Series(values)).tolist() == ["?" if math.isnan(v) else f"{v:g}" for v in values]

@@ -18,7 +18,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from loopledger.cli import main
-from loopledger.plugins import charts, page_rows, svgplot
+from loopledger.plugins.handbook import charts, page_rows, svgplot
 
 from tests.evidence import good_points, result_yaml, write_evidence
 

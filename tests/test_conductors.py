@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pandas as pd
 import pytest
-from loopledger.plugins import conductors
+from loopledger.plugins.analyse import conductors
 
 FT_PER_KM = 1000 / 0.3048  # exact: 1 ft = 0.3048 m (international foot)
 

@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 import pytest
 from loopledger.cli import main
-from loopledger.plugins.decision_rules import Guarded, RiskBased, risk_limits, specific_risk
+from loopledger.plugins.judge.decision_rules import Guarded, RiskBased, risk_limits, specific_risk
 from scipy import stats
 
 from tests.evidence import INSTRUMENTS, good_points, result_yaml, write_evidence

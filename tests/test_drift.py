@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 import pytest
 from loopledger.cli import main
-from loopledger.plugins import drift
+from loopledger.plugins.history import drift
 from scipy import stats
 
 from tests.evidence import CT_ASSET, batch_and_alone, good_points, result_yaml, write_evidence

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import yaml
 from loopledger.cli import main
-from loopledger.plugins import fault_signatures
+from loopledger.plugins.analyse import fault_signatures
 
 from tests.evidence import CT_ASSET, batch_and_alone, good_points, result_yaml, write_evidence
 

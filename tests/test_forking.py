@@ -1,4 +1,4 @@
-"""Sharing work out to forked workers (loopledger.forking)."""
+"""Sharing work out to forked workers (loopledger.cache.forking)."""
 
 from __future__ import annotations
 
@@ -10,7 +10,7 @@ import sys
 import time
 
 import pytest
-from loopledger.forking import SideJobFailed, can_fork, fork_pool, share_out, side_job
+from loopledger.cache.forking import SideJobFailed, can_fork, fork_pool, share_out, side_job
 
 
 def _square(x: int) -> int:
@@ -91,7 +91,7 @@ def test_a_side_job_ends_when_its_process_is_killed(tmp_path):
     marker = tmp_path / "finished"
     script = (
         "import os, signal, time\n"
-        "from loopledger.forking import side_job\n"
+        "from loopledger.cache.forking import side_job\n"
         "def side():\n"
         "    time.sleep(1.5)\n"
         f"    open({str(marker)!r}, 'w').write('the side job outlived its process')\n"

@@ -20,8 +20,9 @@ import pandas as pd
 import pytest
 from loopledger import runner
 from loopledger.cli import main
-from loopledger.plugins import handbook, page_rows
-from loopledger.plugins import site_pages as sp
+from loopledger.plugins import sheet as sheet_command
+from loopledger.plugins.handbook import handbook, page_rows
+from loopledger.plugins.handbook import site_pages as sp
 
 from tests.evidence import CT_ASSET, INSTRUMENTS, good_points, result_yaml, write_evidence
 
@@ -105,7 +106,7 @@ def test_sheet_windows_volts_and_primary(tmp_path, run_folder):
     assert (mid["v_low"], mid["v_high"]) == (pytest.approx(2.98), pytest.approx(3.02))
     # 0.5 A secondary behind a 2000/1 A current transformer is 1000 A primary
     assert mid["input"] == pytest.approx(0.5) and mid["primary"] == pytest.approx(1000.0)
-    text = handbook.sheet_text(sheet)
+    text = sheet_command.sheet_text(sheet)
     assert "11.9200" in text and "3.0200" in text and "open-circuit" in text
 
 
@@ -280,7 +281,7 @@ def test_two_builds_are_byte_identical_and_incremental_equals_cold(tmp_path, pm)
 
 KILL_SCRIPT = """
 import sys, time
-from loopledger.plugins import handbook
+from loopledger.plugins.handbook import handbook
 real = handbook.render_job
 def slow(job):
     time.sleep(0.25)

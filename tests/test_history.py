@@ -10,7 +10,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from loopledger.cli import main
-from loopledger.plugins import history
+from loopledger.plugins.history import history
 
 from tests.evidence import CT_ASSET, batch_and_alone, good_points, result_yaml, write_evidence
 

@@ -19,9 +19,9 @@ import time
 from pathlib import Path
 
 import pytest
-from loopledger import incremental
+from loopledger.cache import store as incremental
 from loopledger.cli import main
-from loopledger.plugins import read_yaml
+from loopledger.plugins.read import read_yaml
 
 from tests.evidence import good_points, result_yaml, write_evidence
 

@@ -11,7 +11,7 @@ import pandas as pd
 import pint
 import pytest
 from loopledger import runner
-from loopledger.plugins import (
+from loopledger.plugins.signals import (
     current_transducer,
     power_transducer,
     process_transmitter,
@@ -19,7 +19,7 @@ from loopledger.plugins import (
     thermocouple_transmitter,
     voltage_transducer,
 )
-from loopledger.plugins.expected_output import wrong_kind
+from loopledger.plugins.signals.expected_output import wrong_kind
 
 SIGNALS = {"current-transducer": current_transducer.CurrentTransducer(),
            "voltage-transducer": voltage_transducer.VoltageTransducer(),

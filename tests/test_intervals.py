@@ -7,7 +7,7 @@ import pandas as pd
 import pytest
 from loopledger.cli import main
 from loopledger.hookspecs import hookimpl
-from loopledger.plugins import intervals
+from loopledger.plugins.history import intervals
 from scipy import stats
 
 from tests.evidence import CT_ASSET, batch_and_alone, good_points, result_yaml, write_evidence

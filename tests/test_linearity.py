@@ -12,8 +12,8 @@ import pandas as pd
 import pytest
 import yaml
 from loopledger.cli import main
-from loopledger.plugins import linearity
-from loopledger.plugins.linearity import analyse, minimax_lines
+from loopledger.plugins.analyse import linearity
+from loopledger.plugins.analyse.linearity import analyse, minimax_lines
 from scipy.optimize import linprog
 
 from tests.evidence import batch_and_alone, good_points, result_yaml, write_evidence

@@ -5,7 +5,7 @@ from __future__ import annotations
 import pandas as pd
 import pytest
 from loopledger.cli import main
-from loopledger.plugins import loop_split
+from loopledger.plugins.analyse import loop_split
 
 from tests.evidence import batch_and_alone, blocks, write_evidence
 from tests.signal_checks import asset, result_doc

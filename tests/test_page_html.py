@@ -11,7 +11,7 @@ import jinja2
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from loopledger.plugins import page_html
+from loopledger.plugins.handbook import page_html
 
 REFERENCE = """\
 {% macro verdict(v) -%}
@@ -166,7 +166,7 @@ def test_blocks_straight_from_sections_match_their_page_data() -> None:
     data made from them, which jinja2 renders as above."""
     import numpy as np
     from loopledger.contracts import Section
-    from loopledger.plugins.site_pages import section_dict
+    from loopledger.plugins.handbook.site_pages import section_dict
 
     sections = [
         Section("Budget <u>", kind="table", columns=["Term", "u (mA)"],

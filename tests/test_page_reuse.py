@@ -17,7 +17,7 @@ import pytest
 from loopledger import runner
 from loopledger.context import RunContext
 from loopledger.findings import warning
-from loopledger.plugins import handbook, page_inputs
+from loopledger.plugins.handbook import handbook, page_inputs
 
 from tests.evidence import CT_ASSET, good_points, result_yaml, write_evidence
 

@@ -11,7 +11,7 @@ import json
 
 import numpy as np
 import pandas as pd
-from loopledger.plugins import page_rows, site_pages
+from loopledger.plugins.handbook import page_rows, site_pages
 
 
 def _frame() -> pd.DataFrame:

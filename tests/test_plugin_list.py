@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from loopledger.cli import main
-from loopledger.plugins import plugin_list
+from loopledger.plugins.tools import plugin_list
 
 from tests.evidence import write_evidence
 from tests.signal_checks import asset, result_doc

@@ -97,6 +97,6 @@ def test_an_input_of_another_kind_of_power_is_taken_as_written_with_a_warning(tm
                                              ("kvar", "reactive"), ("Mvar", "reactive"), ("kVAr", "reactive"),
                                              ("VA", "apparent"), ("kVA", "apparent"), ("bar", None), ("%", None)])
 def test_power_kind_of_a_unit_name(unit, kind):
-    from loopledger.plugins.power_transducer import power_kind
+    from loopledger.plugins.signals.power_transducer import power_kind
 
     assert power_kind(unit) == kind

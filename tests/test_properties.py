@@ -27,9 +27,9 @@ import pandas as pd
 import pytest
 from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
-from loopledger import runner
+from loopledger import runner, scaling
 from loopledger.host import get_plugin_manager
-from loopledger.plugins import read_table, read_yaml, scaling
+from loopledger.plugins.read import read_table, read_yaml
 
 from tests.evidence import ASSET_COLUMNS, CT_ASSET, result_yaml, write_evidence
 

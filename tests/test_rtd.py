@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from loopledger.plugins import rtd
+from loopledger.plugins.signals import rtd
 
 #: IEC 60751 Pt100 values; /work/shared/domain.md lists them as computed from the standard's equation
 #: and matching the published tables to 2 decimals (source: IEC 60751, R0 = 100 ohm).

@@ -5,8 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from loopledger.cli import main
-from loopledger.plugins import signal_integrity
-from loopledger.plugins.signal_integrity import classify
+from loopledger.plugins.analyse import signal_integrity
+from loopledger.plugins.analyse.signal_integrity import classify
 
 from tests.evidence import CT_ASSET, batch_and_alone, good_points, result_yaml, write_evidence
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import pandas as pd
 import pytest
 import thermocouple_its90 as its90
-from loopledger.plugins import thermocouple as tc
+from loopledger.plugins.signals import thermocouple as tc
 
 #: IEC 60584-1 / NIST Monograph 175 table values, emf in mV with the reference junction at 0 °C
 #: (source: the tables as listed in /work/shared/domain.md, 3 decimals)

@@ -12,7 +12,7 @@ import datetime as dt
 
 import pytest
 from loopledger.cli import main
-from loopledger.plugins import traceability
+from loopledger.plugins.history import traceability
 
 from tests.evidence import INSTRUMENTS, batch_and_alone, good_points, result_yaml, write_evidence
 

@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 import pytest
 from loopledger.cli import main
-from loopledger.plugins import budget
+from loopledger.plugins.uncertainty import budget
 from scipy import stats
 
 from tests.evidence import CT_ASSET, INSTRUMENTS, blocks, good_points, result_yaml, write_evidence
@@ -299,7 +299,7 @@ def test_page_numbers_follow_the_general_format_with_a_dash_and_infinity():
 
     -0.0 keeps its sign ('-0' in the 'g' format) although it equals 0.0: values are told apart by their bits.
     """
-    from loopledger.plugins.uncertainty import fmt_all
+    from loopledger.plugins.uncertainty.uncertainty import fmt_all
 
     values = [1234567.0, 2.5e-05, 0.0, -0.0, np.nan, np.inf, -np.inf, 2.5e-05, 12.0]
     expected = [format(v, ".4g") if np.isfinite(v) else ("—" if np.isnan(v) else "∞") for v in values]

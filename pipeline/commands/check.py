@@ -11,7 +11,7 @@ import argparse
 import sys
 from pathlib import Path
 
-from loopledger import incremental
+from loopledger.cache import store as incremental
 
 ASSETS = "assets.csv"  # the registry file that marks an evidence folder (loopledger.registry.ASSETS)
 

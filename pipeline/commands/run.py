@@ -1,7 +1,7 @@
 """``loopledger run EVIDENCE_DIR --out OUT``: judge every result file, export tables, publish the handbook.
 
 Imports stay light at module level: an unchanged rerun is answered from the
-cache manifest (:mod:`loopledger.incremental`) before pandas is ever imported.
+cache manifest (:mod:`loopledger.cache.store`) before pandas is ever imported.
 """
 
 from __future__ import annotations
@@ -12,7 +12,7 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
-from loopledger import incremental
+from loopledger.cache import store as incremental
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

@@ -18,11 +18,11 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+from loopledger import asset_columns, scaling
 from loopledger.context import RunContext
 from loopledger.contracts import SignalType
 from loopledger.findings import Finding
 from loopledger.hookspecs import hookimpl
-from loopledger.plugins import asset_columns, scaling
 
 from ll_valve_feedback.schema import ValvePositionColumns
 

@@ -1,0 +1,208 @@
+"""Method comparison: what each point's U and TUR would be with the other way of reading the output.
+
+For a test read ``direct`` on a current range: the same meter's voltage range across each shunt
+in instruments.yaml; for a test read across a ``shunt``: the same meter's current range. The
+budget is the same computation as the uncertainty stage's, on the point as it would have read
+(the measured output × R, or the output itself); the repeatability seen in the test is not
+carried over, so both sides are compared on instrument terms plus what was observed only for the
+method actually used. Kept in ``ctx.extras["method_comparison"]`` (exported as
+``method_comparison.csv``) and shown on each test page and by ``loopledger explain``; the
+printable site test sheet gets the U and TUR the planned rig would give at the points of the
+asset's latest test.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from loopledger import quantities as q
+from loopledger.context import RunContext
+from loopledger.contracts import Section
+from loopledger.findings import Finding
+from loopledger.hookspecs import hookimpl
+from loopledger.plugins.judge.conformity import MIN_TUR
+from loopledger.plugins.uncertainty import budget
+from loopledger.plugins.uncertainty.uncertainty import fmt_all, phase_texts, rows_by, texts
+
+COLUMNS = ["test", "phase", "point", "alternative", "method", "shunt", "U", "tur"]
+
+
+def _as_read_by(pts: pd.DataFrame, method: Any, shunt: Any, reading: pd.Series, unit: Any) -> pd.DataFrame:
+    """``pts`` as they would have been read with ``method`` (a name or one per point), and so on."""
+    alt = pts.copy()
+    alt["method"] = method
+    alt["shunt"] = shunt
+    alt["reading"] = reading
+    alt["reading_unit"] = unit
+    alt["reading_text"] = ""  # the digits written belong to the reading actually taken
+    alt["n_readings"] = 1
+    alt["reading_sd"] = np.nan
+    alt["reading_half_spread"] = np.nan
+    return alt
+
+
+def _shunts(ctx: RunContext) -> pd.Series:
+    """The resistance of each shunt in the registry (Ω by id, NaN where unreadable)."""
+    from loopledger.plugins.measure.reading_methods import shunt_ohms
+
+    shunts = ctx.instruments[ctx.instruments["kind"] == "shunt"] if not ctx.instruments.empty else pd.DataFrame()
+    ids = pd.Series(shunts.index, index=shunts.index, dtype=object)
+    return shunt_ohms(ctx, ids) if len(shunts) else pd.Series(dtype=float)
+
+
+def alternatives(ctx: RunContext, pts: pd.DataFrame) -> pd.DataFrame:
+    """U and TUR of every point of ``pts`` under each alternative method (long table, :data:`COLUMNS`)."""
+    current = q.of_dimension(pts["output_unit"], "A")
+    amps = q.convert(pts["measured"], pts["output_unit"], "A")
+    frames: list[pd.DataFrame] = []
+    direct = pts[(pts["method"] == "direct") & current & pts["meter"].notna()]
+    for ident, ohms in _shunts(ctx).items() if len(direct) else []:
+        if not np.isfinite(ohms):
+            continue
+        alt = _as_read_by(direct, "shunt", str(ident), amps[direct.index] * ohms, "V")
+        frames.append(_evaluate(ctx, alt, f"shunt {ident} ({ohms:g} Ω) on " + direct["meter"].astype(str) + " volts"))
+    shunted = pts[(pts["method"] == "shunt") & current & pts["meter"].notna()]
+    if len(shunted):
+        alt = _as_read_by(shunted, "direct", None, shunted["measured"], shunted["output_unit"])
+        frames.append(_evaluate(ctx, alt, "direct on " + shunted["meter"].astype(str) + " current range"))
+    frames = [f for f in frames if len(f)]
+    return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(columns=COLUMNS)
+
+
+def _evaluate(ctx: RunContext, alt: pd.DataFrame, label: Any) -> pd.DataFrame:
+    """U and TUR of each point of ``alt`` by the uncertainty stage's budget; ``label`` names the rig, one
+    per point (the point's own meter: never another test's)."""
+    _, per, problems = budget.compute(ctx, alt)
+    frame = alt[["test", "phase", "point", "method", "shunt"]].copy()
+    frame["alternative"] = label
+    frame["U"] = per["U"]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        frame["tur"] = alt["mpe"] / per["U"]
+    return frame[COLUMNS].reset_index(drop=True)
+
+
+@hookimpl
+def ll_analyse(ctx: RunContext) -> list[Finding]:
+    if ctx.points.empty or "U" not in ctx.points.columns:
+        return []
+    ctx.extras["method_comparison"] = alternatives(ctx, ctx.points)
+    return []
+
+
+@hookimpl
+def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
+    table = ctx.extras.get("method_comparison")
+    return {} if table is None else {"method_comparison": table.sort_values(["test", "phase", "point"], kind="stable")}
+
+
+def comparison_tables(ctx: RunContext, tests: list[str]) -> dict[str, tuple[list[str], list[list[str]]]]:
+    """(columns, rows) comparing the method used with each alternative, point by point, for each test."""
+    table = ctx.extras.get("method_comparison")
+    if table is None or ctx.points.empty:
+        return {}
+    pts = ctx.points[ctx.points["test"].isin(tests)].sort_values(["test", "phase", "point"], kind="stable")
+    mine = table[table["test"].isin(tests)]
+    if pts.empty or mine.empty:
+        return {}
+    # each test's alternatives in the order met, numbered 0, 1, ...
+    labels = mine.drop_duplicates(["test", "alternative"])[["test", "alternative"]]
+    labels = labels.assign(rank=labels.groupby("test", sort=False).cumcount())
+    hits = mine.drop_duplicates(["test", "alternative", "phase", "point"]).merge(labels, on=["test", "alternative"])
+    columns = [phase_texts(pts["phase"]), texts(pts["point"]), fmt_all(pts["U"]), fmt_all(pts["tur"], 3)]
+    keys = pts[["test", "phase", "point"]]
+    for rank in range(int(labels["rank"].max()) + 1):
+        hit = keys.merge(hits[hits["rank"] == rank], on=["test", "phase", "point"], how="left")
+        found = hit["alternative"].notna().to_numpy()
+        columns += [np.where(found, fmt_all(hit["U"]), "—"), np.where(found, fmt_all(hit["tur"], 3), "—")]
+    names = labels.groupby("test", sort=False)["alternative"].agg(list)
+    used = pts.drop_duplicates("test").set_index("test")["method"].astype(str)
+    out = {}
+    for test, rows in rows_by(pts["test"], columns).items():
+        if test not in names.index:
+            continue
+        heads = ["Phase", "#", f"U as read ({used[test]})", "TUR"]
+        for label in names[test]:
+            heads += [f"U with {label}", "TUR"]
+        out[test] = (heads, [row[:len(heads)] for row in rows])
+    return out
+
+
+def comparison_rows(ctx: RunContext, test: str) -> tuple[list[str], list[list[str]]]:
+    """(columns, rows) of :func:`comparison_tables` for one test (``loopledger explain``)."""
+    return comparison_tables(ctx, [test]).get(str(test), ([], []))
+
+
+@hookimpl
+def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
+    found = comparison_tables(ctx, tests)
+    if not found:
+        return {}
+    first = ctx.points[ctx.points["test"].isin(list(found))].drop_duplicates("test")
+    units = dict(zip(first["test"].astype(str), first["output_unit"].astype(str), strict=True))
+    return {test: [Section(title=f"Method comparison: U ({units[test]}) and TUR with the other rig the registry "
+                                 "allows", kind="table", columns=columns, rows=rows, order=25)]
+            for test, (columns, rows) in found.items() if rows}
+
+
+def planned(ctx: RunContext, plans: dict[str, dict[str, Any]]) -> pd.DataFrame:
+    """U and TUR at the points of each asset's latest test, had they been read with its planned rig.
+
+    One frame of all the assets' points as the planned rigs would read them, through one budget;
+    an ``asset`` column says whose each row is. Assets whose rig cannot be evaluated are left out.
+    """
+    pts = ctx.points
+    if pts.empty or "mpe" not in pts.columns:
+        return pd.DataFrame(columns=[*COLUMNS, "asset"])
+    keys = pts[["asset", "date", "test"]]
+    keys = keys[keys["asset"].isin(list(plans))].drop_duplicates()
+    latest = keys.sort_values(["date", "test"], kind="stable").drop_duplicates("asset", keep="last")
+    ohms = _shunts(ctx)
+    rigs: dict[str, tuple[str, str | None, float, str]] = {}  # asset -> method, shunt id, Ω, label
+    shunt_for: dict[Any, tuple[str, str | None, float, str] | None] = {}  # the registry shunt for each Ω asked
+    for asset in latest["asset"]:
+        plan = plans[asset]
+        if plan.get("method") == "direct":
+            rigs[asset] = ("direct", None, np.nan, "direct")
+        elif plan.get("method") == "shunt":
+            wanted = plan.get("shunt_ohm")
+            if wanted not in shunt_for:
+                match = ohms[np.isclose(ohms, float(wanted))] if wanted is not None else ohms
+                ident, value = (str(match.index[0]), float(match.iloc[0])) if len(match) else ("", np.nan)
+                shunt_for[wanted] = ("shunt", ident, value, f"shunt {ident} ({value:g} Ω)") if len(match) else None
+            found = shunt_for[wanted]
+            if found is not None:
+                rigs[asset] = found
+    latest = latest[latest["asset"].isin(list(rigs))].set_index("asset")["test"]
+    pts = pts[(pts["test"] == pts["asset"].map(latest)) & pts["measured"].notna()]
+    if pts.empty:
+        return pd.DataFrame(columns=[*COLUMNS, "asset"])
+    rig = pd.DataFrame.from_dict(rigs, orient="index", columns=["method", "shunt", "ohm", "label"])
+    rig = rig.reindex(pts["asset"].to_numpy()).set_axis(pts.index)
+    meters = pd.Series({a: plans[a].get("meter") for a in rigs}, dtype=object).reindex(pts["asset"].to_numpy())
+    shunt = rig["method"] == "shunt"
+    amps = q.convert(pts["measured"], pts["output_unit"], "A")
+    alt = _as_read_by(pts, rig["method"], rig["shunt"].where(shunt, None), (amps * rig["ohm"]).where(
+        shunt, pts["measured"]), pts["output_unit"].where(~shunt, "V"))
+    alt["meter"] = alt["meter"].where(~meters.astype(bool).to_numpy(), meters.to_numpy())  # the planned meter
+    table = _evaluate(ctx, alt, rig["label"])
+    return table.assign(asset=pts["asset"].to_numpy(), input_pct=pts["input_pct"].to_numpy(),
+                        mpe=pts["mpe"].to_numpy(), output_unit=pts["output_unit"].to_numpy())
+
+
+@hookimpl
+def ll_sheet_sections(ctx: RunContext, plans: dict[str, dict[str, Any]]) -> dict[str, list[Section]]:
+    table = planned(ctx, {str(a): p for a, p in plans.items()})
+    if table.empty:
+        return {}
+    first = table.drop_duplicates("asset")
+    names = dict(zip(first["asset"], zip(first["output_unit"].astype(str), first["alternative"], strict=True),
+                     strict=True))
+    ok = np.where(table["tur"].to_numpy(dtype=float) >= MIN_TUR, "yes", "no")
+    columns = [phase_texts(table["phase"]), texts(table["point"]), fmt_all(table["input_pct"], 3),
+               fmt_all(table["mpe"]), fmt_all(table["U"]), fmt_all(table["tur"], 3), ok]
+    return {asset: [Section(
+        title=f"Expected U ({names[asset][0]}) and TUR with the planned rig: {names[asset][1]}",
+        kind="table", columns=["Phase", "#", "Input %", "MPE ±", "U", "TUR", f"TUR ≥ {MIN_TUR:g}:1"],
+        rows=rows, order=40)] for asset, rows in rows_by(table["asset"], columns).items()}

@@ -1,0 +1,496 @@
+"""Publish: the static HTML handbook of every asset's test history.
+
+Pages: ``index.html`` (fleet status at ``as_of``), ``assets/<asset>.html``,
+``tests/<test>.html`` (one evidence sheet per test, its chart drawn into it as inline
+SVG so the page is one self-contained file), ``sheets/<asset>.html`` (printable test
+sheet to take to site), ``overdue.html``, ``failures.html`` and ``instruments.html``.
+Each test page carries its result file exactly as read (shown as text, and as a
+download link holding the bytes), so one file is the whole evidence of one test;
+the site holds no separate copies. Page data comes from
+:mod:`site_pages` and :mod:`page_rows`, charts from :mod:`charts`; templates and CSS
+live in the site/ theme.
+
+The site is built in a staging folder and swapped into place whole. The fleet is
+split into batches (each asset with its tests), made in forked worker processes
+when there are many pages. A manifest (``.manifest.json`` in the site) keeps a hash
+of each page's inputs and a digest per asset of everything its pages are made from
+(:mod:`page_inputs`). An asset whose digest is unchanged has its pages hard-linked
+from the previous site without their data being made; for the other assets each
+page whose hash is unchanged is linked rather than rendered and written again.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import html
+import importlib.resources
+import json
+import os
+import shutil
+from dataclasses import dataclass, field
+from functools import lru_cache
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+from loopledger.cache.forking import can_fork, fork_pool, share_out
+from loopledger.context import RunContext
+from loopledger.findings import Finding
+from loopledger.hookspecs import hookimpl
+from loopledger.plugins.handbook import page_html, page_inputs
+from loopledger.plugins.handbook import page_rows as pr
+from loopledger.plugins.handbook import site_pages as sp
+from loopledger.plugins.handbook.page_html import num as _num
+from loopledger.plugins.handbook.site_pages import CAUTIONS, page_name
+
+__all__ = ["CAUTIONS", "page_name", "render_markdown", "build", "environment"]
+
+MANIFEST = ".manifest.json"
+#: bump when the page-making code changes in a way the template digest would not show
+FORMAT = 1
+#: render in worker processes only when at least this many pages changed (process start-up costs)
+PARALLEL_MIN = 48
+STATIC = ("style.css", "filter.js")
+ALLOWED_TAGS = {"p", "em", "strong", "ul", "ol", "li", "code", "pre", "br", "table", "thead", "tbody", "tr",
+                "th", "td", "blockquote", "h3", "h4", "hr"}
+
+
+#: inline Markdown that would make a link or fetch something: left as the text that was written
+LINKING = ("reference", "link", "image_link", "image_reference", "short_reference", "short_image_ref", "autolink",
+           "automail")
+
+
+def render_markdown(text: Any) -> str:
+    """Markdown remarks rendered and sanitised: no script, handler, link or remote resource survives.
+
+    Any HTML the remark contains is escaped first and link/image syntax is not interpreted, so both
+    show as the text that was written; nh3 then keeps only plain formatting tags, without attributes.
+    """
+    if text is None or isinstance(text, float) or not str(text).strip():
+        return ""
+    return _remark_html(str(text))
+
+
+@lru_cache(maxsize=4096)
+def _remark_html(text: str) -> str:
+    """One remark's sanitised HTML (kept per text: a fleet's remarks repeat a few standard phrases)."""
+    import nh3
+
+    md = _markdown()
+    rendered = md.reset().convert(html.escape(str(text), quote=False))
+    return nh3.clean(rendered, tags=ALLOWED_TAGS, attributes={}, url_schemes=set(), link_rel=None)
+
+
+_MD: Any = None
+
+
+def _markdown() -> Any:
+    """One Markdown converter per process (reset before each remark), without link or image syntax."""
+    global _MD
+    if _MD is None:
+        import markdown
+
+        _MD = markdown.Markdown(extensions=["tables"], output_format="html")
+        for name in LINKING:
+            _MD.inlinePatterns.deregister(name, strict=False)
+    return _MD
+
+
+_ENV: Any = None
+
+
+def environment() -> Any:
+    global _ENV
+    if _ENV is None:
+        import jinja2
+
+        env = jinja2.Environment(
+            loader=jinja2.PackageLoader("loopledger.site", "templates"),
+            autoescape=True, undefined=jinja2.ChainableUndefined, trim_blocks=True, lstrip_blocks=True,
+            keep_trailing_newline=True, auto_reload=False,  # templates do not change during a run: no stat per page
+            finalize=_shown,
+        )
+        env.filters["num"] = _num
+        env.filters["signed"] = lambda v, d=3: _num(v, d, sign=True)
+        env.filters["point_rows"] = page_html.point_rows
+        env.filters["g"] = _g
+        env.filters["phase"] = page_html.phase
+        env.filters["blocks_html"] = page_html.blocks_html
+        env.globals["verdict"] = page_html.verdict
+        _ENV = env
+    return _ENV
+
+
+def _shown(value: Any) -> Any:
+    """What a page shows for a value: a missing one (None, NaN) as a dash, never the words 'None' or 'nan'."""
+    if value is None or (isinstance(value, float) and value != value):
+        return "—"
+    return value
+
+
+def _g(value: Any) -> str:
+    return "—" if value is None or value == "" else (f"{value:g}" if isinstance(value, float) else str(value))
+
+
+def _theme_digest() -> str:
+    root = importlib.resources.files("loopledger.site")
+    import jinja2
+    import markdown
+    import nh3
+
+    versions = [FORMAT, jinja2.__version__, markdown.__version__, getattr(nh3, "__version__", "")]
+    h = hashlib.sha256(json.dumps(versions).encode())
+    for folder in ("templates", "static"):
+        for item in sorted(root.joinpath(folder).iterdir(), key=lambda p: p.name):
+            if item.is_file():
+                h.update(item.name.encode() + b"\0" + item.read_bytes())
+    for module in ("charts.py", "svgplot.py", "handbook.py", "page_html.py"):
+        h.update(importlib.resources.files("loopledger.plugins.handbook").joinpath(module).read_bytes())
+    return h.hexdigest()
+
+
+@dataclass
+class Job:
+    """One page to write: its template and data, and the charts it shows inline (page-data key -> kind,
+    data, title; the chart's SVG and text alternative are drawn when the page is rendered)."""
+
+    rel: str
+    template: str
+    data: dict[str, Any]
+    charts: dict[str, tuple[str, dict[str, Any], str]] = field(default_factory=dict)
+
+    def digest(self, theme: str) -> str:
+        # keys in the order the page data was made (that order is part of what the page shows), text as
+        # ASCII escapes: about half the time of sorted keys and UTF-8 text, over tens of thousands of pages
+        blob = json.dumps([theme, self.rel, self.template, self.data, self.charts], default=str, allow_nan=False)
+        return hashlib.sha256(blob.encode("ascii")).hexdigest()
+
+
+def render_job(job: Job) -> bytes:
+    """One page's HTML, its charts drawn into it as inline SVG (a test page is one self-contained file)."""
+    from loopledger.plugins.handbook import charts
+
+    page = dict(job.data)
+    for key, (kind, data, title) in job.charts.items():
+        if kind == "error":
+            page[key] = {"svg": charts.error_chart(data, title), "alt": charts.error_alt(data)}
+        else:
+            page[key] = {"svg": charts.drift_chart(data, title), "alt": charts.drift_alt(data)}
+    return environment().get_template(job.template).render(**page).encode("utf-8")
+
+
+def _depth(rel: str) -> str:
+    return "../" * rel.count("/")
+
+
+@dataclass
+class Shared:
+    """What every page is made from, worked out once per build (before any worker process starts)."""
+
+    common: dict[str, Any]
+    used: pd.DataFrame
+    tests: pd.DataFrame
+    assets: pd.DataFrame
+    points: pd.DataFrame
+    registry: dict[Any, dict[str, Any]]
+    instruments: dict[Any, dict[str, Any]]
+
+
+#: the point columns page data reads besides those a page shows (site_pages.POINT_COLS)
+PAGE_POINT_COLS = ["test", "asset", "date", "phase", "point", "input_pct", "error_pct_span", "mpe", "span"]
+
+
+def prepare(ctx: RunContext) -> Shared:
+    rule = str(ctx.section("decision").get("rule", "simple"))
+    used = sp.usage(ctx)
+    tests = sp.test_table(ctx, used)
+    assets = sp.asset_table(ctx, tests)
+    points = ctx.points
+    if len(points):  # only the columns pages show or chart (not a copy of the wide table), computed once
+        keep = [c for c in dict.fromkeys([*PAGE_POINT_COLS, *sp.POINT_COLS]) if c in points.columns]
+        extra = sp.chart_columns(points)
+        points = points[keep].assign(**{c: extra[c].to_numpy() for c in sp.CHART_COLS[2:]})
+    return Shared({"as_of": ctx.as_of.isoformat(), "cautions": CAUTIONS, "rule": rule}, used, tests, assets,
+                  points, pr.registry_rows(ctx), pr.instrument_rows(ctx))
+
+
+def _job(sh: Shared, rel: str, template: str, data: dict[str, Any], charts: dict[str, Any] | None = None) -> Job:
+    return Job(rel, template, {**sh.common, **data, "root": _depth(rel), "page_rel": rel}, charts or {})
+
+
+def fleet_jobs(ctx: RunContext, sh: Shared) -> list[Job]:
+    """The pages about the whole fleet: index, overdue, failures, reference instruments."""
+    assets, tests = sh.assets, sh.tests
+    index = {**sp.index_data(ctx, assets, tests), "sections": page_html.sections_html(sp.fleet_sections(ctx))}
+    failed_tests = tests[tests["verdict"].isin(["fail", "invalid"])].sort_values(["date", "test"], ascending=False) \
+        if len(tests) else tests
+    return [
+        _job(sh, "index.html", "index.html", index),
+        _job(sh, "overdue.html", "overdue.html", {
+            "assets": index["action"]["overdue"],
+            "untested": sp.records(assets[assets["verdict"] == "untested"], sp.ASSET_COLS),
+            "soon": sp.records(assets[assets["due_soon"]].sort_values("next_due"), sp.ASSET_COLS)}),
+        _job(sh, "failures.html", "failures.html", {"tests": sp.records(failed_tests, sp.TEST_COLS),
+                                                    "assets": index["action"]["failed"]}),
+        _job(sh, "instruments.html", "instruments.html", sp.instruments_data(ctx, sh.used, tests)),
+    ]
+
+
+def batch_jobs(ctx: RunContext, sh: Shared, asset_ids: list[Any], test_ids: list[Any]) -> list[Job]:
+    """The pages of some assets (asset page and test sheet) and of some tests (an asset's tests come in
+    the same batch as the asset), each page hook asked once for the whole batch."""
+    no_tests = sh.tests.iloc[0:0]
+    assets = sh.assets.loc[list(asset_ids)] if len(asset_ids) else sh.assets.iloc[0:0]
+    tests = sh.tests[sh.tests["test"].isin(test_ids)] if len(test_ids) else no_tests
+    points = sh.points[sh.points["test"].isin(test_ids)] if len(sh.points) and len(test_ids) else sh.points.iloc[0:0]
+    valid = [str(t) for t in tests.loc[tests["valid"].astype(bool), "test"]] if len(tests) else []
+    test_pages = pr.test_pages(ctx, tests, points, sh.used, sh.registry, sh.instruments, sp.test_sections(ctx, valid))
+    latest = {tid: page["chart"] for tid, page in test_pages.items()}
+    asset_pages = pr.asset_pages(ctx, assets, tests, points, sh.registry, latest,
+                                 sp.asset_sections(ctx, [str(a) for a in assets["asset"]]))
+    plans = sp.default_plans(ctx, list(assets["asset"]), tests)
+    sheets = sp.sheets(ctx, plans, points, sp.sheet_sections(ctx, plans))
+    out: list[Job] = []
+    for name, ident, last_date in zip(assets["page"], assets["asset"], assets["last_date"], strict=True):
+        data = asset_pages[ident]
+        charts: dict[str, Any] = {}
+        if data["latest_chart"]:  # the same chart as the latest test's page
+            charts["latest_chart"] = ("error", data.pop("latest_chart"), f"{ident}: test of {last_date}")
+        if data["drift_chart"]:
+            charts["drift_chart"] = ("drift", data.pop("drift_chart"), f"{ident}: as-found error by year")
+        out.append(_job(sh, f"assets/{name}.html", "asset.html", data, charts))
+        out.append(_job(sh, f"sheets/{name}.html", "sheet.html", {"sheet": sheets[str(ident)],
+                                                                   "asset_page": f"{name}.html"}))
+    for tid, page, asset, date, source, remarks in zip(
+            tests["test"], tests["page"], tests["asset"], tests["date"], tests["source_file"],
+            tests["remarks"] if "remarks" in tests else [None] * len(tests), strict=True):
+        data = dict(test_pages[tid])
+        chart = data.pop("chart")
+        charts = {"chart": ("error", chart, f"{asset}: test of {date}")} if chart else {}
+        data["remarks_html"] = render_markdown(remarks)
+        data["original"] = pr.original_file(ctx.raw_files.get(source), source)
+        data["has_asset"] = asset in ctx.assets.index
+        out.append(_job(sh, f"tests/{page}.html", "test.html", data, charts))
+    return out
+
+
+def jobs(ctx: RunContext) -> list[Job]:
+    """Every page of the site with the data it is made from."""
+    view = ctx.page_view()
+    sh = prepare(view)
+    return [*fleet_jobs(ctx, sh), *batch_jobs(view, sh, list(sh.assets.index), list(sh.tests["test"]))]
+
+
+def batches(sh: Shared, n: int, only: set[Any] | None = None) -> list[tuple[list[Any], list[Any]]]:
+    """The assets (with their tests) shared out into ``n`` batches of about equal work; tests whose asset
+    is not in the registry are shared out too. ``only``: just these registered assets (and every such
+    test)."""
+    mine = sh.tests.groupby("asset", sort=False)["test"].agg(list).to_dict() if len(sh.tests) else {}
+    assets = [a for a in sh.assets.index if only is None or a in only]
+    # a page per test; the asset page and sheet weigh 3
+    groups = share_out([len(mine.get(a, ())) + 3 for a in assets], n)
+    out = [([assets[i] for i in g], [t for i in g for t in mine.get(assets[i], ())]) for g in groups]
+    orphans = sh.tests.loc[~sh.tests["asset"].isin(sh.assets.index), "test"] if len(sh.tests) else []
+    for i, test in enumerate(orphans):
+        out[i % len(out)][1].append(test)
+    return [b for b in out if b[0] or b[1]]
+
+
+def _read_manifest(folder: Path) -> dict[str, Any]:
+    try:
+        found = json.loads((folder / MANIFEST).read_text(encoding="utf-8"))
+        return found if isinstance(found, dict) and isinstance(found.get("pages"), dict) else {}
+    except (OSError, ValueError):
+        return {}
+
+
+@dataclass
+class BuildStats:
+    pages: int = 0
+    rendered: int = 0
+    reused: int = 0
+    #: registered assets whose page data was not made again (their digest matched the live site's)
+    kept: int = 0
+
+
+@dataclass
+class _Build:
+    """One build's settings, handed to worker processes by forking (never pickled). ``ctx`` is the run's
+    :meth:`~RunContext.page_view`, which an asset's pages and its digest are made from; ``fleet`` the whole
+    run, for the pages about the fleet."""
+
+    ctx: RunContext
+    fleet: RunContext
+    shared: Shared
+    folder: Path
+    previous: Path | None
+    old_pages: dict[str, Any]
+    theme: str
+
+
+_CURRENT: _Build | None = None
+
+
+def _emit(b: _Build, job: Job) -> tuple[dict[str, Any], bool]:
+    """Write one page into the staging folder: linked from the live site when its inputs are unchanged,
+    else rendered. Returns its manifest entry and whether it was rendered."""
+    digest = job.digest(b.theme)
+    entry = {"hash": digest}
+    prev = b.old_pages.get(job.rel)
+    if b.previous is not None and prev and prev.get("hash") == digest and (b.previous / job.rel).is_file():
+        _reuse(b.previous / job.rel, b.folder / job.rel)
+        return entry, False
+    _write(b.folder / job.rel, render_job(job))
+    return entry, True
+
+
+def _run_batch(batch: tuple[list[Any], list[Any]]) -> tuple[dict[str, Any], int]:
+    """Make, compare and write the pages of one batch (in a worker process when parallel): (manifest page
+    entries, pages rendered)."""
+    b = _CURRENT
+    assert b is not None, "no build in progress"
+    entries: dict[str, Any] = {}
+    rendered = 0
+    for job in batch_jobs(b.ctx, b.shared, *batch):
+        entries[job.rel], made = _emit(b, job)
+        rendered += made
+    return entries, rendered
+
+
+def _run_fleet(b: _Build) -> tuple[dict[str, Any], int]:
+    """The pages about the whole fleet (made in this process while the workers make the batches)."""
+    entries: dict[str, Any] = {}
+    rendered = 0
+    for job in fleet_jobs(b.fleet, b.shared):
+        entries[job.rel], made = _emit(b, job)
+        rendered += made
+    return entries, rendered
+
+
+def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: int | None = None) -> BuildStats:
+    """Write the whole site into ``folder``; reuse unchanged pages from ``previous`` (the live site)."""
+    global _CURRENT
+    theme = _theme_digest()
+    view = ctx.page_view()  # what an asset's pages are made from: nothing that depends on other assets
+    sh = prepare(view)
+    live = previous if previous is not None and previous.is_dir() else None
+    old = _read_manifest(live) if live is not None else {}
+    old_pages = old.get("pages", {}) if old.get("theme") == theme else {}
+    found = old.get("assets") if old_pages else None
+    old_keys: dict[str, Any] = found if isinstance(found, dict) else {}
+    # with nothing to keep, the digests (for the next build) are worked out while the workers make pages
+    keys = asset_digests(view, sh, theme) if live is not None and old_keys else None
+    kept = _kept_assets(sh, keys, old_keys, old_pages, live) if keys is not None and live is not None else {}
+    b = _Build(view, ctx, sh, folder, live, old_pages, theme)
+    workers = workers if workers is not None else (os.cpu_count() or 1)
+    made = set(sh.assets.index) - set(kept)
+    todo = batches(sh, 1, only=made)
+    pages = 4 + sum(2 * len(a) + len(t) for a, t in todo)
+    _CURRENT = b
+    try:
+        if workers < 2 or pages < PARALLEL_MIN or not can_fork():  # in this process
+            done = [*(_run_batch(batch) for batch in todo), _run_fleet(b)]
+            keys = keys if keys is not None else asset_digests(view, sh, theme)
+        else:  # forked workers share the run's tables without copying them
+            with fork_pool(workers) as pool:
+                futures = [pool.submit(_run_batch, batch) for batch in batches(sh, workers * 4, only=made)]
+                fleet = _run_fleet(b)
+                keys = keys if keys is not None else asset_digests(view, sh, theme)
+                done = [*(f.result() for f in futures), fleet]
+    finally:
+        _CURRENT = None
+    done.append(_keep(b, kept))
+    manifest: dict[str, Any] = {"theme": theme, "assets": keys, "pages": {}}
+    stats = BuildStats()
+    for entries, rendered in done:
+        manifest["pages"].update(entries)
+        stats.pages += len(entries)
+        stats.rendered += rendered
+    stats.reused = stats.pages - stats.rendered
+    stats.kept = len(kept)
+    static = importlib.resources.files("loopledger.site").joinpath("static")
+    for name in STATIC:
+        _write(folder / name, static.joinpath(name).read_bytes())
+    _write(folder / MANIFEST, json.dumps(manifest, sort_keys=True, indent=1).encode("utf-8") + b"\n")
+    return stats
+
+
+def asset_digests(ctx: RunContext, sh: Shared, theme: str) -> dict[str, str]:
+    """A digest per asset of everything its pages are made from (:mod:`page_inputs`)."""
+    from loopledger.cache.store import engine_fingerprint
+
+    return page_inputs.digests(ctx, {"tests": sh.tests, "assets": sh.assets, "used": sh.used},
+                               [FORMAT, theme, engine_fingerprint(), sh.common])
+
+
+def asset_pages(sh: Shared) -> dict[Any, list[str]]:
+    """The pages of each registered asset: its page, its test sheet and its tests' pages."""
+    tests = sh.tests.groupby("asset", sort=False)["page"].agg(list).to_dict() if len(sh.tests) else {}
+    return {asset: [f"assets/{name}.html", f"sheets/{name}.html", *(f"tests/{t}.html" for t in tests.get(asset, ()))]
+            for asset, name in zip(sh.assets.index, sh.assets["page"], strict=True)}
+
+
+def _kept_assets(sh: Shared, keys: dict[str, str], old_keys: dict[str, Any], old_pages: dict[str, Any],
+                 live: Path) -> dict[Any, list[str]]:
+    """The registered assets whose pages the live site already holds as this build would make them
+    (same digest as in the live site's manifest, every page listed there and on disk), with those pages."""
+    kept: dict[Any, list[str]] = {}
+    for asset, rels in asset_pages(sh).items():
+        if isinstance(asset, str) and keys.get(asset) is not None and old_keys.get(asset) == keys[asset] and \
+                all(rel in old_pages and (live / rel).is_file() for rel in rels):
+            kept[asset] = rels
+    return kept
+
+
+def _keep(b: _Build, kept: dict[Any, list[str]]) -> tuple[dict[str, Any], int]:
+    """The kept assets' pages linked from the live site, with their manifest entries (none rendered)."""
+    entries: dict[str, Any] = {}
+    if b.previous is None:
+        return entries, 0
+    for rels in kept.values():
+        for rel in rels:
+            _reuse(b.previous / rel, b.folder / rel)
+            entries[rel] = b.old_pages[rel]
+    return entries, 0
+
+
+def _reuse(source: Path, target: Path) -> None:
+    """A file of the live site into the staging folder: a hard link (no copy) where the file system
+    allows, else a copy. Files are never written in place, so a link never changes the live site."""
+    try:
+        _link_or_copy(source, target)
+    except FileNotFoundError:  # its folder is not made yet
+        target.parent.mkdir(parents=True, exist_ok=True)
+        _link_or_copy(source, target)
+
+
+def _link_or_copy(source: Path, target: Path) -> None:
+    try:
+        os.link(source, target)
+    except OSError:
+        shutil.copyfile(source, target)
+
+
+def _write(path: Path, data: bytes) -> None:
+    """Write a new file into the staging folder. Opened exclusively (one call where the folder exists):
+    a name already there, which may be a link to a live page, is removed first, never written through."""
+    try:
+        fh = open(path, "xb")
+    except FileNotFoundError:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        fh = open(path, "xb")
+    except FileExistsError:
+        path.unlink()
+        fh = open(path, "xb")
+    with fh:
+        fh.write(data)
+
+
+@hookimpl
+def ll_publish(ctx: RunContext, out: Path) -> list[Finding]:
+    from loopledger.output import staged_dir
+
+    live = out / "handbook"
+    with staged_dir(live) as folder:
+        ctx.extras["handbook_build"] = build(ctx, folder, previous=live if live.is_dir() else None)
+    return []

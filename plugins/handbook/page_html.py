@@ -1,0 +1,150 @@
+"""The pieces every handbook page repeats most, made in Python rather than in a template.
+
+A fleet's handbook has tens of thousands of pages. The verdict badge appears on
+every point row, the points table on every test page and the plugins' page
+blocks on every page, and a jinja2 macro call or loop costs several times what
+a Python function does. These functions give the same HTML the templates would
+(jinja2's autoescaping, via markupsafe; a value missing from a row prints as
+jinja2's undefined does) and are registered in the template environment: the
+global ``verdict`` and the filters ``blocks_html``, ``point_rows``, ``num`` and
+``phase``.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from jinja2 import ChainableUndefined
+from loopledger.contracts import Section
+from loopledger.plugins.handbook.site_pages import plain
+from markupsafe import Markup, escape
+
+#: what a row's missing value is (as in a template: prints as "", is falsy)
+MISSING = ChainableUndefined()
+PHASES = {"as_found": "as found", "as_left": "as left"}
+
+#: markupsafe's escapes, applied to plain text in one C call (no Markup object per cell)
+_ESCAPES = str.maketrans({"&": "&amp;", "<": "&lt;", ">": "&gt;", "'": "&#39;", '"': "&#34;"})
+
+
+def _esc(v: Any) -> str:
+    """``str(escape(v))``, quicker for plain text, which most cells are."""
+    return v.translate(_ESCAPES) if type(v) is str else str(escape(v))
+
+
+def num(value: Any, digits: int = 4, sign: bool = False) -> str:
+    """A number with ``digits`` decimals (``sign``: always signed); "—" for none; other values as text."""
+    if value is None or value == "":
+        return "—"
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        return str(value)
+    return f"{value:+.{digits}f}" if sign else f"{value:.{digits}f}"
+
+
+def phase(v: Any) -> str:
+    return PHASES.get(v, v or "")
+
+
+#: the words and marks of each verdict; the marks are hidden from screen readers
+VERDICT_WORDS = {"pass": "Pass", "fail": "Fail", "adjusted": "Adjusted", "invalid": "Invalid file",
+                 "untested": "No valid test", "conditional-pass": "Conditional pass",
+                 "conditional-fail": "Conditional fail"}
+VERDICT_MARKS = {"pass": "✓", "fail": "✗", "adjusted": "↻", "invalid": "!", "untested": "–",
+                 "conditional-pass": "✓?", "conditional-fail": "✗?"}
+
+
+def verdict(v: Any) -> Markup:
+    """A verdict as a badge: class ``v-<verdict>``, a mark and the verdict's words."""
+    return Markup(f'<span class="verdict v-{_esc(v or "none")}"><span aria-hidden="true">'
+                  f'{_esc(VERDICT_MARKS.get(v, "·"))} </span>{_esc(VERDICT_WORDS.get(v, v or "—"))}</span>')
+
+
+def _item(row: Any, i: int) -> Any:
+    """``row[i]``, or "" where the row has no such item (as a template prints a missing value)."""
+    try:
+        return row[i]
+    except (TypeError, LookupError):
+        return ""
+
+
+def _same(v: Any) -> Any:
+    return v
+
+
+def _row(row: Any, cell: Any) -> Any:
+    """A row's cells made by ``cell`` (page data, already plain, is taken as it is)."""
+    if isinstance(row, (list, tuple)):
+        return row if cell is _same else [v if type(v) is str else plain(v) for v in row]
+    return cell(row)
+
+
+def _block(get: Any, cell: Any) -> str:
+    kind = get("kind")
+    parts = ['<section class="plugin-section">\n  <h2>', _esc(cell(get("title"))), "</h2>\n"]
+    if kind == "facts":
+        parts.append('  <dl class="facts">')
+        for pair in get("rows") or []:
+            pair = _row(pair, cell)
+            parts += ["<dt>", _esc(_item(pair, 0)), "</dt><dd>", _esc(_item(pair, 1)), "</dd>"]
+        parts.append("</dl>\n")
+    elif kind == "table":
+        parts.append('  <div class="scroll"><table><thead><tr>')
+        for c in get("columns") or []:
+            parts += ['<th scope="col">', _esc(cell(c)), "</th>"]
+        parts.append("</tr></thead>\n  <tbody>")
+        for row in get("rows") or []:
+            cells = _row(row, cell)
+            parts.append("<tr><td>" + "</td><td>".join(map(_esc, cells)) + "</td></tr>" if cells else "<tr></tr>")
+        parts.append("</tbody></table></div>\n")
+    elif kind == "text":
+        parts += ["<p>", _esc(cell(get("text"))), "</p>\n"]
+    elif kind in ("html", "svg"):
+        parts += ["<figure>", str(cell(get("html")))]
+        alt = cell(get("alt"))
+        if alt:
+            parts += ["<figcaption>", _esc(alt), "</figcaption>"]
+        parts.append("</figure>\n")
+    parts.append("</section>")
+    return "".join(parts)
+
+
+def block_html(s: dict[str, Any]) -> str:
+    """One plugin block, as a dict of page data (:func:`site_pages.section_dict`), as a page section."""
+    return _block(s.get, _same)
+
+
+def blocks_html(sections: Any) -> Markup:
+    """A page's plugin blocks (dicts of page data), in the order given."""
+    return Markup("".join(block_html(s) for s in sections or []))
+
+
+def sections_html(sections: list[Section] | None) -> Markup:
+    """A page's plugin blocks straight from the plugins' :class:`Section` objects: the same HTML as
+    :func:`blocks_html` of their page-data dicts, without making the dicts."""
+    return Markup("".join(_block(lambda name, s=s: getattr(s, name, None), plain) for s in sections or []))
+
+
+def point_rows(points: list[dict[str, Any]] | None, point_cols: Any, rule: Any) -> Markup:
+    """The body rows of a test page's points table: one row per point, the uncertainty, TUR and NE 43
+    cells only where ``point_cols`` has them; a point without its own decision rule shows ``rule``."""
+    with_u, with_tur, with_band = ("U" in point_cols), ("tur" in point_cols), ("ne43_band" in point_cols)
+    out: list[str] = []
+    for p in points or []:
+        g = p.get
+        out += ['<tr class="d-', _esc(g("decision", MISSING)), '">\n<td>', _esc(phase(g("phase", MISSING))),
+                "</td><td>", _esc(g("point", MISSING)), "</td><td>", _esc(g("input", MISSING)), "</td><td>",
+                _esc(num(g("input_pct", MISSING), 1)), "</td><td>", _esc(g("reading_text", MISSING) or "—"),
+                "</td>\n<td>", _esc(num(g("expected", MISSING))), "</td><td>", _esc(num(g("measured", MISSING))),
+                "</td><td>", _esc(num(g("error", MISSING), 4, sign=True)), "</td><td>",
+                _esc(num(g("error_pct_span", MISSING), 3, sign=True)), "</td>\n<td>",
+                _esc(num(g("mpe", MISSING))), "</td><td>", _esc(num(g("acceptance_limit", MISSING))), "</td>\n"]
+        if with_u:
+            k = g("k", MISSING)
+            out += ["<td>", _esc(num(g("U", MISSING))), f" (k={_esc(num(k, 2))})" if k else "", "</td>"]
+        if with_tur:
+            out += ["<td>", _esc(num(g("tur", MISSING), 1)), "</td>"]
+        if with_band:
+            out += ["<td>", _esc(g("ne43_band", MISSING) or "—"), "</td>"]
+        out += ["<td>", verdict(g("decision", MISSING)), "</td><td>", _esc(g("decision_rule", MISSING) or rule),
+                "</td>\n</tr>\n"]
+    return Markup("".join(out))

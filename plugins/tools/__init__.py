@@ -1,0 +1,1 @@
+"""Commands that are not a stage: ``explain``, ``synth`` and ``plugins``."""
