@@ -13,12 +13,12 @@ from pathlib import Path
 
 from loopledger import runner
 from loopledger.host import get_plugin_manager
-from loopledger.plugins.handbook import charts, handbook
+from loopledger.plugins.handbook import build, charts
 
 
 def main(evidence: Path) -> None:
     ctx = runner.run(runner.RunOptions(evidence), get_plugin_manager(autoload=False))
-    todo = [chart for job in handbook.jobs(ctx) for _rel, chart in sorted(job.charts.items())]
+    todo = [chart for job in build.jobs(ctx) for _rel, chart in sorted(job.charts.items())]
     spent: dict[str, list[float]] = {"error": [], "drift": []}
     for kind, data, title in todo:
         start = time.perf_counter()

@@ -10,6 +10,7 @@ from typing import TYPE_CHECKING, Any
 
 import pandas as pd
 from loopledger.findings import Finding
+from loopledger.stash import Stash
 
 if TYPE_CHECKING:
     import pluggy
@@ -26,7 +27,8 @@ class RunContext:
     - ``assets``: assets.csv as validated, indexed by ``asset``;
     - ``instruments`` / ``ranges``: instruments.yaml, one row per instrument and
       one row per meter range;
-    - ``extras``: what a stage leaves for later stages and pages (e.g. budgets);
+    - ``extras``: the storage behind :attr:`stash`; read and write it through ``ctx.stash[KEY]`` with a key
+      declared in :mod:`loopledger.keys` (each has one owner), never by a string;
     - ``fleet_only``: what only stages, exported tables and the pages about the
       whole fleet may read, never an asset's or a test's pages (see :meth:`page_view`).
     """
@@ -53,6 +55,11 @@ class RunContext:
     #: whole fleet (the fleet's as-found reliability, say): the handbook leaves them out of the context
     #: its asset, test and sheet pages are made from, so one new test does not make every page again
     fleet_only: set[str] = field(default_factory=set)
+
+    @property
+    def stash(self) -> Stash:
+        """What stages share, by typed key (:mod:`loopledger.keys`): ``ctx.stash[keys.BUDGET]``."""
+        return Stash(self.extras)
 
     @property
     def as_of(self) -> dt.date:

@@ -9,6 +9,7 @@ from pathlib import Path
 from typing import Any
 
 import pandas as pd
+from loopledger import keys
 from loopledger.contracts import SourceFile
 from loopledger.findings import Finding, error, warning
 
@@ -184,7 +185,7 @@ def read_files(ctx: Any, files: Iterable[SourceFile],
         parsed.update(kept)
     ctx.tests = pd.DataFrame(tests, columns=list(TEST_COLUMNS))
     ctx.points = pd.DataFrame(points, columns=list(POINT_COLUMNS))
-    ctx.extras["header_lines"] = header_lines
+    ctx.stash[keys.HEADER_LINES] = header_lines
     bad = set(ctx.tests.loc[~ctx.tests["valid"].astype(bool), "source_file"])
     ctx.points = ctx.points[~ctx.points["source_file"].isin(bad)].reset_index(drop=True)
     return findings

@@ -50,7 +50,7 @@ BUILTIN: tuple[str, ...] = (
     # ll_export_tables
     "export.export_csv",
     # ll_publish
-    "handbook.handbook",
+    "handbook",
     # commands
     "sheet",
     "tools.explain",

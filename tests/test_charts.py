@@ -18,7 +18,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from loopledger.cli import main
-from loopledger.plugins.handbook import charts, page_rows, svgplot
+from loopledger.plugins.handbook import asset_pages, charts, svgplot
 
 from tests.evidence import good_points, result_yaml, write_evidence
 
@@ -247,7 +247,7 @@ def test_drift_line_follows_readings_after_an_adjustment(tmp_path: Path, run_fol
                                          as_left=good_points(left) if left is not None else None)
                for i, (d, f, left) in enumerate(HISTORY)}
     ctx = run_folder(write_evidence(tmp_path / "ev", results, config="as_of = 2025-06-01\n"))
-    data = page_rows.drift_charts(ctx, ctx.assets.loc[["T-CT1"]], ctx.points)["T-CT1"]
+    data = asset_pages.drift_charts(ctx, ctx.assets.loc[["T-CT1"]], ctx.points)["T-CT1"]
     pts = pd.DataFrame(data["points"])
     fit = data["fits"][0]
     assert {"trims_pct", "as_left_pct"} <= set(pts.columns)

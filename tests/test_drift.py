@@ -12,6 +12,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
+from loopledger import keys
 from loopledger.cli import main
 from loopledger.plugins.history import drift
 from scipy import stats
@@ -111,7 +112,7 @@ def test_pipeline_fit_matches_linregress(tmp_path, run_folder):
                ("2024-01-30", 0.090, 0.004), ("2025-02-04", 0.017, None)]
     ev = write_evidence(tmp_path / "ev", _files(offsets))
     ctx = run_folder(ev)
-    fits = ctx.extras["drift_fits"]
+    fits = ctx.stash[keys.DRIFT_FITS]
     assert sorted(fits["input_pct"]) == [0, 25, 50, 75, 100]
     trims_before = np.array([0, 0, 0, 0, 0.090 - 0.004])  # the 2024 trim applies to the 2025 result
     y = (np.array([o[1] for o in offsets]) + trims_before) / SPAN_MA * 100
@@ -119,7 +120,7 @@ def test_pipeline_fit_matches_linregress(tmp_path, run_folder):
     row = fits[fits["input_pct"] == 50].iloc[0]
     assert row["slope_pct_per_year"] == pytest.approx(ref.slope, rel=1e-6)
     assert row["stderr"] == pytest.approx(ref.stderr, rel=1e-6)
-    points = ctx.extras["drift_points"]
+    points = ctx.stash[keys.DRIFT_POINTS]
     last = points[(points["input_pct"] == 50) & (points["date"] == "2025-02-04")].iloc[0]
     assert last["baseline_pct"] == pytest.approx(0.004 / SPAN_MA * 100, rel=1e-6)
 

@@ -18,11 +18,12 @@ from urllib.parse import unquote, urlsplit
 
 import pandas as pd
 import pytest
-from loopledger import runner
+from loopledger import keys, runner
 from loopledger.cli import main
 from loopledger.plugins import sheet as sheet_command
-from loopledger.plugins.handbook import handbook, page_rows
-from loopledger.plugins.handbook import site_pages as sp
+from loopledger.plugins.handbook import asset_pages, build, fleet_pages, render, values
+from loopledger.plugins.history import traceability
+from loopledger.plugins.sheet import plan as sheet_plan
 
 from tests.evidence import CT_ASSET, INSTRUMENTS, good_points, result_yaml, write_evidence
 
@@ -51,24 +52,26 @@ def _tree(folder: Path) -> dict[str, bytes]:
 
 def test_fleet_counts_overdue_and_untested(tmp_path, run_folder):
     ctx = run_folder(_fleet(tmp_path / "ev"))
-    summary = ctx.extras.pop("assets_summary", None)  # first the handbook's own fallback
-    tests = sp.test_table(ctx)
-    assets = sp.asset_table(ctx, tests)
-    assert sp.counts(assets) == {"pass": 1, "fail": 1, "adjusted": 0, "untested": 1, "overdue": 1, "total": 3}
+    tests = fleet_pages.test_table(ctx)
+    assets = fleet_pages.asset_table(ctx, tests)
+    # T-CT1 is past its due date; T-CT3 was never tested, which the intervals stage counts as overdue
+    assert fleet_pages.counts(assets) == {"pass": 1, "fail": 1, "adjusted": 0, "untested": 1, "overdue": 2, "total": 3}
     one = assets.loc["T-CT1"]
     # next due = last test + 12 months (calendar months, common practice); days counted with Python's datetime
     assert one["next_due"] == "2026-01-10"
     assert one["overdue"] and int(one["days_overdue"]) == (AS_OF - dt.date(2026, 1, 10)).days
     assert not assets.loc["T-CT2", "overdue"]
-    index = sp.index_data(ctx, assets, tests)
+    index = fleet_pages.index_data(ctx, assets, tests)
     assert [a["asset"] for a in index["action"]["failed"]] == ["T-CT2"]
-    assert [a["asset"] for a in index["action"]["overdue"]] == ["T-CT1"]
+    assert [a["asset"] for a in index["action"]["overdue"]] == ["T-CT1", "T-CT3"]
     # grouped by site, then area
     assert [(g["site"], g["area"]) for g in index["groups"]] == [
         ("Other site", "Panel 1"), ("Test site", "Panel 1"), ("Test site", "Panel 2")]
-    if summary is not None:  # with the history stage, its overdue flags are the ones counted
-        ctx.extras["assets_summary"] = summary
-        assert sp.counts(sp.asset_table(ctx, tests))["overdue"] == int(summary["overdue"].astype(bool).sum())
+    # the handbook shows the intervals stage's due dates and works none out itself: without that stage's
+    # summary an asset has no due date on the pages, and is not counted overdue
+    ctx.extras.pop("assets_summary")
+    bare = fleet_pages.asset_table(ctx, tests)
+    assert bare["next_due"].isna().all() and not bare["overdue"].any()
 
 
 def test_reference_out_of_calibration_on_the_test_date(tmp_path, run_folder):
@@ -77,17 +80,17 @@ def test_reference_out_of_calibration_on_the_test_date(tmp_path, run_folder):
         "early.yaml": result_yaml(date="2026-02-15", as_found=good_points()),
         "late.yaml": result_yaml(date="2026-06-01", as_found=good_points())}, instruments=instruments)
     ctx = run_folder(ev)
-    used = sp.usage(ctx)
+    used = traceability.usage(ctx)
     # the vectorised statuses say the same as the one-at-a-time function
     for r in used.itertuples():
         info = ctx.instruments.loc[r.instrument]
-        assert r.status == sp.cal_status(info["calibrated"], info["due"], r.date)
-    tests = sp.test_table(ctx, used).set_index("test")
+        assert r.status == traceability.cal_status(info["calibrated"], info["due"], r.date)
+    tests = fleet_pages.test_table(ctx).set_index("test")
     late = tests[tests["date"] == "2026-06-01"].iloc[0]
     early = tests[tests["date"] == "2026-02-15"].iloc[0]
     assert late["reference_out_of_cal"] and "DMM-1" in late["reference_issues"]
     assert not early["reference_out_of_cal"]
-    data = sp.instruments_data(ctx, used, sp.test_table(ctx, used))
+    data = fleet_pages.instruments_data(ctx, used, fleet_pages.test_table(ctx))
     dmm = next(i for i in data["instruments"] if i["id"] == "DMM-1")
     assert dmm["n_out"] == 1 and dmm["status_now"].startswith("OUT OF CALIBRATION")
 
@@ -95,7 +98,7 @@ def test_reference_out_of_calibration_on_the_test_date(tmp_path, run_folder):
 def test_sheet_windows_volts_and_primary(tmp_path, run_folder):
     ctx = run_folder(_fleet(tmp_path / "ev"))
     plan = {"method": "shunt", "shunt_ohm": 250.0, "meter": "DMM-1", "connection": "standalone"}
-    sheet = sp.sheet_data(ctx, "T-CT3", plan)
+    sheet = sheet_plan.sheet_data(ctx, "T-CT3", plan)
     rows = {r["input_pct"]: r for r in sheet["rows"]}
     assert sorted(rows) == [0.0, 25.0, 50.0, 75.0, 100.0]  # common practice: five points up the range
     mid = rows[50.0]
@@ -117,28 +120,28 @@ def test_columns_of_other_stages_are_shown_when_present(tmp_path, run_folder):
     ctx.points["U"] = 0.016  # 0.1 % of the 16 mA span
     ctx.tests["burden_status"] = "low-margin"
     ctx.tests["loop_ohm"] = 612.5
-    ctx.extras["assets_summary"] = pd.DataFrame({
+    ctx.stash[keys.ASSETS_SUMMARY] = pd.DataFrame({
         "asset": ["T-CT1", "T-CT2", "T-CT3"], "next_due": ["2027-01-10", "2027-06-01", None],
         "overdue": [False, False, False], "predicted_out_of_tolerance": [True, False, "2030-01-01"]})
-    ctx.extras["drift_fits"] = pd.DataFrame({
+    ctx.stash[keys.DRIFT_FITS] = pd.DataFrame({
         "asset": ["T-CT2"], "input_pct": [50.0], "n": [2], "slope_pct_per_year": [0.4], "stderr": [0.1],
         "intercept_pct": [0.0], "ref_date": ["2025-01-01"]})
-    tests = sp.test_table(ctx)
-    assets = sp.asset_table(ctx, tests)
-    assert sp.counts(assets)["overdue"] == 0  # the history stage's overdue wins over the fallback
-    index = sp.index_data(ctx, assets, tests)
+    tests = fleet_pages.test_table(ctx)
+    assets = fleet_pages.asset_table(ctx, tests)
+    assert fleet_pages.counts(assets)["overdue"] == 0  # the history stage's overdue wins over the fallback
+    index = fleet_pages.index_data(ctx, assets, tests)
     # a flag counts as soon; a date more than a year after as_of does not (but shows on the asset page)
     assert [a["asset"] for a in index["action"]["predicted"]] == ["T-CT1"]
     assert assets.loc["T-CT3", "predicted"] == "2030-01-01" and not assets.loc["T-CT3", "predicted_soon"]
-    sh = handbook.prepare(ctx)
-    pages = page_rows.test_pages(ctx, sh.tests, sh.points, sh.used, sh.registry, sh.instruments, {})
+    sh = build.prepare(ctx)
+    pages = asset_pages.test_pages(ctx, sh.tests, sh.points, sh.used, sh.registry, sh.instruments, {})
     chart = next(p["chart"] for p in pages.values() if p["test"]["asset"] == "T-CT2")
     assert chart["points"][0]["U_pct"] == pytest.approx(0.016 / span * 100)
     # one test is no history: no drift chart, whatever fits a stage left (test_charts checks a fitted line)
-    assert page_rows.drift_charts(ctx, assets.loc[["T-CT2"]], ctx.points) == {}
+    assert asset_pages.drift_charts(ctx, assets.loc[["T-CT2"]], ctx.points) == {}
     ctx.extras = real_extras  # the other stages' own page blocks read their own extras
     out = tmp_path / "site"
-    handbook.build(ctx, out)
+    build.build(ctx, out)
     page = (out / "tests" / "b_two.html").read_text(encoding="utf-8")
     assert "U (mA)" in page and "0.0160" in page
     assert "Burden and loop" in page and "low-margin" in page and "612.5" in page
@@ -156,9 +159,9 @@ def test_pages_degrade_without_optional_columns(tmp_path, pm):
         if name not in FOUNDATION:
             pm.unregister(name=name)
     ctx = runner.run(runner.RunOptions(_fleet(tmp_path / "ev")), pm)
-    assert "assets_summary" not in ctx.extras and "U" not in ctx.points.columns
+    assert keys.ASSETS_SUMMARY not in ctx.stash and "U" not in ctx.points.columns
     out = tmp_path / "site"
-    handbook.build(ctx, out)
+    build.build(ctx, out)
     index = (out / "index.html").read_text(encoding="utf-8")
     assert "the history stage did not run" in index
     test_page = (out / "tests" / "a_one.html").read_text(encoding="utf-8")
@@ -253,27 +256,27 @@ def _links(page: Path) -> list[str]:
 def test_two_builds_are_byte_identical_and_incremental_equals_cold(tmp_path, pm):
     ev = _fleet(tmp_path / "ev")
 
-    def build(out: Path) -> handbook.BuildStats:
+    def publish(out: Path) -> build.BuildStats:
         ctx = runner.run(runner.RunOptions(ev), pm)
         runner.publish(ctx, out)
-        stats = ctx.extras["handbook_build"]
-        assert isinstance(stats, handbook.BuildStats)
+        stats = ctx.stash[keys.HANDBOOK_BUILD]
+        assert isinstance(stats, build.BuildStats)
         return stats
 
-    first = build(tmp_path / "one")
-    second = build(tmp_path / "two")
+    first = publish(tmp_path / "one")
+    second = publish(tmp_path / "two")
     assert second.rendered == second.pages
     assert first.rendered == first.pages and first.reused == 0
     assert _tree(tmp_path / "one" / "handbook") == _tree(tmp_path / "two" / "handbook")
-    again = build(tmp_path / "one")  # same folder, same as_of: every page reused, bytes unchanged
+    again = publish(tmp_path / "one")  # same folder, same as_of: every page reused, bytes unchanged
     assert again.reused == again.pages and again.rendered == 0
     assert _tree(tmp_path / "one" / "handbook") == _tree(tmp_path / "two" / "handbook")
 
     # change one result file: only the pages that show it are made again, and the site equals a cold build
     (ev / "results" / "a" / "one.yaml").write_text(
         result_yaml(asset="T-CT1", date="2025-01-10", as_found=good_points(0.02)), encoding="utf-8")
-    warm = build(tmp_path / "one")
-    cold = build(tmp_path / "three")
+    warm = publish(tmp_path / "one")
+    cold = publish(tmp_path / "three")
     assert 0 < warm.rendered < warm.pages and warm.reused > 0
     assert cold.rendered == cold.pages
     assert _tree(tmp_path / "one" / "handbook") == _tree(tmp_path / "three" / "handbook")
@@ -281,12 +284,12 @@ def test_two_builds_are_byte_identical_and_incremental_equals_cold(tmp_path, pm)
 
 KILL_SCRIPT = """
 import sys, time
-from loopledger.plugins.handbook import handbook
-real = handbook.render_job
+from loopledger.plugins.handbook import build
+real = build.render_job
 def slow(job):
     time.sleep(0.25)
     return real(job)
-handbook.render_job = slow
+build.render_job = slow
 from loopledger.cli import main
 sys.exit(main(sys.argv[1:]))
 """
@@ -323,15 +326,15 @@ def test_an_error_during_a_build_leaves_the_previous_site(tmp_path, pm, monkeypa
     runner.publish(ctx, out)
     before = _tree(out / "handbook")
     calls = {"n": 0}
-    real = handbook.render_job
+    real = render.render_job
 
-    def failing(job: handbook.Job) -> bytes:
+    def failing(job: render.Job) -> bytes:
         calls["n"] += 1
         if calls["n"] == 3:
             raise OSError("disk full (simulated)")
         return real(job)
 
-    monkeypatch.setattr(handbook, "render_job", failing)
+    monkeypatch.setattr(build, "render_job", failing)
     ctx = runner.run(runner.RunOptions(ev, overrides={"as_of": "2026-12-01"}), pm)
     with pytest.raises(OSError):
         runner.publish(ctx, out)
@@ -409,9 +412,9 @@ def test_in_headless_chromium(tmp_path):
 
 def test_parallel_rendering_gives_the_same_bytes(tmp_path, run_folder, monkeypatch):
     ctx = run_folder(_fleet(tmp_path / "ev"))
-    serial = handbook.build(ctx, tmp_path / "serial", workers=1)
-    monkeypatch.setattr(handbook, "PARALLEL_MIN", 1)
-    parallel = handbook.build(ctx, tmp_path / "parallel", workers=2)
+    serial = build.build(ctx, tmp_path / "serial", workers=1)
+    monkeypatch.setattr(build, "PARALLEL_MIN", 1)
+    parallel = build.build(ctx, tmp_path / "parallel", workers=2)
     assert serial.rendered == parallel.rendered == serial.pages
     assert _tree(tmp_path / "serial") == _tree(tmp_path / "parallel")
 
@@ -420,9 +423,9 @@ def test_batches_share_out_every_asset_and_test_once(tmp_path, run_folder):
     """Each asset goes to one batch with all its tests; a test of an asset missing from the registry too."""
     stray = result_yaml(asset="T-NOT-LISTED", date="2026-02-01", as_found=good_points())
     ctx = run_folder(_fleet(tmp_path / "ev", **{"c/stray.yaml": stray}))
-    sh = handbook.prepare(ctx)
+    sh = build.prepare(ctx)
     for n in (1, 2, 3, 8):
-        found = handbook.batches(sh, n)
+        found = build.batches(sh, n)
         assert 1 <= len(found) <= n
         assets = [a for batch in found for a in batch[0]]
         tests = [t for batch in found for t in batch[1]]
@@ -462,7 +465,7 @@ def test_text_colours_pass_wcag_aa():
 
 def test_verdicts_are_words_not_only_colour(tmp_path, run_folder):
     ctx = run_folder(_fleet(tmp_path / "ev"))
-    handbook.build(ctx, tmp_path / "site")
+    build.build(ctx, tmp_path / "site")
     index = (tmp_path / "site" / "index.html").read_text(encoding="utf-8")
     for word in ("Pass", "Fail", "No valid test", "Overdue"):
         assert f"{word}</span>" in index
@@ -540,15 +543,15 @@ def test_files_whose_names_clash_each_keep_their_own_page(tmp_path, capsys):
 def test_page_names_are_unique_and_stable():
     """Safe names that coincide get a hash of their own id; names that do not coincide are left alone,
     and an id's name does not depend on what else is listed."""
-    names = sp.page_names(["a b", "a_b", "a/b", "plain", "x" * 200, "x" * 199 + "y"])
+    names = values.page_names(["a b", "a_b", "a/b", "plain", "x" * 200, "x" * 199 + "y"])
     assert len(set(names)) == 6
     assert names[3] == "plain"
     assert all(n.startswith("a_b-") for n in names[:3])
-    assert sp.page_names(["a b", "a_b"]) == names[:2]
-    assert sp.page_names(["a b"]) == ["a_b"]
+    assert values.page_names(["a b", "a_b"]) == names[:2]
+    assert values.page_names(["a b"]) == ["a_b"]
     # on a file system that ignores case (Windows and macOS by default: common knowledge) TX-1a.html and
     # TX-1A.html are one file, so the second page copied there would replace the first
-    folded = sp.page_names(["TX-1a", "TX-1A", "TX-2"])
+    folded = values.page_names(["TX-1a", "TX-1A", "TX-2"])
     assert len({n.casefold() for n in folded}) == 3 and folded[2] == "TX-2"
     assert [n[:5] for n in folded[:2]] == ["TX-1a", "TX-1A"]
 

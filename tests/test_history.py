@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from loopledger import keys
 from loopledger.cli import main
 from loopledger.plugins.history import history
 
@@ -22,7 +23,7 @@ def test_points_written_in_amps_and_percent_are_one_test_point(tmp_path, run_fol
         "a.yaml": result_yaml(date="2024-05-01", as_found=good_points(0.096), as_left=good_points(0.008)),
     })
     ctx = run_folder(ev)
-    hist = ctx.extras["history"]
+    hist = ctx.stash[keys.HISTORY]
     assert list(hist["date"].unique()) == ["2024-05-01", "2025-05-01"]  # date order, not file order
     assert sorted(hist["input_pct"].unique()) == [0, 25, 50, 75, 100]
     at50 = hist[hist["input_pct"] == 50].set_index("date")

@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
+from loopledger import keys
 from loopledger.cli import main
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins.history import intervals
@@ -76,7 +77,7 @@ def test_drift_shortens_the_recommended_interval(tmp_path, run_folder):
     ev = write_evidence(tmp_path / "ev", {f"{d}.yaml": result_yaml(date=d, as_found=good_points(o))
                                           for d, o in offsets})
     ctx = run_folder(ev, as_of="2025-06-01")
-    row = ctx.extras["assets_summary"].loc["T-CT1"]
+    row = ctx.stash[keys.ASSETS_SUMMARY].loc["T-CT1"]
     # last as-found 0.065 of 0.08 mA = 81 % of the MPE: the staircase keeps 12 months
     assert row["staircase_months"] == 12
     # the drift line from numpy.polyfit reaches the 0.08 mA limit (0.5 % of span) months later

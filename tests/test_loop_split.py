@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import pandas as pd
 import pytest
+from loopledger import keys
 from loopledger.cli import main
 from loopledger.plugins.analyse import loop_split
 
@@ -30,7 +31,7 @@ def _evidence(tmp_path, loop_date="2026-04-14"):
 
 def test_card_share_is_loop_minus_device(tmp_path, run_folder):
     ctx = run_folder(_evidence(tmp_path))
-    table = ctx.extras["loop_split"]
+    table = ctx.stash[keys.LOOP_SPLIT]
     counts = table[table["loop_test"] == "loop"]
     assert len(counts) == 3 and (counts["device_test"] == "device").all()
     assert counts["device_error_pct"].tolist() == pytest.approx([0.1] * 3)
@@ -42,7 +43,7 @@ def test_card_share_is_loop_minus_device(tmp_path, run_folder):
 
 def test_no_pairs_on_different_dates(tmp_path, run_folder):
     ctx = run_folder(_evidence(tmp_path, loop_date="2026-05-02"))
-    assert ctx.extras["loop_split"].empty
+    assert ctx.stash[keys.LOOP_SPLIT].empty
 
 
 def test_end_to_end_through_the_cli(tmp_path):

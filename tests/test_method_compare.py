@@ -13,6 +13,7 @@ import copy
 
 import pandas as pd
 import pytest
+from loopledger import keys
 from loopledger.cli import main
 
 from tests.evidence import CT_ASSET, INSTRUMENTS, blocks, good_points, result_yaml, write_evidence
@@ -31,7 +32,7 @@ def two_tests(tmp_path):
 def test_each_alternative_equals_the_budget_of_the_other_rig(tmp_path, run_folder):
     ctx = run_folder(two_tests(tmp_path))
     pts = ctx.points.set_index("method")
-    table = ctx.extras["method_comparison"].set_index("method")
+    table = ctx.stash[keys.METHOD_COMPARISON].set_index("method")
     assert table.at["shunt", "U"] == pytest.approx(pts.at["shunt", "U"], rel=1e-9)
     assert table.at["direct", "U"] == pytest.approx(pts.at["direct", "U"], rel=1e-9)
     assert pts.at["shunt", "U"] > pts.at["direct", "U"]

@@ -11,7 +11,7 @@ import jinja2
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from loopledger.plugins.handbook import page_html
+from loopledger.plugins.handbook import blocks
 
 REFERENCE = """\
 {% macro verdict(v) -%}
@@ -59,8 +59,8 @@ def _env() -> jinja2.Environment:
     env = jinja2.Environment(loader=jinja2.DictLoader({"m.html": REFERENCE}), autoescape=True,
                              undefined=jinja2.ChainableUndefined, trim_blocks=True, lstrip_blocks=True,
                              keep_trailing_newline=True)
-    env.filters["num"] = page_html.num
-    env.filters["signed"] = lambda v, d=3: page_html.num(v, d, sign=True)
+    env.filters["num"] = blocks.num
+    env.filters["signed"] = lambda v, d=3: blocks.num(v, d, sign=True)
     env.filters["phase"] = lambda v: {"as_found": "as found", "as_left": "as left"}.get(v, v or "")
     return env
 
@@ -92,19 +92,19 @@ CASES = [
 
 @pytest.mark.parametrize("section", CASES, ids=[str(c["title"]) for c in CASES])
 def test_each_block_kind_matches_jinja(section: dict) -> None:
-    assert page_html.blocks_html([section]) == _jinja_blocks([section])
+    assert blocks.blocks_html([section]) == _jinja_blocks([section])
 
 
 def test_several_blocks_and_none() -> None:
-    assert page_html.blocks_html(CASES) == _jinja_blocks(CASES)
-    assert page_html.blocks_html([]) == "" == _jinja_blocks([])
-    assert page_html.blocks_html(None) == ""
+    assert blocks.blocks_html(CASES) == _jinja_blocks(CASES)
+    assert blocks.blocks_html([]) == "" == _jinja_blocks([])
+    assert blocks.blocks_html(None) == ""
 
 
 @pytest.mark.parametrize("v", ["pass", "fail", "adjusted", "invalid", "untested", "conditional-pass",
                                "conditional-fail", "", None, "overdue", '<img src=x onerror="1">'])
 def test_verdict_badge_matches_jinja(v: object) -> None:
-    assert page_html.verdict(v) == _jinja_verdict(v)
+    assert blocks.verdict(v) == _jinja_verdict(v)
 
 
 cells = st.one_of(st.text(max_size=12), st.none(), st.floats(allow_nan=False), st.integers(), st.booleans())
@@ -117,11 +117,11 @@ cells = st.one_of(st.text(max_size=12), st.none(), st.floats(allow_nan=False), s
 def test_random_blocks_match_jinja(title: str, kind: str, rows: list, columns: list, text: str, alt: str) -> None:
     section = {"title": title, "kind": kind, "rows": rows, "columns": columns, "text": text,
                "html": "<svg></svg>", "alt": alt}
-    assert page_html.blocks_html([section]) == _jinja_blocks([section])
+    assert blocks.blocks_html([section]) == _jinja_blocks([section])
 
 
 def test_hostile_cells_are_escaped() -> None:
-    out = page_html.blocks_html([{"title": "x", "kind": "table", "columns": ["c"], "rows": [[h] for h in HOSTILE]}])
+    out = blocks.blocks_html([{"title": "x", "kind": "table", "columns": ["c"], "rows": [[h] for h in HOSTILE]}])
     assert "<script>" not in out and "&lt;script&gt;" in out
     assert out == _jinja_blocks([{"title": "x", "kind": "table", "columns": ["c"], "rows": [[h] for h in HOSTILE]}])
 
@@ -142,8 +142,8 @@ POINTS = [
 @pytest.mark.parametrize("cols", [[], ["U"], ["U", "tur", "ne43_band"], ["tur"], ["ne43_band"]])
 def test_point_rows_match_jinja(cols: list[str]) -> None:
     page = _env().from_string(POINT_ROWS).render(points=POINTS, point_cols=cols, rule="simple")
-    assert page_html.point_rows(POINTS, cols, "simple") == page
-    assert page_html.point_rows([], cols, "simple") == ""
+    assert blocks.point_rows(POINTS, cols, "simple") == page
+    assert blocks.point_rows([], cols, "simple") == ""
 
 
 point_values = st.one_of(st.none(), st.floats(allow_nan=False, allow_infinity=False), st.integers(-5, 5),
@@ -158,7 +158,7 @@ point_values = st.one_of(st.none(), st.floats(allow_nan=False, allow_infinity=Fa
        st.lists(st.sampled_from(["U", "tur", "ne43_band"]), unique=True))
 def test_random_point_rows_match_jinja(points: list[dict], cols: list[str]) -> None:
     page = _env().from_string(POINT_ROWS).render(points=points, point_cols=cols, rule="risk")
-    assert page_html.point_rows(points, cols, "risk") == page
+    assert blocks.point_rows(points, cols, "risk") == page
 
 
 def test_blocks_straight_from_sections_match_their_page_data() -> None:
@@ -166,7 +166,7 @@ def test_blocks_straight_from_sections_match_their_page_data() -> None:
     data made from them, which jinja2 renders as above."""
     import numpy as np
     from loopledger.contracts import Section
-    from loopledger.plugins.handbook.site_pages import section_dict
+    from loopledger.plugins.handbook.values import section_dict
 
     sections = [
         Section("Budget <u>", kind="table", columns=["Term", "u (mA)"],
@@ -177,5 +177,5 @@ def test_blocks_straight_from_sections_match_their_page_data() -> None:
         Section(np.nan, kind="facts", rows=[]),  # type: ignore[arg-type]
     ]
     dicts = [section_dict(s) for s in sections]
-    assert page_html.sections_html(sections) == page_html.blocks_html(dicts) == _jinja_blocks(dicts)
-    assert page_html.sections_html(None) == "" == page_html.sections_html([])
+    assert blocks.sections_html(sections) == blocks.blocks_html(dicts) == _jinja_blocks(dicts)
+    assert blocks.sections_html(None) == "" == blocks.sections_html([])

@@ -4,7 +4,7 @@ The reference here is the project's own cold build: a site built over the previo
 for byte the site built from nothing, whatever changed in between (a file's comment, a result that
 moves the fleet's reliability figures, the registry, the configuration, files added or removed). The
 counts of kept assets show the work saved is real. The last tests check how the digests attribute the
-run's parts to assets (rules of our own, stated in ``plugins/page_inputs.py``; no outside source).
+run's parts to assets (rules of our own, stated in ``plugins/digests.py``; no outside source).
 """
 
 from __future__ import annotations
@@ -14,10 +14,10 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
-from loopledger import runner
+from loopledger import keys, runner
 from loopledger.context import RunContext
 from loopledger.findings import warning
-from loopledger.plugins.handbook import handbook, page_inputs
+from loopledger.plugins.handbook import build, digests
 
 from tests.evidence import CT_ASSET, good_points, result_yaml, write_evidence
 
@@ -74,10 +74,10 @@ CHANGES: dict[str, tuple[Callable[[Path], None], int | None]] = {
 def test_a_site_built_over_the_last_one_equals_a_cold_build(tmp_path, pm, change):
     ev = _fleet(tmp_path / "ev")
 
-    def build(out: Path) -> handbook.BuildStats:
+    def build(out: Path) -> build.BuildStats:
         ctx = runner.run(runner.RunOptions(ev), pm)
         runner.publish(ctx, out)
-        return ctx.extras["handbook_build"]
+        return ctx.stash[keys.HANDBOOK_BUILD]
 
     live = tmp_path / "live"
     first = build(live)
@@ -138,7 +138,7 @@ def _ctx(**extras: object):
 
 
 def _digests(ctx):
-    return page_inputs.digests(ctx, {}, ["code"])
+    return digests.digests(ctx, {}, ["code"])
 
 
 def test_what_is_fleet_only_is_neither_in_a_pages_context_nor_in_its_digest():
@@ -146,10 +146,10 @@ def test_what_is_fleet_only_is_neither_in_a_pages_context_nor_in_its_digest():
     ctx.tests["global_false_accept"] = [0.01, 0.02]
     ctx.fleet_only |= {"eopr", "tests.global_false_accept"}
     view = ctx.page_view()
-    assert "eopr" not in view.extras and "global_false_accept" not in view.tests.columns
-    assert "eopr" in ctx.extras and "global_false_accept" in ctx.tests.columns  # the run keeps them
+    assert keys.EOPR not in view.stash and "global_false_accept" not in view.tests.columns
+    assert keys.EOPR in ctx.stash and "global_false_accept" in ctx.tests.columns  # the run keeps them
     base = _digests(view)
-    ctx.extras["eopr"] = pd.DataFrame({"group": ["x"], "eopr": [0.8]})
+    ctx.stash[keys.EOPR] = pd.DataFrame({"group": ["x"], "eopr": [0.8]})
     ctx.tests["global_false_accept"] = [0.011, 0.02]
     assert _digests(ctx.page_view()) == base
     ctx.fleet_only.clear()  # not marked: the same change makes every asset's pages again
@@ -204,7 +204,7 @@ def test_a_damaged_live_site_is_made_whole_again(tmp_path, pm, damage):
     runner.publish(runner.run(runner.RunOptions(ev), pm), live)
     runner.publish(runner.run(runner.RunOptions(ev), pm), cold)
     site = live / "handbook"
-    manifest = site / handbook.MANIFEST
+    manifest = site / build.MANIFEST
     if damage == "page deleted":
         next((site / "tests").glob("T-CT2*.html")).unlink()
     elif damage == "manifest cut short":
@@ -215,4 +215,4 @@ def test_a_damaged_live_site_is_made_whole_again(tmp_path, pm, damage):
     ctx = runner.run(runner.RunOptions(ev), pm)
     runner.publish(ctx, live)
     assert _tree(site) == _tree(cold / "handbook")
-    assert ctx.extras["handbook_build"].kept == (len(ASSETS) - 1 if damage == "page deleted" else 0)
+    assert ctx.stash[keys.HANDBOOK_BUILD].kept == (len(ASSETS) - 1 if damage == "page deleted" else 0)

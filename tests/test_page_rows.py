@@ -1,6 +1,6 @@
 """Page data made per column (page_rows) gives, cell for cell, what the per-cell conversion gives.
 
-The reference is ``site_pages.plain`` applied to each cell as pandas hands it out (the form the pages
+The reference is ``values.plain`` applied to each cell as pandas hands it out (the form the pages
 were made from before the batch rework); the cells cover pandas' missing values (NaN, NaT, None, NA),
 infinities, numpy scalars and nullable dtypes. Plumbing data, invented.
 """
@@ -11,7 +11,7 @@ import json
 
 import numpy as np
 import pandas as pd
-from loopledger.plugins.handbook import page_rows, site_pages
+from loopledger.plugins.handbook import values
 
 
 def _frame() -> pd.DataFrame:
@@ -29,9 +29,9 @@ def _frame() -> pd.DataFrame:
 
 def test_column_lists_match_the_cell_by_cell_conversion():
     frame = _frame()
-    lists = page_rows.column_lists(frame)
+    lists = values.column_lists(frame)
     for col in frame.columns:
-        assert lists[col] == [site_pages.plain(v) for v in frame[col]], col
+        assert lists[col] == [values.plain(v) for v in frame[col]], col
         for v in lists[col]:
             assert v is None or type(v) in (str, int, float, bool), (col, v)
     json.dumps(lists, allow_nan=False)  # JSON-able: no NaN or inf survives
@@ -39,9 +39,9 @@ def test_column_lists_match_the_cell_by_cell_conversion():
 
 def test_grouped_rows_keep_each_group_whole_and_sorted():
     frame = _frame()
-    groups = page_rows.grouped(frame, "asset", ["i"], ["i", "f"], ascending=False)
+    groups = values.grouped(frame, "asset", ["i"], ["i", "f"], ascending=False)
     assert list(groups) == ["A", "B", "C"]
     assert [r["i"] for r in groups["A"]] == [2, 1]  # descending within the group
     assert groups["B"] == [{"i": 3, "f": None}]
-    assert page_rows.slices(pd.Series(["x", "x", "y"])) == {"x": (0, 2), "y": (2, 3)}
-    assert page_rows.slices(pd.Series([], dtype=object)) == {}
+    assert values.slices(pd.Series(["x", "x", "y"])) == {"x": (0, 2), "y": (2, 3)}
+    assert values.slices(pd.Series([], dtype=object)) == {}

@@ -12,6 +12,7 @@ import math
 import numpy as np
 import pandas as pd
 import pytest
+from loopledger import keys
 from loopledger.cli import main
 from loopledger.plugins.uncertainty import budget
 from scipy import stats
@@ -32,7 +33,7 @@ def shunt_point(tmp_path, run_folder, reading="1.2003 V", ambient=23.0, rule="si
 
 
 def terms_of(ctx):
-    frame = ctx.extras["budget"]
+    frame = ctx.stash[keys.BUDGET]
     return frame.set_index("component")
 
 
@@ -154,7 +155,7 @@ def test_meter_accuracy_is_the_largest_term_for_shunt_and_direct(tmp_path, run_f
                         instruments={"source": "CAL-1", "meter": "DMM-1", "shunt": "SH-100"})
     ev = write_evidence(tmp_path / "ev", {"d.yaml": direct, "s.yaml": shunt}, instruments=RIG)
     ctx = run_folder(ev)
-    frame = ctx.extras["budget"]
+    frame = ctx.stash[keys.BUDGET]
     for test, rows in frame.groupby("test"):
         assert rows.loc[rows["contribution"].idxmax(), "component"] == "meter accuracy", test
 

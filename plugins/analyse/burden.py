@@ -28,6 +28,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+from loopledger import keys
 from loopledger import quantities as q
 from loopledger.cells import each_value
 from loopledger.context import RunContext
@@ -321,10 +322,10 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
         tests[col] = terms[col].reindex(tests.index) if col in terms else np.nan
     tests["burden_status"] = tests["burden_status"].fillna("unknown")
     ctx.tests = tests
-    ctx.extras["burden"] = terms.set_axis(valid["test"].to_numpy()) if len(terms) else terms
-    exports = ctx.extras.setdefault("test_exports", [])
+    ctx.stash[keys.BURDEN] = terms.set_axis(valid["test"].to_numpy()) if len(terms) else terms
+    exports = ctx.stash.setdefault(keys.TEST_EXPORTS, [])
     exports += [c for c in TEST_COLUMNS if c not in exports]
-    lines = ctx.extras.get("header_lines", {})
+    lines = ctx.stash.get(keys.HEADER_LINES, {})
     findings: list[Finding] = []
     flagged = terms[terms["burden_status"] != "ok"] if len(terms) else terms
     for idx, row in zip(flagged.index, flagged.itertuples(), strict=True):
@@ -339,7 +340,7 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
 
 @hookimpl
 def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
-    terms = ctx.extras.get("burden")
+    terms = ctx.stash.get(keys.BURDEN)
     if terms is None or not len(terms):
         return {}
     mine = terms[terms.index.isin(tests)]

@@ -31,6 +31,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+from loopledger import keys
 from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.findings import Finding, warning
@@ -184,9 +185,9 @@ def test_column(sig: pd.DataFrame) -> pd.Series:
 def ll_analyse(ctx: RunContext) -> list[Finding]:
     pts = ctx.points
     sig = signatures(phase_table(pts))
-    ctx.extras["fault_signatures"] = sig
+    ctx.stash[keys.FAULT_SIGNATURES] = sig
     ctx.tests["fault_signature"] = ctx.tests["test"].map(test_column(sig)).fillna("")
-    exports = ctx.extras.setdefault("test_exports", [])
+    exports = ctx.stash.setdefault(keys.TEST_EXPORTS, [])
     if "fault_signature" not in exports:
         exports.append("fault_signature")
     files = pts.groupby("test")["source_file"].first()
@@ -203,7 +204,7 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
 
 @hookimpl
 def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
-    sig = ctx.extras.get("fault_signatures")
+    sig = ctx.stash.get(keys.FAULT_SIGNATURES)
     if sig is None:
         return {}
     mine = sig[sig.index.get_level_values("test").isin(tests)]

@@ -29,6 +29,7 @@ from itertools import combinations
 
 import numpy as np
 import pandas as pd
+from loopledger import keys
 from loopledger.cells import cells
 from loopledger.context import RunContext
 from loopledger.contracts import Section
@@ -187,13 +188,13 @@ def stage(ctx: RunContext) -> list[Finding]:
         return []
     pts["repeat_spread_pct"] = repeat_spread_pct(pts)
     table = analyse(pts)
-    ctx.extras["analysis"] = table
+    ctx.stash[keys.ANALYSIS] = table
     found = table[table["phase"] == "as_found"].set_index("test")
     tests = ctx.tests.set_index("test", drop=False)
     for col in TEST_COLUMNS:
         tests[col] = found[col].reindex(tests.index)
     ctx.tests = tests.reset_index(drop=True)
-    exports = ctx.extras.setdefault("test_exports", [])
+    exports = ctx.stash.setdefault(keys.TEST_EXPORTS, [])
     exports += [c for c in TEST_COLUMNS if c not in exports]
     return []
 
@@ -205,7 +206,7 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
 
 @hookimpl
 def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
-    table = ctx.extras.get("analysis")
+    table = ctx.stash.get(keys.ANALYSIS)
     return {} if table is None else {"analysis": table.sort_values(KEYS, kind="stable")}
 
 
@@ -221,7 +222,7 @@ LABELS = {"zero_error_pct": "Zero error", "span_error_pct": "Span error",
 
 @hookimpl
 def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
-    table = ctx.extras.get("analysis")
+    table = ctx.stash.get(keys.ANALYSIS)
     if table is None:
         return {}
     mine = table[table["test"].isin(tests)]

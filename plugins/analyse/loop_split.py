@@ -17,6 +17,7 @@ the input is held, so the source's drift cancels.
 from __future__ import annotations
 
 import pandas as pd
+from loopledger import keys
 from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.findings import Finding
@@ -49,20 +50,20 @@ def split(points: pd.DataFrame) -> pd.DataFrame:
 
 @hookimpl
 def ll_analyse(ctx: RunContext) -> list[Finding]:
-    ctx.extras["loop_split"] = split(ctx.points)
+    ctx.stash[keys.LOOP_SPLIT] = split(ctx.points)
     return []
 
 
 @hookimpl
 def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
-    table = ctx.extras.get("loop_split")
+    table = ctx.stash.get(keys.LOOP_SPLIT)
     return {"loop_split": table} if isinstance(table, pd.DataFrame) and not table.empty else {}
 
 
 @hookimpl
 def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
     """On the page of either test of a pair: the split, point by point."""
-    table = ctx.extras.get("loop_split")
+    table = ctx.stash.get(keys.LOOP_SPLIT)
     if not isinstance(table, pd.DataFrame) or table.empty:
         return {}
     wanted = set(tests)

@@ -5,7 +5,7 @@ in instruments.yaml; for a test read across a ``shunt``: the same meter's curren
 budget is the same computation as the uncertainty stage's, on the point as it would have read
 (the measured output × R, or the output itself); the repeatability seen in the test is not
 carried over, so both sides are compared on instrument terms plus what was observed only for the
-method actually used. Kept in ``ctx.extras["method_comparison"]`` (exported as
+method actually used. Kept in ``ctx.stash[keys.METHOD_COMPARISON]`` (exported as
 ``method_comparison.csv``) and shown on each test page and by ``loopledger explain``; the
 printable site test sheet gets the U and TUR the planned rig would give at the points of the
 asset's latest test.
@@ -17,6 +17,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+from loopledger import keys
 from loopledger import quantities as q
 from loopledger.context import RunContext
 from loopledger.contracts import Section
@@ -87,19 +88,19 @@ def _evaluate(ctx: RunContext, alt: pd.DataFrame, label: Any) -> pd.DataFrame:
 def ll_analyse(ctx: RunContext) -> list[Finding]:
     if ctx.points.empty or "U" not in ctx.points.columns:
         return []
-    ctx.extras["method_comparison"] = alternatives(ctx, ctx.points)
+    ctx.stash[keys.METHOD_COMPARISON] = alternatives(ctx, ctx.points)
     return []
 
 
 @hookimpl
 def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
-    table = ctx.extras.get("method_comparison")
+    table = ctx.stash.get(keys.METHOD_COMPARISON)
     return {} if table is None else {"method_comparison": table.sort_values(["test", "phase", "point"], kind="stable")}
 
 
 def comparison_tables(ctx: RunContext, tests: list[str]) -> dict[str, tuple[list[str], list[list[str]]]]:
     """(columns, rows) comparing the method used with each alternative, point by point, for each test."""
-    table = ctx.extras.get("method_comparison")
+    table = ctx.stash.get(keys.METHOD_COMPARISON)
     if table is None or ctx.points.empty:
         return {}
     pts = ctx.points[ctx.points["test"].isin(tests)].sort_values(["test", "phase", "point"], kind="stable")
@@ -111,9 +112,9 @@ def comparison_tables(ctx: RunContext, tests: list[str]) -> dict[str, tuple[list
     labels = labels.assign(rank=labels.groupby("test", sort=False).cumcount())
     hits = mine.drop_duplicates(["test", "alternative", "phase", "point"]).merge(labels, on=["test", "alternative"])
     columns = [phase_texts(pts["phase"]), texts(pts["point"]), fmt_all(pts["U"]), fmt_all(pts["tur"], 3)]
-    keys = pts[["test", "phase", "point"]]
+    point_keys = pts[["test", "phase", "point"]]
     for rank in range(int(labels["rank"].max()) + 1):
-        hit = keys.merge(hits[hits["rank"] == rank], on=["test", "phase", "point"], how="left")
+        hit = point_keys.merge(hits[hits["rank"] == rank], on=["test", "phase", "point"], how="left")
         found = hit["alternative"].notna().to_numpy()
         columns += [np.where(found, fmt_all(hit["U"]), "—"), np.where(found, fmt_all(hit["tur"], 3), "—")]
     names = labels.groupby("test", sort=False)["alternative"].agg(list)
@@ -155,9 +156,9 @@ def planned(ctx: RunContext, plans: dict[str, dict[str, Any]]) -> pd.DataFrame:
     pts = ctx.points
     if pts.empty or "mpe" not in pts.columns:
         return pd.DataFrame(columns=[*COLUMNS, "asset"])
-    keys = pts[["asset", "date", "test"]]
-    keys = keys[keys["asset"].isin(list(plans))].drop_duplicates()
-    latest = keys.sort_values(["date", "test"], kind="stable").drop_duplicates("asset", keep="last")
+    seen = pts[["asset", "date", "test"]]
+    seen = seen[seen["asset"].isin(list(plans))].drop_duplicates()
+    latest = seen.sort_values(["date", "test"], kind="stable").drop_duplicates("asset", keep="last")
     ohms = _shunts(ctx)
     rigs: dict[str, tuple[str, str | None, float, str]] = {}  # asset -> method, shunt id, Ω, label
     shunt_for: dict[Any, tuple[str, str | None, float, str] | None] = {}  # the registry shunt for each Ω asked

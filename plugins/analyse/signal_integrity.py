@@ -17,6 +17,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+from loopledger import keys
 from loopledger import quantities as q
 from loopledger.cells import grouped
 from loopledger.context import RunContext
@@ -96,7 +97,7 @@ def _where(row: Any) -> dict[str, Any]:
 
 def burden_link(ctx: RunContext, test: str, ceiling_ma: float) -> str:
     """What the burden stage says about this test's loop, for a clipping warning."""
-    terms = ctx.extras.get("burden")
+    terms = ctx.stash.get(keys.BURDEN)
     if terms is None or test not in terms.index:
         return "no burden figures (the burden stage did not run)"
     row = terms.loc[test]
@@ -120,7 +121,7 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
     is_current = ma.notna() | q.of_dimension(pts["output_unit"], "A")
     pts["clipped"] = clipping(pts) & is_current & ~pts["ne43_band"].isin(OUTSIDE)
     ctx.points = pts
-    exports = ctx.extras.setdefault("point_exports", [])
+    exports = ctx.stash.setdefault(keys.POINT_EXPORTS, [])
     exports += [c for c in ("ne43_band", "clipped") if c not in exports]
     outside = pts["ne43_band"].isin(OUTSIDE)
     findings = [warning(band_words(m, row.ne43_band), field="reading", code="ne43", **_where(row))

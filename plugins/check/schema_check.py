@@ -11,6 +11,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+from loopledger import keys
 from loopledger import quantities as q
 from loopledger.context import RunContext
 from loopledger.findings import Finding, error, warning
@@ -33,7 +34,7 @@ def check_tests(ctx: RunContext) -> list[Finding]:
         return []
     valid["injection"] = valid["injection"].fillna("secondary")
     valid["date"] = valid["date"].map(lambda d: d.isoformat() if isinstance(d, dt.date) else d)
-    lines = ctx.extras.get("header_lines", {})
+    lines = ctx.stash.get(keys.HEADER_LINES, {})
     for col in ("asset", "technician", "method", "connection", "source", "meter", "shunt", "remarks"):
         valid[col] = valid[col].map(lambda v: None if v is None or (isinstance(v, float) and np.isnan(v))
                                     else str(v))
@@ -319,7 +320,7 @@ def _without_points(ctx: RunContext) -> list[Finding]:
     went through with none, neither passed nor failed nor listed as invalid)."""
     valid = ctx.tests[ctx.tests["valid"].astype(bool)]
     has = set(ctx.points["source_file"]) if len(ctx.points) else set()
-    lines = ctx.extras.get("header_lines", {})
+    lines = ctx.stash.get(keys.HEADER_LINES, {})
     return [error("no readings: as_found and as_left are both empty", file=rel,
                   line=lines.get(rel, {}).get("as_found", 0), field="as_found")
             for rel in valid["source_file"] if rel not in has]

@@ -1,12 +1,13 @@
 """Export: the point and test tables that OUT/data/points.csv and tests.csv are written from.
 
 Plugins add columns to the exports by appending their names to
-``ctx.extras["point_exports"]`` / ``ctx.extras["test_exports"]``.
+``ctx.stash[keys.POINT_EXPORTS]`` / ``ctx.stash[keys.TEST_EXPORTS]``.
 """
 
 from __future__ import annotations
 
 import pandas as pd
+from loopledger import keys
 from loopledger.context import RunContext
 from loopledger.findings import by_file
 from loopledger.hookspecs import hookimpl
@@ -20,14 +21,14 @@ def _messages(ctx: RunContext, severity: str) -> dict[str, str]:
 
 
 def points_table(ctx: RunContext) -> pd.DataFrame:
-    extra = [c for c in ctx.extras.get("point_exports", []) if c in ctx.points.columns]
+    extra = [c for c in ctx.stash.get(keys.POINT_EXPORTS, []) if c in ctx.points.columns]
     cols = [*POINT_COLUMNS, "acceptance_limit", "decision_rule", "source_file", "line", *extra]
     pts = ctx.points.reindex(columns=list(dict.fromkeys(cols)))
     return pts.sort_values(["asset", "date", "test", "phase", "point"], kind="stable")
 
 
 def tests_table(ctx: RunContext) -> pd.DataFrame:
-    extra = [c for c in ctx.extras.get("test_exports", []) if c in ctx.tests.columns]
+    extra = [c for c in ctx.stash.get(keys.TEST_EXPORTS, []) if c in ctx.tests.columns]
     tests = ctx.tests.copy()
     warnings, errors = _messages(ctx, "warning"), _messages(ctx, "error")
     tests["warnings"] = [warnings.get(f, "") for f in tests["source_file"]]

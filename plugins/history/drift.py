@@ -18,7 +18,7 @@ when the slope differs from zero at ``[drift] significance`` (two-sided t test
 on n − 2 degrees of freedom, default 0.05). A test with an as-left but no
 as-found at a point breaks the chain: only the results after the break are used.
 
-Leaves ``ctx.extras["drift_points"]``, ``["drift_fits"]`` and ``["drift_assets"]``
+Leaves ``ctx.stash[keys.DRIFT_POINTS]``, ``["drift_fits"]`` and ``["drift_assets"]``
 (one row per asset: the worst point's rate and predicted dates).
 """
 
@@ -28,6 +28,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+from loopledger import keys
 from loopledger.cells import cells, grouped
 from loopledger.context import RunContext
 from loopledger.contracts import Section
@@ -147,15 +148,15 @@ def per_asset(fits: pd.DataFrame) -> pd.DataFrame:
 
 def compute(ctx: RunContext) -> pd.DataFrame:
     """Fill the drift extras once per run; return the per-asset table."""
-    if "drift_assets" in ctx.extras:
-        return ctx.extras["drift_assets"]  # type: ignore[no-any-return]
+    if keys.DRIFT_ASSETS in ctx.stash:
+        return ctx.stash[keys.DRIFT_ASSETS]  # type: ignore[no-any-return]
     cfg = settings(ctx)
     pts = drift_points(history.assemble(ctx))
     fits = fit(pts, int(cfg["min_tests"]), float(cfg["significance"]), float(cfg["horizon_years"]))
-    ctx.extras["drift_points"] = pts.drop(columns=["in_fit", "mpe_pct", "limit_pct"])
-    ctx.extras["drift_fits"] = fits
-    ctx.extras["drift_assets"] = per_asset(fits)
-    return ctx.extras["drift_assets"]  # type: ignore[no-any-return]
+    ctx.stash[keys.DRIFT_POINTS] = pts.drop(columns=["in_fit", "mpe_pct", "limit_pct"])
+    ctx.stash[keys.DRIFT_FITS] = fits
+    ctx.stash[keys.DRIFT_ASSETS] = per_asset(fits)
+    return ctx.stash[keys.DRIFT_ASSETS]  # type: ignore[no-any-return]
 
 
 def _dates(values: pd.Series) -> list[str]:
@@ -195,7 +196,7 @@ def ll_configure(config: dict[str, Any]) -> list[Finding]:
 @hookimpl
 def ll_asset_sections(ctx: RunContext, assets: list[str]) -> dict[str, list[Section]]:
     compute(ctx)
-    fits = ctx.extras["drift_fits"]
+    fits = ctx.stash[keys.DRIFT_FITS]
     mine = fits[fits["asset"].isin(assets)]
     columns = zip(cells(mine["input_pct"], "%g %%"), [str(v) for v in mine["n"].tolist()],
                   cells(mine["slope_pct_per_year"], "%+.4f"), cells(mine["stderr"], "%.4f"),
@@ -212,6 +213,6 @@ def ll_asset_sections(ctx: RunContext, assets: list[str]) -> dict[str, list[Sect
 
 @hookimpl
 def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
-    if "drift_fits" not in ctx.extras:
+    if keys.DRIFT_FITS not in ctx.stash:
         return {}
-    return {"drift": ctx.extras["drift_fits"], "drift_points": ctx.extras["drift_points"]}
+    return {"drift": ctx.stash[keys.DRIFT_FITS], "drift_points": ctx.stash[keys.DRIFT_POINTS]}

@@ -6,7 +6,7 @@ point. Where a phase holds several readings at one input (up and down, or
 repeats) the error at that point is their mean; ``*_ratio`` is the largest
 |error| / MPE there, so the worst reading still shows.
 
-Leaves ``ctx.extras["history"]``: one row per (asset, test, input_pct) with
+Leaves ``ctx.stash[keys.HISTORY]``: one row per (asset, test, input_pct) with
 date, as_found_pct, as_left_pct (error in % of span), as_found_ratio,
 as_left_ratio, mpe_pct, limit_pct (acceptance limit in % of span), and the
 test's verdict, adjusted flag, technician, method and instruments.
@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+from loopledger import keys
 from loopledger.cells import cells, grouped, texts
 from loopledger.context import RunContext
 from loopledger.contracts import Section
@@ -33,10 +34,10 @@ COLUMNS = ["asset", "test", "date", "input_pct", "as_found_pct", "as_left_pct", 
 
 def assemble(ctx: RunContext) -> pd.DataFrame:
     """The history table (computed once per run, then taken from ``ctx.extras``)."""
-    if "history" in ctx.extras:
-        return ctx.extras["history"]  # type: ignore[no-any-return]
+    if keys.HISTORY in ctx.stash:
+        return ctx.stash[keys.HISTORY]  # type: ignore[no-any-return]
     hist = _assemble(ctx.points, ctx.tests)
-    ctx.extras["history"] = hist
+    ctx.stash[keys.HISTORY] = hist
     return hist
 
 

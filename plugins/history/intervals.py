@@ -39,6 +39,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+from loopledger import keys
 from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.findings import Finding, error, warning
@@ -260,9 +261,9 @@ def _when(row: Any, ctx: RunContext) -> str:
 def ll_history(ctx: RunContext) -> list[Finding]:
     cfg = settings(ctx)
     reliability = eopr(ctx.tests, ctx.assets)
-    ctx.extras["eopr"] = reliability
-    ctx.fleet_only.add("eopr")
-    ctx.extras["assets_summary"] = summary(ctx)
+    ctx.stash[keys.EOPR] = reliability
+    ctx.fleet_only.add(keys.EOPR.name)
+    ctx.stash[keys.ASSETS_SUMMARY] = summary(ctx)
     findings: list[Finding] = []
     if not ctx.tests.empty and "U" in ctx.points.columns:
         limit = float(cfg["false_accept_limit"])
@@ -277,7 +278,7 @@ def ll_history(ctx: RunContext) -> list[Finding]:
                                                               prior["n"].tolist(), strict=True)]
         # the prior's counts go out with the probability, so it can be worked again from tests.csv
         ctx.tests["prior_n"], ctx.tests["prior_in_tolerance"] = prior["n"], prior["in_tolerance"]
-        exports = ctx.extras.setdefault("test_exports", [])
+        exports = ctx.stash.setdefault(keys.TEST_EXPORTS, [])
         exports += ["global_false_accept", "prior_n", "prior_in_tolerance"]
     return findings
 
@@ -323,16 +324,16 @@ def ll_configure(config: dict[str, Any]) -> list[Finding]:
 @hookimpl
 def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
     out: dict[str, pd.DataFrame] = {}
-    if "assets_summary" in ctx.extras:
-        out["assets"] = ctx.extras["assets_summary"].sort_values("asset")
-    if "eopr" in ctx.extras:
-        out["eopr"] = ctx.extras["eopr"]
+    if keys.ASSETS_SUMMARY in ctx.stash:
+        out["assets"] = ctx.stash[keys.ASSETS_SUMMARY].sort_values("asset")
+    if keys.EOPR in ctx.stash:
+        out["eopr"] = ctx.stash[keys.EOPR]
     return out
 
 
 @hookimpl
 def ll_asset_sections(ctx: RunContext, assets: list[str]) -> dict[str, list[Section]]:
-    table = ctx.extras.get("assets_summary")
+    table = ctx.stash.get(keys.ASSETS_SUMMARY)
     if table is None:
         return {}
     overdue_on = "Overdue on " + ctx.as_of.isoformat()
@@ -371,7 +372,7 @@ def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Sectio
 
 @hookimpl
 def ll_fleet_sections(ctx: RunContext) -> list[Section]:
-    reliability = ctx.extras.get("eopr")
+    reliability = ctx.stash.get(keys.EOPR)
     if not isinstance(reliability, pd.DataFrame) or reliability.empty:
         return []
     by_signal = reliability[reliability["group_by"] == "signal"].drop_duplicates("group")

@@ -22,9 +22,11 @@ import argparse
 import datetime as dt
 import sys
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
+from loopledger import keys
 from loopledger.cells import grouped
 from loopledger.context import RunContext
 from loopledger.contracts import Command, Section
@@ -59,6 +61,61 @@ def uses(tests: pd.DataFrame, instruments: pd.DataFrame) -> pd.DataFrame:
     return long.sort_values(["source_file", "role"], kind="stable").reset_index(drop=True)[USES_COLUMNS]
 
 
+def _column(frame: pd.DataFrame, name: str, default: Any = np.nan) -> pd.Series:
+    return frame[name] if name in frame.columns else pd.Series(default, index=frame.index)
+
+
+def _as_dates(values: pd.Series) -> pd.Series:
+    return pd.to_datetime(values, errors="coerce", format="ISO8601")
+
+
+def cal_status(calibrated: Any, due: Any, on: Any) -> str:
+    """Calibration status of a reference instrument on the date ``on``, in words."""
+    on_ts, cal, due_ts = pd.to_datetime(on, errors="coerce"), pd.to_datetime(calibrated, errors="coerce"), \
+        pd.to_datetime(due, errors="coerce")
+    if pd.isna(due_ts):
+        return "no calibration due date recorded"
+    if pd.isna(on_ts):
+        return f"due {due_ts.date().isoformat()}"
+    if not pd.isna(cal) and on_ts < cal:
+        return f"before the calibration on file ({cal.date().isoformat()}); the earlier certificate is not recorded"
+    if on_ts > due_ts:
+        return f"OUT OF CALIBRATION: due {due_ts.date().isoformat()}"
+    return f"in calibration until {due_ts.date().isoformat()}"
+
+
+def usage(ctx: RunContext) -> pd.DataFrame:
+    """One row per (test, role) naming a reference instrument, with its status on the test date.
+
+    The same words as :func:`cal_status`, computed over the whole table at once.
+    """
+    tests = ctx.tests
+    roles = [r for r in ROLES if r in tests.columns]
+    if tests.empty or not roles:
+        return pd.DataFrame(columns=["test", "role", "instrument", "date", "status", "out_of_cal", "known"])
+    long = tests.melt(id_vars=["test", "date"], value_vars=roles, var_name="role", value_name="instrument")
+    long = long[long["instrument"].notna() & (long["instrument"].astype(str) != "")].copy()
+    long["instrument"] = long["instrument"].astype(str)
+    inst = ctx.instruments
+    known = long["instrument"].isin(inst.index) if len(inst) else pd.Series(False, index=long.index)
+    cal = pd.Series(_as_dates(_column(inst, "calibrated").reindex(long["instrument"])).to_numpy(), index=long.index)
+    due = pd.Series(_as_dates(_column(inst, "due").reindex(long["instrument"])).to_numpy(), index=long.index)
+    on = _as_dates(long["date"].astype(str))  # invalid tests: any value
+    due_text, cal_text = due.dt.strftime("%Y-%m-%d"), cal.dt.strftime("%Y-%m-%d")
+    early = cal.notna() & on.notna() & (on < cal)
+    late = due.notna() & on.notna() & (on > due)
+    long["known"] = known
+    long["status"] = np.select(
+        [~known, due.isna(), on.isna(), early, late],
+        ["not in instruments.yaml", "no calibration due date recorded", "due " + due_text,
+         "before the calibration on file (" + cal_text + "); the earlier certificate is not recorded",
+         "OUT OF CALIBRATION: due " + due_text],
+        default="in calibration until " + due_text)
+    long["out_of_cal"] = (known & late & ~early).astype(bool)
+    long["role_order"] = long["role"].map(ROLES.index)
+    return long.sort_values(["test", "role_order"]).drop(columns="role_order").reset_index(drop=True)
+
+
 def describe(table: pd.DataFrame) -> pd.Series:
     """One sentence per (test, role) row whose status is not ok ('' where it is)."""
     if table.empty:  # e.g. every file invalid: the date columns are then not datetimes
@@ -79,7 +136,7 @@ def check(ctx: RunContext) -> list[Finding]:
     table = uses(ctx.tests[ctx.tests["date"].notna()] if "date" in ctx.tests.columns else ctx.tests,
                  ctx.instruments)
     table = table[table["status"] != "unknown"]  # the schema check already reported those
-    ctx.extras["reference_uses"] = table
+    ctx.stash[keys.REFERENCE_USES] = table
     issues = table[table["status"] != "ok"].copy()
     issues["text"] = describe(issues)
     by_test = issues.groupby("test")["text"].agg("; ".join)
@@ -87,7 +144,7 @@ def check(ctx: RunContext) -> list[Finding]:
     ctx.tests["reference_out_of_cal"] = ctx.tests["test"].isin(past_due).astype(bool)
     said = by_test.to_dict()
     ctx.tests["reference_issues"] = [str(said.get(t, "")) for t in ctx.tests["test"].tolist()]
-    exports = ctx.extras.setdefault("test_exports", [])
+    exports = ctx.stash.setdefault(keys.TEST_EXPORTS, [])
     exports += [c for c in ("reference_out_of_cal", "reference_issues") if c not in exports]
     # a warning only where the register shows the instrument out of calibration; the other issues are
     # in reference_issues and on the test page (one note per historical test would bury the warnings)
@@ -109,7 +166,7 @@ STATUS_WORDS = {"ok": "within calibration", "past-due": "PAST DUE on the test da
 
 @hookimpl
 def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
-    table = ctx.extras.get("reference_uses")
+    table = ctx.stash.get(keys.REFERENCE_USES)
     if table is None:
         return {}
     mine = table[table["test"].isin(tests)]

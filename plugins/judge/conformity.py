@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+from loopledger import keys
 from loopledger.context import RunContext
 from loopledger.findings import Finding, warning
 from loopledger.hookspecs import hookimpl
@@ -41,7 +42,7 @@ def conformity(ctx: RunContext) -> list[Finding]:
         u = pts["u"] if "u" in pts.columns else pts["U"] / (pts["k"] if "k" in pts.columns else 2.0)
         pts["risk"] = specific_risk(pts["error"], u, pts["mpe"])
     ctx.points = pts
-    exports = ctx.extras.setdefault("point_exports", [])
+    exports = ctx.stash.setdefault(keys.POINT_EXPORTS, [])
     exports += [c for c in ("tur", "risk") if c not in exports]
     findings: list[Finding] = []
     shown = pts[[c for c in SHOWN if c in pts.columns]]  # the columns a message names, not the whole table

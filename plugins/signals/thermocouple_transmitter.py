@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-from loopledger import asset_columns, scaling
+from loopledger import asset_columns, keys, scaling
 from loopledger.context import RunContext
 from loopledger.contracts import SignalType
 from loopledger.findings import Finding, error
@@ -50,7 +50,7 @@ class ThermocoupleTransmitter(SignalType):
         with np.errstate(divide="ignore", invalid="ignore"):
             dt_de = 1.0 / thermocouple.seebeck(t, kind.where(rows))
         frame, more = scaling.evaluate_via(points, via, t, "degC", mv, "mV", dt_de)
-        ctx.extras.setdefault("test_exports", []).append("cjc_c")
+        ctx.stash.setdefault(keys.TEST_EXPORTS, []).append("cjc_c")
         return frame, findings + more
 
 

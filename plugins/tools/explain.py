@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import TextIO
 
 import pandas as pd
+from loopledger import keys
 from loopledger.context import RunContext
 from loopledger.contracts import Command
 from loopledger.hookspecs import hookimpl
@@ -58,7 +59,7 @@ def _with(text: str, after: str) -> str:
 def write(ctx: RunContext, test: str, out: TextIO) -> None:
     pts = ctx.points[ctx.points["test"] == test].sort_values(["phase", "point"])
     head = ctx.tests[ctx.tests["test"] == test].iloc[0]
-    budget = ctx.extras.get("budget", pd.DataFrame(columns=["test"]))
+    budget = ctx.stash.get(keys.BUDGET, pd.DataFrame(columns=["test"]))
     budget = budget[budget["test"] == test]
     rule = ctx.decision_rules.get(str(head.get("decision_rule")))
     out.write(f"Test {test} ({head['source_file']})\n")
@@ -88,7 +89,7 @@ def write(ctx: RunContext, test: str, out: TextIO) -> None:
                   f"specific risk = {percent(r.get('risk'))}\n")
         out.write(f"  decision     {r['decision']} by rule {r['decision_rule']} "
                   f"(acceptance limit |e| ≤ {fmt(r['acceptance_limit'])} {unit})\n")
-    analysis = ctx.extras.get("analysis")
+    analysis = ctx.stash.get(keys.ANALYSIS)
     if analysis is not None:
         from loopledger.plugins.analyse.linearity import LABELS, SIGNED, TEST_COLUMNS
 

@@ -1,7 +1,7 @@
 """Stage 4, measurement uncertainty: a GUM budget for every point from the rig actually used.
 
 Adds ``u``, ``U``, ``k`` and ``nu_eff`` (output units) to the point table and keeps every
-component in ``ctx.extras["budget"]`` (exported as ``budget.csv``, shown on each test page).
+component in ``ctx.stash[keys.BUDGET]`` (exported as ``budget.csv``, shown on each test page).
 The components and formulas are in :mod:`loopledger.plugins.uncertainty.budget`.
 
 A point whose budget lacks a main term (no meter range holding the reading, no source
@@ -16,6 +16,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+from loopledger import keys
 from loopledger.cells import each_value
 from loopledger.context import RunContext
 from loopledger.contracts import Section
@@ -47,8 +48,8 @@ def stage(ctx: RunContext) -> list[Finding]:
         pts[col] = per[col]
     pts["reading_sensitivity"] = per["c_reading"]
     ctx.points = pts
-    ctx.extras["budget"] = budget_frame(pts, terms)
-    exports = ctx.extras.setdefault("point_exports", [])
+    ctx.stash[keys.BUDGET] = budget_frame(pts, terms)
+    exports = ctx.stash.setdefault(keys.POINT_EXPORTS, [])
     exports += [c for c in POINT_COLUMNS if c not in exports]
     make = error if _rule_needs_u(ctx) else warning
     findings: list[Finding] = []
@@ -138,7 +139,7 @@ def ll_uncertainty(ctx: RunContext) -> list[Finding]:
 
 @hookimpl
 def ll_export_tables(ctx: RunContext) -> dict[str, pd.DataFrame]:
-    frame = ctx.extras.get("budget")
+    frame = ctx.stash.get(keys.BUDGET)
     if frame is None:
         return {}
     kept = frame[frame["test"].isin(set(ctx.points["test"]))] if not ctx.points.empty else frame.iloc[0:0]
@@ -158,7 +159,7 @@ def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Sectio
         if "decision_rule" in first else {}
     pts = pts.sort_values(["test", "phase", "point"], kind="stable")
     points = rows_by(pts["test"], point_rows(pts))
-    frame = ctx.extras.get("budget")
+    frame = ctx.stash.get(keys.BUDGET)
     terms: dict[str, list[list[str]]] = {}
     if frame is not None:
         mine = frame[frame["test"].isin(tests)].sort_values(["test", "phase", "point"], kind="stable")

@@ -16,7 +16,7 @@ from typing import Any
 
 from jinja2 import ChainableUndefined
 from loopledger.contracts import Section
-from loopledger.plugins.handbook.site_pages import plain
+from loopledger.plugins.handbook.values import plain
 from markupsafe import Markup, escape
 
 #: what a row's missing value is (as in a template: prints as "", is falsy)
@@ -109,7 +109,7 @@ def _block(get: Any, cell: Any) -> str:
 
 
 def block_html(s: dict[str, Any]) -> str:
-    """One plugin block, as a dict of page data (:func:`site_pages.section_dict`), as a page section."""
+    """One plugin block, as a dict of page data (:func:`values.section_dict`), as a page section."""
     return _block(s.get, _same)
 
 

@@ -1,186 +1,29 @@
-"""Publish: the static HTML handbook of every asset's test history.
-
-Pages: ``index.html`` (fleet status at ``as_of``), ``assets/<asset>.html``,
-``tests/<test>.html`` (one evidence sheet per test, its chart drawn into it as inline
-SVG so the page is one self-contained file), ``sheets/<asset>.html`` (printable test
-sheet to take to site), ``overdue.html``, ``failures.html`` and ``instruments.html``.
-Each test page carries its result file exactly as read (shown as text, and as a
-download link holding the bytes), so one file is the whole evidence of one test;
-the site holds no separate copies. Page data comes from
-:mod:`site_pages` and :mod:`page_rows`, charts from :mod:`charts`; templates and CSS
-live in the site/ theme.
-
-The site is built in a staging folder and swapped into place whole. The fleet is
-split into batches (each asset with its tests), made in forked worker processes
-when there are many pages. A manifest (``.manifest.json`` in the site) keeps a hash
-of each page's inputs and a digest per asset of everything its pages are made from
-(:mod:`page_inputs`). An asset whose digest is unchanged has its pages hard-linked
-from the previous site without their data being made; for the other assets each
-page whose hash is unchanged is linked rather than rendered and written again.
-"""
+"""Building the handbook: pages as jobs, batches made in worker processes, the manifest, and the reuse
+of the pages of assets whose inputs did not change (see the package's docstring)."""
 
 from __future__ import annotations
 
-import hashlib
-import html
 import importlib.resources
 import json
 import os
 import shutil
-from dataclasses import dataclass, field
-from functools import lru_cache
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 import pandas as pd
 from loopledger.cache.forking import can_fork, fork_pool, share_out
 from loopledger.context import RunContext
-from loopledger.findings import Finding
-from loopledger.hookspecs import hookimpl
-from loopledger.plugins.handbook import page_html, page_inputs
-from loopledger.plugins.handbook import page_rows as pr
-from loopledger.plugins.handbook import site_pages as sp
-from loopledger.plugins.handbook.page_html import num as _num
-from loopledger.plugins.handbook.site_pages import CAUTIONS, page_name
-
-__all__ = ["CAUTIONS", "page_name", "render_markdown", "build", "environment"]
+from loopledger.plugins.handbook import asset_pages as pages
+from loopledger.plugins.handbook import blocks, digests, fleet_pages, values
+from loopledger.plugins.handbook.fleet_pages import CAUTIONS
+from loopledger.plugins.handbook.render import FORMAT, STATIC, Job, _depth, _theme_digest, render_job, render_markdown
+from loopledger.plugins.history import traceability
+from loopledger.plugins.sheet import plan
 
 MANIFEST = ".manifest.json"
-#: bump when the page-making code changes in a way the template digest would not show
-FORMAT = 1
 #: render in worker processes only when at least this many pages changed (process start-up costs)
 PARALLEL_MIN = 48
-STATIC = ("style.css", "filter.js")
-ALLOWED_TAGS = {"p", "em", "strong", "ul", "ol", "li", "code", "pre", "br", "table", "thead", "tbody", "tr",
-                "th", "td", "blockquote", "h3", "h4", "hr"}
-
-
-#: inline Markdown that would make a link or fetch something: left as the text that was written
-LINKING = ("reference", "link", "image_link", "image_reference", "short_reference", "short_image_ref", "autolink",
-           "automail")
-
-
-def render_markdown(text: Any) -> str:
-    """Markdown remarks rendered and sanitised: no script, handler, link or remote resource survives.
-
-    Any HTML the remark contains is escaped first and link/image syntax is not interpreted, so both
-    show as the text that was written; nh3 then keeps only plain formatting tags, without attributes.
-    """
-    if text is None or isinstance(text, float) or not str(text).strip():
-        return ""
-    return _remark_html(str(text))
-
-
-@lru_cache(maxsize=4096)
-def _remark_html(text: str) -> str:
-    """One remark's sanitised HTML (kept per text: a fleet's remarks repeat a few standard phrases)."""
-    import nh3
-
-    md = _markdown()
-    rendered = md.reset().convert(html.escape(str(text), quote=False))
-    return nh3.clean(rendered, tags=ALLOWED_TAGS, attributes={}, url_schemes=set(), link_rel=None)
-
-
-_MD: Any = None
-
-
-def _markdown() -> Any:
-    """One Markdown converter per process (reset before each remark), without link or image syntax."""
-    global _MD
-    if _MD is None:
-        import markdown
-
-        _MD = markdown.Markdown(extensions=["tables"], output_format="html")
-        for name in LINKING:
-            _MD.inlinePatterns.deregister(name, strict=False)
-    return _MD
-
-
-_ENV: Any = None
-
-
-def environment() -> Any:
-    global _ENV
-    if _ENV is None:
-        import jinja2
-
-        env = jinja2.Environment(
-            loader=jinja2.PackageLoader("loopledger.site", "templates"),
-            autoescape=True, undefined=jinja2.ChainableUndefined, trim_blocks=True, lstrip_blocks=True,
-            keep_trailing_newline=True, auto_reload=False,  # templates do not change during a run: no stat per page
-            finalize=_shown,
-        )
-        env.filters["num"] = _num
-        env.filters["signed"] = lambda v, d=3: _num(v, d, sign=True)
-        env.filters["point_rows"] = page_html.point_rows
-        env.filters["g"] = _g
-        env.filters["phase"] = page_html.phase
-        env.filters["blocks_html"] = page_html.blocks_html
-        env.globals["verdict"] = page_html.verdict
-        _ENV = env
-    return _ENV
-
-
-def _shown(value: Any) -> Any:
-    """What a page shows for a value: a missing one (None, NaN) as a dash, never the words 'None' or 'nan'."""
-    if value is None or (isinstance(value, float) and value != value):
-        return "—"
-    return value
-
-
-def _g(value: Any) -> str:
-    return "—" if value is None or value == "" else (f"{value:g}" if isinstance(value, float) else str(value))
-
-
-def _theme_digest() -> str:
-    root = importlib.resources.files("loopledger.site")
-    import jinja2
-    import markdown
-    import nh3
-
-    versions = [FORMAT, jinja2.__version__, markdown.__version__, getattr(nh3, "__version__", "")]
-    h = hashlib.sha256(json.dumps(versions).encode())
-    for folder in ("templates", "static"):
-        for item in sorted(root.joinpath(folder).iterdir(), key=lambda p: p.name):
-            if item.is_file():
-                h.update(item.name.encode() + b"\0" + item.read_bytes())
-    for module in ("charts.py", "svgplot.py", "handbook.py", "page_html.py"):
-        h.update(importlib.resources.files("loopledger.plugins.handbook").joinpath(module).read_bytes())
-    return h.hexdigest()
-
-
-@dataclass
-class Job:
-    """One page to write: its template and data, and the charts it shows inline (page-data key -> kind,
-    data, title; the chart's SVG and text alternative are drawn when the page is rendered)."""
-
-    rel: str
-    template: str
-    data: dict[str, Any]
-    charts: dict[str, tuple[str, dict[str, Any], str]] = field(default_factory=dict)
-
-    def digest(self, theme: str) -> str:
-        # keys in the order the page data was made (that order is part of what the page shows), text as
-        # ASCII escapes: about half the time of sorted keys and UTF-8 text, over tens of thousands of pages
-        blob = json.dumps([theme, self.rel, self.template, self.data, self.charts], default=str, allow_nan=False)
-        return hashlib.sha256(blob.encode("ascii")).hexdigest()
-
-
-def render_job(job: Job) -> bytes:
-    """One page's HTML, its charts drawn into it as inline SVG (a test page is one self-contained file)."""
-    from loopledger.plugins.handbook import charts
-
-    page = dict(job.data)
-    for key, (kind, data, title) in job.charts.items():
-        if kind == "error":
-            page[key] = {"svg": charts.error_chart(data, title), "alt": charts.error_alt(data)}
-        else:
-            page[key] = {"svg": charts.drift_chart(data, title), "alt": charts.drift_alt(data)}
-    return environment().get_template(job.template).render(**page).encode("utf-8")
-
-
-def _depth(rel: str) -> str:
-    return "../" * rel.count("/")
 
 
 @dataclass
@@ -196,22 +39,22 @@ class Shared:
     instruments: dict[Any, dict[str, Any]]
 
 
-#: the point columns page data reads besides those a page shows (site_pages.POINT_COLS)
+#: the point columns page data reads besides those a page shows (fleet_pages.POINT_COLS)
 PAGE_POINT_COLS = ["test", "asset", "date", "phase", "point", "input_pct", "error_pct_span", "mpe", "span"]
 
 
 def prepare(ctx: RunContext) -> Shared:
     rule = str(ctx.section("decision").get("rule", "simple"))
-    used = sp.usage(ctx)
-    tests = sp.test_table(ctx, used)
-    assets = sp.asset_table(ctx, tests)
+    used = traceability.usage(ctx)
+    tests = fleet_pages.test_table(ctx)
+    assets = fleet_pages.asset_table(ctx, tests)
     points = ctx.points
     if len(points):  # only the columns pages show or chart (not a copy of the wide table), computed once
-        keep = [c for c in dict.fromkeys([*PAGE_POINT_COLS, *sp.POINT_COLS]) if c in points.columns]
-        extra = sp.chart_columns(points)
-        points = points[keep].assign(**{c: extra[c].to_numpy() for c in sp.CHART_COLS[2:]})
+        keep = [c for c in dict.fromkeys([*PAGE_POINT_COLS, *fleet_pages.POINT_COLS]) if c in points.columns]
+        extra = fleet_pages.chart_columns(points)
+        points = points[keep].assign(**{c: extra[c].to_numpy() for c in fleet_pages.CHART_COLS[2:]})
     return Shared({"as_of": ctx.as_of.isoformat(), "cautions": CAUTIONS, "rule": rule}, used, tests, assets,
-                  points, pr.registry_rows(ctx), pr.instrument_rows(ctx))
+                  points, pages.registry_rows(ctx), pages.instrument_rows(ctx))
 
 
 def _job(sh: Shared, rel: str, template: str, data: dict[str, Any], charts: dict[str, Any] | None = None) -> Job:
@@ -221,18 +64,18 @@ def _job(sh: Shared, rel: str, template: str, data: dict[str, Any], charts: dict
 def fleet_jobs(ctx: RunContext, sh: Shared) -> list[Job]:
     """The pages about the whole fleet: index, overdue, failures, reference instruments."""
     assets, tests = sh.assets, sh.tests
-    index = {**sp.index_data(ctx, assets, tests), "sections": page_html.sections_html(sp.fleet_sections(ctx))}
+    index = {**fleet_pages.index_data(ctx, assets, tests), "sections": blocks.sections_html(values.fleet_sections(ctx))}
     failed_tests = tests[tests["verdict"].isin(["fail", "invalid"])].sort_values(["date", "test"], ascending=False) \
         if len(tests) else tests
     return [
         _job(sh, "index.html", "index.html", index),
         _job(sh, "overdue.html", "overdue.html", {
             "assets": index["action"]["overdue"],
-            "untested": sp.records(assets[assets["verdict"] == "untested"], sp.ASSET_COLS),
-            "soon": sp.records(assets[assets["due_soon"]].sort_values("next_due"), sp.ASSET_COLS)}),
-        _job(sh, "failures.html", "failures.html", {"tests": sp.records(failed_tests, sp.TEST_COLS),
+            "untested": values.records(assets[assets["verdict"] == "untested"], fleet_pages.ASSET_COLS),
+            "soon": values.records(assets[assets["due_soon"]].sort_values("next_due"), fleet_pages.ASSET_COLS)}),
+        _job(sh, "failures.html", "failures.html", {"tests": values.records(failed_tests, fleet_pages.TEST_COLS),
                                                     "assets": index["action"]["failed"]}),
-        _job(sh, "instruments.html", "instruments.html", sp.instruments_data(ctx, sh.used, tests)),
+        _job(sh, "instruments.html", "instruments.html", fleet_pages.instruments_data(ctx, sh.used, tests)),
     ]
 
 
@@ -244,15 +87,16 @@ def batch_jobs(ctx: RunContext, sh: Shared, asset_ids: list[Any], test_ids: list
     tests = sh.tests[sh.tests["test"].isin(test_ids)] if len(test_ids) else no_tests
     points = sh.points[sh.points["test"].isin(test_ids)] if len(sh.points) and len(test_ids) else sh.points.iloc[0:0]
     valid = [str(t) for t in tests.loc[tests["valid"].astype(bool), "test"]] if len(tests) else []
-    test_pages = pr.test_pages(ctx, tests, points, sh.used, sh.registry, sh.instruments, sp.test_sections(ctx, valid))
+    test_pages = pages.test_pages(ctx, tests, points, sh.used, sh.registry, sh.instruments,
+                                 values.test_sections(ctx, valid))
     latest = {tid: page["chart"] for tid, page in test_pages.items()}
-    asset_pages = pr.asset_pages(ctx, assets, tests, points, sh.registry, latest,
-                                 sp.asset_sections(ctx, [str(a) for a in assets["asset"]]))
-    plans = sp.default_plans(ctx, list(assets["asset"]), tests)
-    sheets = sp.sheets(ctx, plans, points, sp.sheet_sections(ctx, plans))
+    asset_data = pages.asset_pages(ctx, assets, tests, points, sh.registry, latest,
+                                 values.asset_sections(ctx, [str(a) for a in assets["asset"]]))
+    plans = plan.default_plans(ctx, list(assets["asset"]), tests)
+    sheets = plan.sheets(ctx, plans, points, values.sheet_sections(ctx, plans))
     out: list[Job] = []
     for name, ident, last_date in zip(assets["page"], assets["asset"], assets["last_date"], strict=True):
-        data = asset_pages[ident]
+        data = asset_data[ident]
         charts: dict[str, Any] = {}
         if data["latest_chart"]:  # the same chart as the latest test's page
             charts["latest_chart"] = ("error", data.pop("latest_chart"), f"{ident}: test of {last_date}")
@@ -268,7 +112,7 @@ def batch_jobs(ctx: RunContext, sh: Shared, asset_ids: list[Any], test_ids: list
         chart = data.pop("chart")
         charts = {"chart": ("error", chart, f"{asset}: test of {date}")} if chart else {}
         data["remarks_html"] = render_markdown(remarks)
-        data["original"] = pr.original_file(ctx.raw_files.get(source), source)
+        data["original"] = pages.original_file(ctx.raw_files.get(source), source)
         data["has_asset"] = asset in ctx.assets.index
         out.append(_job(sh, f"tests/{page}.html", "test.html", data, charts))
     return out
@@ -416,10 +260,10 @@ def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: 
 
 
 def asset_digests(ctx: RunContext, sh: Shared, theme: str) -> dict[str, str]:
-    """A digest per asset of everything its pages are made from (:mod:`page_inputs`)."""
+    """A digest per asset of everything its pages are made from (:mod:`.digests`)."""
     from loopledger.cache.store import engine_fingerprint
 
-    return page_inputs.digests(ctx, {"tests": sh.tests, "assets": sh.assets, "used": sh.used},
+    return digests.digests(ctx, {"tests": sh.tests, "assets": sh.assets, "used": sh.used},
                                [FORMAT, theme, engine_fingerprint(), sh.common])
 
 
@@ -486,11 +330,3 @@ def _write(path: Path, data: bytes) -> None:
         fh.write(data)
 
 
-@hookimpl
-def ll_publish(ctx: RunContext, out: Path) -> list[Finding]:
-    from loopledger.output import staged_dir
-
-    live = out / "handbook"
-    with staged_dir(live) as folder:
-        ctx.extras["handbook_build"] = build(ctx, folder, previous=live if live.is_dir() else None)
-    return []

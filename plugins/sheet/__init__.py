@@ -1,8 +1,8 @@
 """The ``sheet`` command: the test points and pass windows to take to site for one asset.
 
-The plan is made by the handbook's page data (:func:`loopledger.plugins.handbook.site_pages.sheet_data`),
-which runs the stages' own functions on the planned points, so the terminal sheet, the printable page and
-the handbook's ``sheets/`` pages agree.
+The plan is made by :mod:`.plan`, which runs the stages' own functions (the signal type's expected value,
+the MPE, the decision rule) on the planned points, so the terminal sheet, the printable page and the
+handbook's ``sheets/`` pages agree.
 """
 
 from __future__ import annotations
@@ -15,10 +15,10 @@ from typing import Any
 
 from loopledger.contracts import Command
 from loopledger.hookspecs import hookimpl
-from loopledger.plugins.handbook import site_pages as sp
-from loopledger.plugins.handbook.handbook import _g, environment
-from loopledger.plugins.handbook.page_html import num as _num
-from loopledger.plugins.handbook.site_pages import CAUTIONS
+from loopledger.plugins.handbook.blocks import num as _num
+from loopledger.plugins.handbook.fleet_pages import CAUTIONS, test_table
+from loopledger.plugins.handbook.render import _g, environment
+from loopledger.plugins.sheet.plan import default_plan, sheet_data
 
 
 def _sheet_arguments(parser: argparse.ArgumentParser) -> None:
@@ -48,14 +48,14 @@ def _sheet_run(args: argparse.Namespace) -> int:
         raise ConfigError(absent("meter", args.meter, ctx.rejected_instruments, args.evidence / "instruments.yaml"))
     if args.shunt is not None and not args.shunt > 0:
         raise ConfigError("--shunt must be a resistance in ohms greater than zero")
-    plan = sp.default_plan(ctx, args.asset, sp.test_table(ctx))
+    plan = default_plan(ctx, args.asset, test_table(ctx))
     if args.shunt is not None:
         plan.update(method="shunt", shunt_ohm=float(args.shunt))
     if args.meter:
         plan["meter"] = args.meter
     if args.connection:
         plan["connection"] = args.connection
-    sheet = sp.sheet_data(ctx, args.asset, plan)
+    sheet = sheet_data(ctx, args.asset, plan)
     sys.stdout.write(sheet_text(sheet))
     if args.html:
         from loopledger.output import write_bytes

@@ -1,0 +1,49 @@
+"""Publish: the static HTML handbook of every asset's test history (hook ``ll_publish``).
+
+Pages: ``index.html`` (fleet status at ``as_of``), ``assets/<asset>.html``, ``tests/<test>.html`` (one
+evidence sheet per test, its chart drawn into it as inline SVG so the page is one self-contained file),
+``sheets/<asset>.html`` (printable test sheet to take to site), ``overdue.html``, ``failures.html`` and
+``instruments.html``. Each test page carries its result file exactly as read (shown as text, and as a
+download link holding the bytes), so one file is the whole evidence of one test; the site holds no separate
+copies. The handbook shows what the stages worked out; it works nothing out again.
+
+The package, module by module:
+
+- :mod:`.build`: the build. Pages are jobs; the fleet is split into batches (each asset with its tests),
+  made in forked worker processes when there are many pages. The site is built in a staging folder and
+  swapped into place whole. A manifest (``.manifest.json`` in the site) keeps a hash of each page's inputs
+  and a digest per asset of everything its pages are made from; an asset whose digest is unchanged has its
+  pages hard-linked from the previous site without their data being made, and for the other assets each page
+  whose hash is unchanged is linked rather than rendered and written again.
+- :mod:`.digests`: the per-asset digests of the run's tables that decide which pages are kept.
+- :mod:`.fleet_pages`: data of the pages about the whole fleet (index, overdue, failures, instruments) and the
+  asset and test tables they are made from.
+- :mod:`.asset_pages`: data of the asset and test pages, for a batch at a time.
+- :mod:`.values`: plain JSON-able page values, safe page names, the plugins' blocks in page order.
+- :mod:`.blocks`: HTML of the plugins' blocks and of the points table (jinja2 filters).
+- :mod:`.render`: the jinja2 environment over the site/ theme, Markdown remarks, the theme's digest.
+- :mod:`.charts` over :mod:`.svgplot`: the error and drift charts as inline SVG.
+
+The test sheet's planning is :mod:`loopledger.plugins.sheet.plan`; the calibration status of reference
+instruments comes from the traceability stage (:mod:`loopledger.plugins.history.traceability`).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from loopledger import keys
+from loopledger.context import RunContext
+from loopledger.findings import Finding
+from loopledger.hookspecs import hookimpl
+from loopledger.plugins.handbook.build import build as build_handbook
+
+
+@hookimpl
+def ll_publish(ctx: RunContext, out: Path) -> list[Finding]:
+    from loopledger.output import staged_dir
+
+    live = out / "handbook"
+    with staged_dir(live) as folder:
+        ctx.stash[keys.HANDBOOK_BUILD] = build_handbook(ctx, folder, previous=live if live.is_dir() else None)
+    return []
