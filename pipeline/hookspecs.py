@@ -8,12 +8,21 @@ Stage hooks (``ll_check`` … ``ll_history``) receive the :class:`RunContext`,
 add columns to ``ctx.points`` / ``ctx.tests`` (vectorised over the whole
 table, never a loop over files) and return a list of findings. After each
 stage the engine drops the points of every file that got an ``error``.
+
+Within a stage the runner calls the implementations one at a time. One that
+reads what another plugin of the same stage adds says so with :func:`needs`
+(``@needs("error", "mpe")`` on an ``ll_judge``); it is called once those are
+there. The others keep pluggy's order. Wrapper implementations
+(``wrapper=True``) are not supported on stage hooks; the other hooks take them.
+The point table after each stage meets the contract in
+:mod:`loopledger.schemas.stages`.
 """
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, TypeVar
 
 import pluggy
 
@@ -25,6 +34,22 @@ if TYPE_CHECKING:
 
 hookspec = pluggy.HookspecMarker("loopledger")
 hookimpl = pluggy.HookimplMarker("loopledger")
+
+F = TypeVar("F", bound=Callable[..., Any])
+
+
+def needs(*names: str) -> Callable[[F], F]:
+    """Mark a stage hook implementation as reading what other plugins of the same stage add.
+
+    Each name is a column of ``ctx.points`` (``"error"``), a column of ``ctx.tests`` (``"tests.burden_status"``)
+    or a shared value (``"stash.drift_assets"``, a :class:`~loopledger.stash.StashKey`'s name). The runner
+    calls the implementation after the others of its stage have added them; if none of them does, it is
+    called last, and must cope (as it must when a site has switched the providing plugin off).
+    """
+    def mark(function: F) -> F:
+        function.ll_needs = tuple(names)  # type: ignore[attr-defined]
+        return function
+    return mark
 
 
 # --- set-up: what the plugins bring ------------------------------------------------

@@ -3,7 +3,8 @@
 from __future__ import annotations
 
 import contextlib
-from collections.abc import Callable
+import os
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -110,16 +111,71 @@ def _named(groups: list[list[Any]], what: str) -> dict[str, Any]:
     return out
 
 
+def _present(ctx: RunContext, name: str) -> bool:
+    """Whether what a :func:`~loopledger.hookspecs.needs` name names is there yet."""
+    table, _, column = name.partition(".")
+    if table == "tests" and column:
+        return column in ctx.tests.columns
+    if table == "stash" and column:
+        return column in ctx.extras
+    return name in ctx.points.columns
+
+
+def stage_calls(ctx: RunContext, stage: str) -> Iterator[tuple[str, list[Finding] | None]]:
+    """Call each implementation of a stage hook: those with no ``needs`` in pluggy's order, then each marked
+    with ``needs`` once what it needs is there; yield (plugin name, its findings)."""
+    hook = getattr(ctx.pm.hook, f"ll_{stage}")
+    pending = list(reversed(hook.get_hookimpls()))  # the order pluggy itself would call them in
+    for impl in pending:
+        if impl.wrapper or impl.hookwrapper:
+            raise ConfigError(f"the plugin '{impl.plugin_name}' wraps the stage hook ll_{stage}: stage hooks are "
+                              "called one implementation at a time (see loopledger.hookspecs); implement it plainly")
+    # the plain ones first, in pluggy's order; then each that needs something, once it is there
+    pending.sort(key=lambda i: bool(getattr(i.function, "ll_needs", ())))
+    while pending:
+        ready = [i for i in pending if all(_present(ctx, n) for n in getattr(i.function, "ll_needs", ()))]
+        impl = ready[0] if ready else pending[0]  # needs that nothing in the stage provides: called last
+        pending.remove(impl)
+        yield impl.plugin_name, impl.function(**{name: ctx for name in impl.argnames if name == "ctx"})
+
+
+def check_contract(ctx: RunContext, stage: str) -> None:
+    """Validate ``ctx.points`` against the stage's contract (:mod:`loopledger.schemas.stages`); raise
+    :class:`ContractError` naming the stage and the failures. Run by :func:`run_stages` when
+    ``LOOPLEDGER_CHECK_CONTRACTS`` is set (the test suite sets it)."""
+    from loopledger.schemas.stages import AFTER_STAGE
+
+    model = AFTER_STAGE.get(stage)
+    if model is None or ctx.points.empty or not getattr(ctx.pm.hook, f"ll_{stage}").get_hookimpls():
+        return
+    import pandera.errors
+
+    try:
+        model.validate(ctx.points, lazy=True)
+    except pandera.errors.SchemaErrors as exc:
+        cases = exc.failure_cases.astype(str).drop_duplicates(["column", "check"]).head(10)
+        said = [f"{r.failure_case} missing" if r.check == "column_in_dataframe" else f"{r.column}: {r.check}"
+                for r in cases.itertuples()]
+        raise ContractError(f"after stage {stage}, the point table breaks {model.__name__}: "
+                            + "; ".join(said)) from None
+
+
+class ContractError(RuntimeError):
+    """A stage left the point table in a shape its contract does not allow (a plugin's bug)."""
+
+
 def run_stages(ctx: RunContext) -> None:
     """Call each stage hook over the whole table; drop the points of files that got errors."""
+    checking = bool(os.environ.get("LOOPLEDGER_CHECK_CONTRACTS"))
     for stage in STAGES:
         if ctx.points.empty and stage not in ("check", "history"):  # headers are checked with no point too
             continue
-        hook = getattr(ctx.pm.hook, f"ll_{stage}")
-        for found in hook(ctx=ctx):
+        for _plugin, found in stage_calls(ctx, stage):
             found = _stamp(list(found or []), stage)
             ctx.findings += found
             ctx.invalidate({f.file for f in found if f.severity == "error" and f.file})
+        if checking:
+            check_contract(ctx, stage)
     # with no valid point left the judging stages were skipped: give every test the judged columns
     defaults = {"as_found": "", "as_left": "", "adjusted": False, "verdict": "invalid",
                 "decision_rule": str(ctx.section("decision").get("rule", "simple"))}

@@ -1,5 +1,6 @@
 from __future__ import annotations
 
+import os
 from collections.abc import Callable
 from pathlib import Path
 
@@ -8,6 +9,10 @@ import pytest
 from loopledger import runner
 from loopledger.context import RunContext
 from loopledger.host import get_plugin_manager
+
+# every run in the suite, in this process and in the CLI's subprocesses, checks the point table against the
+# stage contracts (loopledger.schemas.stages) after each stage
+os.environ.setdefault("LOOPLEDGER_CHECK_CONTRACTS", "1")
 
 
 @pytest.fixture

@@ -312,7 +312,7 @@ def term_rows(row: Any) -> list[tuple[str, str]]:
 RIG_COLUMNS = ["asset", "method", "connection", "ambient_c", "meter", "shunt"]
 
 
-@hookimpl(tryfirst=True)
+@hookimpl
 def ll_analyse(ctx: RunContext) -> list[Finding]:
     tests = ctx.tests
     valid = tests[tests["valid"].astype(bool)]

@@ -35,7 +35,7 @@ from loopledger import keys
 from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.findings import Finding, warning
-from loopledger.hookspecs import hookimpl
+from loopledger.hookspecs import hookimpl, needs
 from loopledger.plugins.analyse.burden import fmt
 from loopledger.plugins.analyse.signal_integrity import FAILURE_BANDS, NO_CURRENT_MA, output_ma
 
@@ -181,7 +181,8 @@ def test_column(sig: pd.DataFrame) -> pd.Series:
     return (found + np.where((found != "") & (extra != ""), "; ", "") + extra).astype(str)
 
 
-@hookimpl(trylast=True)
+@hookimpl
+@needs("clipped", "ne43_band")
 def ll_analyse(ctx: RunContext) -> list[Finding]:
     pts = ctx.points
     sig = signatures(phase_table(pts))

@@ -23,7 +23,7 @@ from loopledger.cells import grouped
 from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.findings import Finding, warning
-from loopledger.hookspecs import hookimpl
+from loopledger.hookspecs import hookimpl, needs
 
 #: NAMUR NE 43 limits, mA
 MEASURE_LOW, MEASURE_HIGH = 3.8, 20.5
@@ -114,6 +114,7 @@ def burden_link(ctx: RunContext, test: str, ceiling_ma: float) -> str:
 
 
 @hookimpl
+@needs("stash.burden")
 def ll_analyse(ctx: RunContext) -> list[Finding]:
     pts = ctx.points
     ma, live_zero = output_ma(pts)

@@ -117,7 +117,7 @@ def asset_tables(hist: pd.DataFrame) -> dict[str, tuple[list[str], list[list[str
     return out
 
 
-@hookimpl(tryfirst=True)
+@hookimpl
 def ll_history(ctx: RunContext) -> list[Finding]:
     assemble(ctx)
     return []

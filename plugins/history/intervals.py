@@ -43,7 +43,7 @@ from loopledger import keys
 from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.findings import Finding, error, warning
-from loopledger.hookspecs import hookimpl
+from loopledger.hookspecs import hookimpl, needs
 from loopledger.plugins.history import drift, history
 
 #: the factors are configurable; these defaults are ours (ILAC-G24 gives "e.g. 80 %" as the
@@ -257,7 +257,8 @@ def _when(row: Any, ctx: RunContext) -> str:
     return " — before the next due date" if row.predicted_before_due else ""
 
 
-@hookimpl(trylast=True)
+@hookimpl
+@needs("stash.history", "stash.drift_assets")
 def ll_history(ctx: RunContext) -> list[Finding]:
     cfg = settings(ctx)
     reliability = eopr(ctx.tests, ctx.assets)

@@ -6,7 +6,7 @@
 - ``risk`` = probability that the true error lies outside ±MPE given the measured error and u
   (JCGM 106:2012 specific risk, normal model).
 
-Runs as a ``trylast`` judge so the error and MPE are already there.
+Runs after the judge plugins that add the error, MPE and acceptance limit (``@needs``).
 """
 
 from __future__ import annotations
@@ -16,7 +16,7 @@ import pandas as pd
 from loopledger import keys
 from loopledger.context import RunContext
 from loopledger.findings import Finding, warning
-from loopledger.hookspecs import hookimpl
+from loopledger.hookspecs import hookimpl, needs
 from loopledger.plugins.judge.decision_rules import specific_risk
 
 #: below this TUR a test gets a warning (ANSI/NCSL Z540.3 §5.3 alternative)
@@ -64,6 +64,7 @@ def conformity(ctx: RunContext) -> list[Finding]:
     return findings
 
 
-@hookimpl(trylast=True)
+@hookimpl
+@needs("error", "mpe", "acceptance_limit")
 def ll_judge(ctx: RunContext) -> list[Finding]:
     return conformity(ctx)

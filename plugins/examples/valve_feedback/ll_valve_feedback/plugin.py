@@ -18,11 +18,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-from loopledger import asset_columns, scaling
-from loopledger.context import RunContext
-from loopledger.contracts import SignalType
-from loopledger.findings import Finding
-from loopledger.hookspecs import hookimpl
+from loopledger.api import Finding, RunContext, SignalType, check_columns, hookimpl, scaling
 
 from ll_valve_feedback.schema import ValvePositionColumns
 
@@ -39,7 +35,7 @@ class ValvePosition(SignalType):
     asset_columns = {"deadband_pct": "positioner dead band, % of stroke (blank = 0)"}
 
     def evaluate(self, points: pd.DataFrame, ctx: RunContext) -> tuple[pd.DataFrame, list[Finding]]:
-        cols, findings = asset_columns.check(points, ValvePositionColumns)
+        cols, findings = check_columns(points, ValvePositionColumns)
         frame, more = scaling.linear_evaluate(points)  # demand position, injected, plain sensitivity
         position = settled_position_pct(frame["input_pct"], points["direction"], cols["deadband_pct"])
         lo, hi = points["output_min"].astype(float), points["output_max"].astype(float)
