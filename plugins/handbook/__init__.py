@@ -24,6 +24,26 @@ The package, module by module:
 - :mod:`.render`: the jinja2 environment over the site/ theme, Markdown remarks, the theme's digest.
 - :mod:`.charts` over :mod:`.svgplot`: the error and drift charts as inline SVG.
 
+How it stays fast (a fleet has tens of thousands of pages):
+
+- Worker processes are forked from the run where the platform offers ``fork`` (elsewhere the batches are
+  made one after another), so a page hook sees the finished ``ctx`` without it being copied or pickled;
+  anything a hook stores while making pages stays in its worker. Forked pools (parsing, the CSV export,
+  the handbook) go through :func:`loopledger.cache.forking.fork_pool`, which keeps the inherited heap out
+  of the workers' garbage collector (``gc.freeze``). Two jobs run beside the main process with
+  :func:`loopledger.cache.forking.side_job`, on the core it leaves idle: writing the parsed-file cache while
+  the stages run, and writing ``data/`` while the handbook is built. The new handbook replaces the live one
+  only once the tables are written (:func:`loopledger.output.before_swap`).
+- Page data for a batch is made per column (:func:`.values.column_lists`): each table sorted once, its
+  columns turned into Python lists once, each page taking its slice.
+- The parts every page repeats (the verdict badge, the plugins' blocks, the points table's rows) are made in
+  Python by :mod:`.blocks`, giving the bytes jinja2 would give (``tests/test_page_html.py`` renders the
+  equivalent macros and compares); change both together if a block's look changes.
+- Charts are SVG text (:mod:`.charts` over :mod:`.svgplot`, about 1 ms a chart), inline in the page.
+- Each test page carries its result file exactly as read (:func:`.asset_pages.original_file`).
+- ``benchmarks/run.py`` times a whole fleet; profile a batch with ``cProfile`` around
+  :func:`.build._run_batch` before and after a change to a page hook.
+
 The test sheet's planning is :mod:`loopledger.plugins.sheet.plan`; the calibration status of reference
 instruments comes from the traceability stage (:mod:`loopledger.plugins.history.traceability`).
 """
