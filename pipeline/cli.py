@@ -14,6 +14,7 @@ from collections.abc import Sequence
 from typing import TYPE_CHECKING
 
 from loopledger import __version__
+from loopledger.terminal import visible
 
 if TYPE_CHECKING:
     from loopledger.cache.store import Cache
@@ -25,7 +26,7 @@ EXIT_INTERNAL = 4
 class _Parser(argparse.ArgumentParser):
     def error(self, message: str) -> None:  # type: ignore[override]
         self.print_usage(sys.stderr)
-        sys.stderr.write(f"loopledger: error: {message}\n")
+        sys.stderr.write(f"loopledger: error: {visible(message)}\n")
         raise SystemExit(EXIT_USAGE)
 
 
@@ -90,7 +91,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         parser, runners = build_parser()  # loads the installed plugins, for their subcommands
     except ConfigError as exc:
-        sys.stderr.write(f"loopledger: configuration error: {exc}\n")
+        sys.stderr.write(f"loopledger: configuration error: {visible(str(exc))}\n")
         return EXIT_USAGE
     args = parser.parse_args(argv)
     args.looked = looked  # the cache the quick path already compared with the evidence folder
@@ -100,7 +101,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         return int(runners[args.command](args))  # type: ignore[operator]
     except ConfigError as exc:
-        sys.stderr.write(f"loopledger: configuration error: {exc}\n")
+        sys.stderr.write(f"loopledger: configuration error: {visible(str(exc))}\n")
         return EXIT_USAGE
     except KeyboardInterrupt:
         sys.stderr.write("loopledger: interrupted; outputs already written are whole, the rest were not "
@@ -119,7 +120,7 @@ def main(argv: Sequence[str] | None = None) -> int:
             if not reported:
                 from loopledger.output import file_problem
 
-                sys.stderr.write(file_problem(exc) + "\n")
+                sys.stderr.write(visible(file_problem(exc)) + "\n")
             sys.stderr.write("loopledger: the run could not finish; outputs already in place were not replaced\n")
             return EXIT_INTERNAL
         if not reported:

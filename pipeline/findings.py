@@ -34,14 +34,17 @@ class Finding:
         return f"{where}:{self.line}" if self.line else where
 
     def format(self) -> str:
-        """``path:line: severity: message`` — the pre-commit style line."""
+        """``path:line: severity: message`` — the pre-commit style line, with any control character written as
+        an escape (the file name and message may quote a file: :func:`loopledger.terminal.visible`)."""
+        from loopledger.terminal import visible
+
         bits = []
         if self.point:
             bits.append(self.point)
         if self.field:
             bits.append(f"field '{self.field}'")
         context = f" [{', '.join(bits)}]" if bits else ""
-        return f"{self.location()}: {self.severity}: {self.message}{context}"
+        return visible(f"{self.location()}: {self.severity}: {self.message}{context}")
 
 
 def error(message: str, **where: object) -> Finding:

@@ -8,6 +8,7 @@ from typing import TextIO
 import pandas as pd
 from loopledger.context import RunContext
 from loopledger.findings import Finding, by_file
+from loopledger.terminal import cell
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
@@ -90,7 +91,7 @@ def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None
     n_assets = tests.loc[tests["valid"].astype(bool), "asset"].nunique() if not tests.empty else 0
     console.print(f"[bold]loopledger[/] read {len(tests)} result file{'' if len(tests) == 1 else 's'} for "
                   f"{n_assets} asset{'' if n_assets == 1 else 's'} "
-                  f"(judged on {ctx.as_of.isoformat()}, rule '{ctx.section('decision').get('rule', 'simple')}')")
+                  f"(judged on {ctx.as_of.isoformat()}, rule '{cell(ctx.section('decision').get('rule', 'simple'))}')")
     line = ", ".join(f"{counts.get(v, 0)} {v}" for v in ("pass", "adjusted", "fail", "invalid"))
     console.print(f"  tests: {line}")
     valid = tests[tests["valid"].astype(bool)] if not tests.empty else tests
@@ -106,7 +107,7 @@ def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None
         for row in shown_rows.itertuples():
             n, pct = (worst.loc[row.test, "n"], worst.loc[row.test, "worst"]) if row.test in worst.index \
                 else (0, float("nan"))
-            table.add_row(str(row.asset), str(row.date), str(row.test),
+            table.add_row(cell(row.asset), cell(row.date), cell(row.test),
                           f"{int(n)} point(s) outside ±MPE, worst {pct:.3g} % of span")
         console.print(table)
         _more(console, len(failing) - len(shown_rows), "assets whose latest test failed")
@@ -124,7 +125,7 @@ def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None
         table.add_column("first problem", overflow="fold")
         shown_invalid = invalid if verbose else invalid.head(TABLE_ROWS)
         for row in shown_invalid.itertuples():
-            table.add_row(row.source_file, errors.get(row.source_file, ""))
+            table.add_row(cell(row.source_file), cell(errors.get(row.source_file, "")))
         console.print(table)
         _more(console, len(invalid) - len(shown_invalid), "files that could not be judged")
     shown = [f for f in ctx.findings if verbose or f.severity != "note"]

@@ -11,7 +11,7 @@ from __future__ import annotations
 import argparse
 import sys
 from pathlib import Path
-from typing import TextIO
+from typing import TextIO, cast
 
 import pandas as pd
 from loopledger import keys
@@ -125,8 +125,11 @@ def main(args: argparse.Namespace) -> int:
     if valid.empty or ctx.points.empty:
         sys.stdout.write("loopledger explain: the file could not be judged (see the errors above)\n")
         return runner.exit_code(ctx) or 2
+    from loopledger.terminal import VisibleLines
+
+    shown = cast(TextIO, VisibleLines(sys.stdout))  # names, units and inputs quote the file: show them inert
     for test in valid["test"]:
-        write(ctx, str(test), sys.stdout)
+        write(ctx, str(test), shown)
     return runner.exit_code(ctx)
 
 

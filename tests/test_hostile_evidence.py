@@ -1,0 +1,91 @@
+"""The hostile-evidence corpus of issue 24 (a careless or hostile contributor to an evidence repository): what
+reaches the terminal, the published tables and the handbook from a file must show as text and do nothing.
+
+The files are invented plumbing fixtures. Each check names the rule it applies: ECMA-48 for terminal control
+functions, OWASP's guidance on CSV injection for spreadsheet formulas, Unicode UTS #39 for confusable ids.
+"""
+
+from __future__ import annotations
+
+import copy
+import csv
+
+from loopledger.cli import main
+
+from tests.evidence import INSTRUMENTS, good_points, result_yaml, write_evidence
+
+# ECMA-48: ESC [ n A moves the cursor up n lines, ESC [ 2 K erases the line, ESC [ 32 m turns text green; CSI
+# (0x9b) is the one-byte form of ESC [. A file carrying these once erased another file's error and printed a
+# fake "0 invalid" summary.
+ESC_UP_ERASE = "\x1b[1A\x1b[2K"
+FAKE_SUMMARY = "\x1b[32mloopledger check: 9 file(s), 0 failing, 0 invalid"
+CSI = "\x9b2K"
+
+
+def _hostile_file() -> str:
+    """A result file with an unknown field whose name carries escapes, and a reading whose unit does."""
+    text = result_yaml(date="2026-05-01", as_found=good_points(0.01))
+    text = text.replace("technician:", f'"{_yaml_escaped(ESC_UP_ERASE)}note{_yaml_escaped(CSI)}": x\ntechnician:')
+    return text.replace("reading: 8.0100 mA", f'reading: "8.0100 m{_yaml_escaped(FAKE_SUMMARY)}"')
+
+
+def _yaml_escaped(text: str) -> str:
+    return "".join(f"\\x{ord(c):02x}" if ord(c) < 0x20 or 0x7F <= ord(c) < 0xA0 else c for c in text)
+
+
+def _inert(out: str) -> None:
+    """No control function reaches the terminal; each shows as its escape (ECMA-48 C0 ESC and C1 CSI)."""
+    assert "\x1b" not in out and "\x9b" not in out
+    assert "\\x1b[1A\\x1b[2K" in out and "\\x9b2K" in out
+
+
+def test_check_prints_control_characters_from_a_file_as_text(tmp_path, capsys):
+    ev = write_evidence(tmp_path / "ev", {"bad.yaml": _hostile_file(),
+                                          "good.yaml": result_yaml(as_found=good_points(0.01))})
+    assert main(["check", str(ev / "results")]) == 2
+    out = capsys.readouterr().out
+    _inert(out)
+    assert "\\x1b[32mloopledger check: 9 file(s)" in out  # the fake summary, shown as the text it is
+    assert out.splitlines()[-1].startswith("loopledger check: 2 file(s), 0 failing, 1 invalid")
+
+
+def test_run_prints_control_characters_from_a_file_as_text(tmp_path, capsys):
+    ev = write_evidence(tmp_path / "ev", {"bad.yaml": _hostile_file(),
+                                          "good.yaml": result_yaml(as_found=good_points(0.01))})
+    assert main(["run", str(ev), "--out", str(tmp_path / "out"), "--no-handbook"]) == 2
+    _inert(capsys.readouterr().out)
+
+
+def test_explain_prints_control_characters_from_a_file_as_text(tmp_path, capsys):
+    ev = write_evidence(tmp_path / "ev", {"bad.yaml": _hostile_file()})
+    assert main(["explain", str(ev / "results" / "bad.yaml")]) == 2
+    _inert(capsys.readouterr().out)
+
+
+def test_registers_refuse_control_characters_in_ids(tmp_path, capsys):
+    """An id is printed in explain's trail of a valid file: one carrying escapes is refused where it is
+    written, and the refusal shows them inert."""
+    hostile_id = f"DMM{ESC_UP_ERASE}{CSI}-1"
+    instruments = copy.deepcopy(INSTRUMENTS)
+    instruments[hostile_id] = instruments.pop("DMM-1")
+    text = result_yaml(as_found=good_points(0.01)).replace("meter: DMM-1", f'meter: "{_yaml_escaped(hostile_id)}"')
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": text}, instruments=instruments)
+    assert main(["explain", str(ev / "results" / "a.yaml")]) == 2
+    out = capsys.readouterr().out
+    assert "instruments.yaml:" in out and "not allowed" in out
+    _inert(out)
+
+
+def test_rich_markup_in_a_file_name_is_shown_not_obeyed(tmp_path, capsys):
+    """run's summary lists files that could not be judged in a rich table, which reads cells as markup
+    unless they are escaped: a name with [bold] in it lost those characters."""
+    ev = write_evidence(tmp_path / "ev", {"[bold]x.yaml": result_yaml(asset="NOPE", as_found=good_points())})
+    assert main(["run", str(ev), "--out", str(tmp_path / "out"), "--no-handbook"]) == 2
+    table = capsys.readouterr().out.split("Result files that could not be judged")[1].split("error(s) in")[0]
+    assert "results/[bold]x.yaml" in table
+
+
+def _rows(path):
+    with open(path, newline="", encoding="utf-8") as fh:
+        return list(csv.DictReader(fh))
+
