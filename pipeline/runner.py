@@ -31,6 +31,10 @@ class RunOptions:
     parsed: dict[tuple[str, str], Any] | None = None
     #: called with ``parsed`` once every file is read, in a forked process while the stages run
     save_parsed: Callable[[dict[tuple[str, str], Any]], None] | None = None
+    #: a folder to read assets.csv, instruments.yaml and loopledger.toml from instead of ``evidence`` (the
+    #: commit gate judges the result files again under the registers as last committed, to show what a
+    #: register edit changes)
+    registers: Path | None = None
 
 
 def _stamp(findings: list[Finding], stage: str) -> list[Finding]:
@@ -43,7 +47,8 @@ def prepare(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
     """Read configuration and registries and collect what the plugins bring."""
     if not opts.evidence.is_dir():
         raise ConfigError(f"evidence folder '{opts.evidence}' does not exist")
-    config = load_config(opts.evidence, opts.overrides)
+    registers = opts.registers or opts.evidence
+    config = load_config(registers, opts.overrides)
     _known_keys(config, pm)
     ctx = RunContext(evidence=opts.evidence, config=config, pm=pm)
     for found in pm.hook.ll_configure(config=config):
@@ -58,9 +63,9 @@ def prepare(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
     if rule not in ctx.decision_rules:
         raise ConfigError(f"loopledger.toml: unknown decision rule '{rule}' "
                           f"(known: {', '.join(sorted(ctx.decision_rules))})")
-    ctx.assets, found, ctx.rejected_assets = load_assets(opts.evidence)
+    ctx.assets, found, ctx.rejected_assets = load_assets(registers)
     ctx.findings += _stamp(found, "registry")
-    ctx.instruments, ctx.ranges, found, ctx.rejected_instruments = load_instruments(opts.evidence)
+    ctx.instruments, ctx.ranges, found, ctx.rejected_instruments = load_instruments(registers)
     ctx.findings += _stamp(found, "registry")
     return ctx
 

@@ -86,7 +86,12 @@ def test_check_prints_path_line_severity_and_exit_code(tmp_path, capsys):
                                           "fails.yaml": result_yaml(as_found=pts, date="2026-04-15"),
                                           "bad.yaml": result_yaml(as_found=good_points(), method="telepathy",
                                                                   date="2026-04-16")})
+    # a failure is evidence: without --strict it is printed (as a warning) and does not block
     code = main(["check", str(ev / "results" / "fails.yaml"), str(ev / "results" / "ok.yaml")])
+    out = capsys.readouterr().out
+    assert code == 0
+    assert "results/fails.yaml:" in out and ": warning: fail:" in out and "--strict blocks" in out
+    code = main(["check", "--strict", str(ev / "results" / "fails.yaml"), str(ev / "results" / "ok.yaml")])
     out = capsys.readouterr().out.splitlines()
     assert code == 1
     lines = [ln for ln in out if ln.startswith("results/") and ": error:" in ln]  # warnings may add lines
