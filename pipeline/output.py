@@ -135,7 +135,8 @@ def write_csvs(tables: list[tuple[Path, pd.DataFrame]], workers: int | None = No
 
 
 def csv_text(frame: pd.DataFrame) -> str:
-    """``frame.to_csv(index=False, lineterminator="\\n", float_format=FLOAT_FORMAT)``, the same text, made
+    """``frame.to_csv(index=False, lineterminator="\\n", float_format=FLOAT_FORMAT)``, the same text (but for
+    free-text cells a spreadsheet would read as formulas: :func:`neutralised`), made
     column by column and written by the standard library's C csv writer (pandas' own writer formats a
     large table about three times more slowly). Dates and nullable numbers are formatted by pandas
     itself; a table the csv module cannot write falls back to pandas' writer whole."""
@@ -144,12 +145,37 @@ def csv_text(frame: pd.DataFrame) -> str:
     try:
         return _csv_text(frame)
     except csv.Error:
-        return frame.to_csv(index=False, lineterminator="\n", float_format=FLOAT_FORMAT)
+        return _safe_text(frame).to_csv(index=False, lineterminator="\n", float_format=FLOAT_FORMAT)
+
+
+#: what makes a spreadsheet read a cell as a formula (OWASP, "CSV Injection": = + - @, tab and carriage
+#: return), and the apostrophe itself, so that stripping one leading apostrophe always gives the text back
+FORMULA_START = frozenset("=+-@\t\r'")
+
+
+def neutralised(cells: list[str]) -> list[str]:
+    """Each cell a spreadsheet would read as a formula with a leading apostrophe (OWASP's advice), so it shows
+    as the text it is; a reader of the table gets the text back by stripping one leading apostrophe."""
+    return ["'" + v if v[:1] in FORMULA_START else v for v in cells]
+
+
+def _safe_text(frame: pd.DataFrame) -> pd.DataFrame:
+    """``frame`` with its free-text columns neutralised (for the slow path, pandas' own writer)."""
+    from loopledger.schemas.points import FREE_TEXT_COLUMNS
+
+    out = frame.copy()
+    for i, name in enumerate(frame.columns):
+        if name in FREE_TEXT_COLUMNS:
+            col = frame.iloc[:, i]
+            out.iloc[:, i] = col.map(lambda v: neutralised([v])[0] if isinstance(v, str) else v)
+    return out
 
 
 def _csv_text(frame: pd.DataFrame) -> str:
     import csv
     import io
+
+    from loopledger.schemas.points import FREE_TEXT_COLUMNS
 
     buf = io.StringIO()
     writer = csv.writer(buf, lineterminator="\n")
@@ -158,9 +184,11 @@ def _csv_text(frame: pd.DataFrame) -> str:
         buf.write("\n" * len(frame))
     kinds = [_kind(frame.iloc[:, i]) for i in range(frame.shape[1])]
     whole = {i: _pandas_column(frame.iloc[:, i]) for i, kind in enumerate(kinds) if kind == ""}
+    free = [str(name) in FREE_TEXT_COLUMNS and kind == "O" for name, kind in zip(frame.columns, kinds, strict=True)]
     for start in range(0, len(frame), CSV_CHUNK):  # the cells of a few rows at a time: bounded memory
         part = frame.iloc[start:start + CSV_CHUNK]
-        columns = (whole[i][start:start + CSV_CHUNK] if i in whole else _csv_column(part.iloc[:, i], kind)
+        columns = (whole[i][start:start + CSV_CHUNK] if i in whole else
+                   neutralised(_csv_column(part.iloc[:, i], kind)) if free[i] else _csv_column(part.iloc[:, i], kind)
                    for i, kind in enumerate(kinds))
         writer.writerows(zip(*columns, strict=True))
     return buf.getvalue()

@@ -47,5 +47,14 @@ class TestsOut(pa.DataFrameModel):
         strict = False
 
 
+#: the free-text columns of every table under OUT/data/: ids, names and messages, which a result file or a
+#: register writes (or quotes). A value in one of them that a spreadsheet would read as a formula is written
+#: with a leading apostrophe (pipeline/output.py); numbers and quantities with their units are not free text
+#: and are written as they are.
+FREE_TEXT_COLUMNS = frozenset({
+    "asset", "test", "source_file", "description", "site", "area", "technician", "remarks", "warnings", "errors",
+    "device_test", "loop_test", "group", "shunt", "meter", "source", "instrument", "reference_issues",
+})
+
 POINT_COLUMNS = list(PointsOut.to_schema().columns)
 TEST_COLUMNS = list(TestsOut.to_schema().columns)

@@ -89,3 +89,36 @@ def _rows(path):
     with open(path, newline="", encoding="utf-8") as fh:
         return list(csv.DictReader(fh))
 
+
+
+# OWASP "CSV Injection": a cell beginning with = + - @, tab or carriage return is read as a formula by
+# spreadsheet programs; the advice is a leading apostrophe, which they show as text.
+FORMULAS = {"technician": '=HYPERLINK("http://example.invalid/x","open me")', "description": "+1+2",
+            "quoted": "'already quoted", "at": "@cmd", "minus": "-2+3"}
+
+
+def test_free_text_that_a_spreadsheet_would_run_is_written_with_an_apostrophe(tmp_path):
+    from tests.evidence import CT_ASSET
+
+    asset = {**CT_ASSET, "description": FORMULAS["description"]}
+    files = {"@cmd.yaml": result_yaml(technician=FORMULAS["technician"], as_found=good_points(-0.01)),
+             "b.yaml": result_yaml(date="2026-05-01", technician=FORMULAS["quoted"], as_found=good_points(0.01)),
+             "c.yaml": result_yaml(date="2026-05-02", technician=FORMULAS["minus"], as_found=good_points(0.01))}
+    ev = write_evidence(tmp_path / "ev", files, assets=[asset])
+    out = tmp_path / "out"
+    assert main(["run", str(ev), "--out", str(out), "--no-handbook"]) == 0
+    tests = {r["source_file"]: r for r in _rows(out / "data" / "tests.csv")}
+    assert tests["results/@cmd.yaml"]["technician"] == "'" + FORMULAS["technician"]
+    assert tests["results/@cmd.yaml"]["test"] == "'@cmd"
+    assert tests["results/b.yaml"]["technician"] == "''already quoted"  # stripping one apostrophe gives it back
+    assert tests["results/c.yaml"]["technician"] == "'-2+3"
+    assert _rows(out / "data" / "assets.csv")[0]["description"] == "'+1+2"
+    # numbers stay numbers: a negative error is written as it is (a machine reader parses it)
+    points = [r for r in _rows(out / "data" / "points.csv") if r["test"] == "'@cmd"]
+    assert points and all(r["error"].startswith("-") for r in points)
+    # a reader strips one leading apostrophe from the free-text columns and has the text written
+    from loopledger.schemas.points import FREE_TEXT_COLUMNS
+
+    raw = {k: (v[1:] if k in FREE_TEXT_COLUMNS and v.startswith("'") else v)
+           for k, v in tests["results/b.yaml"].items()}
+    assert raw["technician"] == FORMULAS["quoted"] and raw["test"] == "b"
