@@ -16,6 +16,7 @@ DEFAULTS: dict[str, Any] = {
         "max_file_bytes": 2_000_000,  # a result file larger than this is refused unread
         "max_points": 500,  # per test
         "max_repeats": 100,  # repeat readings per point
+        "max_remarks_bytes": 16_000,  # a test's remarks, UTF-8 (the handbook renders them as Markdown)
     },
 }
 

@@ -164,6 +164,8 @@ def read_files(ctx: Any, files: Iterable[SourceFile],
         for name in HEADER_FIELDS:
             row[name] = read.header.get(name)
         header_lines[source.rel] = read.header_lines
+        if _remarks_too_long(row, limits["max_remarks_bytes"], source.rel, read.header_lines, findings):
+            continue
         if len(read.points) > limits["max_points"]:
             findings.append(error(f"{len(read.points)} points is over the limit of {limits['max_points']} "
                                   "(limits.max_points)", file=source.rel, code="too-many"))
@@ -189,3 +191,20 @@ def read_files(ctx: Any, files: Iterable[SourceFile],
     bad = set(ctx.tests.loc[~ctx.tests["valid"].astype(bool), "source_file"])
     ctx.points = ctx.points[~ctx.points["source_file"].isin(bad)].reset_index(drop=True)
     return findings
+
+
+def _remarks_too_long(row: dict[str, Any], limit: int, rel: str, lines: dict[str, int],
+                      findings: list[Finding]) -> bool:
+    """True (the file invalid, an error said with the length) when the remarks are over ``limit`` UTF-8 bytes;
+    they are then left out of the run, so the handbook never renders them (the test page still carries the
+    file whole)."""
+    remarks = row.get("remarks")
+    size = len(remarks.encode("utf-8", "surrogatepass")) if isinstance(remarks, str) else 0
+    if size <= limit:
+        return False
+    findings.append(error(f"remarks are {size} bytes long, over the limit of {limit} (limits.max_remarks_bytes): "
+                          "shorten them, or keep long notes in a file of their own", file=rel,
+                          line=lines.get("remarks", 0), field="remarks", code="too-long"))
+    row["remarks"] = None
+    row["valid"] = False
+    return True

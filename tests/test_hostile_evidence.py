@@ -122,3 +122,71 @@ def test_free_text_that_a_spreadsheet_would_run_is_written_with_an_apostrophe(tm
     raw = {k: (v[1:] if k in FREE_TEXT_COLUMNS and v.startswith("'") else v)
            for k, v in tests["results/b.yaml"].items()}
     assert raw["technician"] == FORMULAS["quoted"] and raw["test"] == "b"
+
+
+# Remarks: the handbook renders them as Markdown. python-markdown took 3.3 s for a 75 kB remark, 28 s for
+# 150 kB and 104 s for 300 kB (the probe's figures): worse than quadratic. The renderer now must grow
+# linearly; this script times it on text shaped like the classic slow cases of Markdown parsers (runs of
+# emphasis delimiters, unclosed brackets and code spans, table rows, one-line paragraphs).
+SCALING = r"""
+import sys, time
+from loopledger.plugins.handbook.render import _remark_html
+shapes = {
+    "prose": "Zero set *low* by **0.02 mA**, span `trim` ok; see [sheet 3]. ",
+    "delimiters": "**_*a_ ",
+    "brackets": "[a](`b ",
+    "table": "| 4.01 mA | *ok* |\n",
+    "lines": "a\n",
+}
+for name, unit in shapes.items():
+    times = []
+    for kb in (10, 100, 1000):
+        text = (unit * (kb * 1000 // len(unit) + 1))[: kb * 1000]
+        if name == "table":
+            text = "| a | b |\n|---|---|\n" + text
+        best = None
+        for _ in range(1 if kb == 1000 else 2):
+            start = time.perf_counter()
+            _remark_html.__wrapped__(text)
+            took = time.perf_counter() - start
+            best = took if best is None else min(best, took)
+        times.append(best)
+    print(name, *times, flush=True)
+"""
+
+
+def test_markdown_rendering_time_grows_linearly_with_the_remark():
+    import subprocess
+    import sys
+
+    done = subprocess.run([sys.executable, "-c", SCALING], capture_output=True, text=True, timeout=600, check=False)
+    assert done.returncode == 0, done.stderr
+    for line in done.stdout.splitlines():
+        name, *times = line.split()
+        t10, t100, t1000 = map(float, times)
+        # ten times the text: about ten times the time when linear, a hundred when quadratic; the bound
+        # leaves room for a busy machine's noise (a limit check, not a benchmark)
+        assert t1000 < 35 * max(t100, 0.02), (name, times)
+        assert t1000 < 120, (name, times)
+
+
+def test_a_code_span_shows_its_text_escaped_once():
+    from loopledger.plugins.handbook.render import render_markdown
+
+    html = render_markdown("Set `<b>` and `a & b`, then <script>x</script>")
+    assert "<code>&lt;b&gt;</code>" in html and "<code>a &amp; b</code>" in html  # shows <b> and a & b
+    assert "&amp;lt;" not in html and "<script>" not in html and "&lt;script&gt;" in html
+
+
+def test_remarks_over_the_limit_are_an_error_with_their_length(tmp_path, capsys):
+    long = "x" * 16_001
+    ev = write_evidence(tmp_path / "ev", {"long.yaml": result_yaml(remarks=long, as_found=good_points(0.01)),
+                                          "ok.yaml": result_yaml(date="2026-05-01", remarks="x" * 16_000,
+                                                                 as_found=good_points(0.01))})
+    assert main(["check", str(ev / "results")]) == 2
+    out = capsys.readouterr().out
+    assert "results/long.yaml:" in out and "remarks are 16001 bytes long, over the limit of 16000" in out
+    assert "results/ok.yaml:" not in out
+    ev2 = write_evidence(tmp_path / "ev2", {"long.yaml": result_yaml(remarks=long, as_found=good_points(0.01))},
+                         config="as_of = 2026-11-30\n[limits]\nmax_remarks_bytes = 20000\n")
+    assert main(["check", str(ev2 / "results")]) == 0

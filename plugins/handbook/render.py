@@ -5,7 +5,6 @@ safely, and the digest of everything that shapes a page's HTML (theme files, the
 from __future__ import annotations
 
 import hashlib
-import html
 import importlib.resources
 import json
 from dataclasses import dataclass, field
@@ -26,16 +25,18 @@ ALLOWED_TAGS = {"p", "em", "strong", "ul", "ol", "li", "code", "pre", "br", "tab
                 "th", "td", "blockquote", "h3", "h4", "hr"}
 
 
-#: inline Markdown that would make a link or fetch something: left as the text that was written
-LINKING = ("reference", "link", "image_link", "image_reference", "short_reference", "short_image_ref", "autolink",
-           "automail")
+#: Markdown rules that would make a link or fetch something (markdown-it's names): left as the text written
+LINKING = ("link", "image", "autolink", "reference")
 
 
 def render_markdown(text: Any) -> str:
     """Markdown remarks rendered and sanitised: no script, handler, link or remote resource survives.
 
-    Any HTML the remark contains is escaped first and link/image syntax is not interpreted, so both
-    show as the text that was written; nh3 then keeps only plain formatting tags, without attributes.
+    markdown-it (CommonMark, with tables) renders them with HTML off, so any HTML the remark contains shows
+    as the text that was written, once escaped (a code span `<b>` shows <b>); link and image syntax is not
+    interpreted; nh3 then keeps only plain formatting tags, without attributes. markdown-it's time grows
+    linearly with the text (tests/test_hostile_evidence.py), and remarks are limited in size
+    (``limits.max_remarks_bytes``).
     """
     if text is None or isinstance(text, float) or not str(text).strip():
         return ""
@@ -47,8 +48,7 @@ def _remark_html(text: str) -> str:
     """One remark's sanitised HTML (kept per text: a fleet's remarks repeat a few standard phrases)."""
     import nh3
 
-    md = _markdown()
-    rendered = md.reset().convert(html.escape(str(text), quote=False))
+    rendered = _markdown().render(text)
     return nh3.clean(rendered, tags=ALLOWED_TAGS, attributes={}, url_schemes=set(), link_rel=None)
 
 
@@ -56,14 +56,12 @@ _MD: Any = None
 
 
 def _markdown() -> Any:
-    """One Markdown converter per process (reset before each remark), without link or image syntax."""
+    """One Markdown renderer per process: CommonMark with tables, HTML off, without link or image syntax."""
     global _MD
     if _MD is None:
-        import markdown
+        from markdown_it import MarkdownIt
 
-        _MD = markdown.Markdown(extensions=["tables"], output_format="html")
-        for name in LINKING:
-            _MD.inlinePatterns.deregister(name, strict=False)
+        _MD = MarkdownIt("commonmark", {"html": False}).enable("table").disable(list(LINKING))
     return _MD
 
 
@@ -106,10 +104,10 @@ def _g(value: Any) -> str:
 def _theme_digest() -> str:
     root = importlib.resources.files("loopledger.site")
     import jinja2
-    import markdown
+    import markdown_it
     import nh3
 
-    versions = [FORMAT, jinja2.__version__, markdown.__version__, getattr(nh3, "__version__", "")]
+    versions = [FORMAT, jinja2.__version__, markdown_it.__version__, getattr(nh3, "__version__", "")]
     h = hashlib.sha256(json.dumps(versions).encode())
     for folder in ("templates", "static"):
         for item in sorted(root.joinpath(folder).iterdir(), key=lambda p: p.name):
