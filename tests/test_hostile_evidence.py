@@ -190,3 +190,23 @@ def test_remarks_over_the_limit_are_an_error_with_their_length(tmp_path, capsys)
     ev2 = write_evidence(tmp_path / "ev2", {"long.yaml": result_yaml(remarks=long, as_found=good_points(0.01))},
                          config="as_of = 2026-11-30\n[limits]\nmax_remarks_bytes = 20000\n")
     assert main(["check", str(ev2 / "results")]) == 0
+
+
+def test_no_page_takes_a_name_windows_reserves(tmp_path):
+    """Windows reserves CON, PRN, AUX, NUL, COM0-9 and LPT0-9 as device names in every folder, in any case and
+    with any extension, and drops trailing dots and spaces (Microsoft, "Naming Files, Paths, and Namespaces";
+    from memory): a handbook copied to a Windows file share must not use them."""
+    from loopledger.plugins.handbook.values import WINDOWS_RESERVED, page_name, page_names
+
+    assert [page_name(i) for i in ("CON", "nul", "PRN.txt", "Com1", "lpt9.a.b", "aux .", "CONSOLE", "COM10")] == [
+        "CON_", "nul_", "PRN_.txt", "Com1_", "lpt9_.a.b", "aux_", "CONSOLE", "COM10"]  # "aux ." is "aux" there
+    names = page_names(["CON", "CON_", "x."])
+    assert len(set(names)) == 3 and all(n.split(".")[0].upper() not in WINDOWS_RESERVED for n in names)
+    assert not any(n.endswith((".", " ")) for n in names)
+    ev = write_evidence(tmp_path / "ev", {"CON.yaml": result_yaml(as_found=good_points(0.01)),
+                                          "nul.txt.yaml": result_yaml(date="2026-05-01", as_found=good_points())})
+    out = tmp_path / "out"
+    assert main(["run", str(ev), "--out", str(out)]) == 0
+    written = [p.name for p in (out / "handbook").rglob("*")]
+    assert written and not [n for n in written if n.split(".")[0].upper() in WINDOWS_RESERVED]
+    assert "CON_.html" in written and "nul_.txt.html" in written

@@ -23,10 +23,20 @@ from loopledger.contracts import Section
 _UNSAFE = re.compile(r"[^A-Za-z0-9._-]+")
 
 
+#: the device names Windows reserves in any folder, whatever the case and with any extension ("NUL.txt" too):
+#: a page named so cannot be written or opened there (Microsoft's "Naming Files, Paths, and Namespaces")
+WINDOWS_RESERVED = frozenset({"CON", "PRN", "AUX", "NUL", *(f"COM{i}" for i in range(10)),
+                              *(f"LPT{i}" for i in range(10))})
+
+
 def page_name(ident: Any) -> str:
-    """A file name that is safe on any file system and cannot leave its folder."""
+    """A file name that is safe on any file system and cannot leave its folder: only ``A-Z a-z 0-9 . _ -``,
+    no leading or trailing dot (nor space, which becomes ``_`` and is stripped), and never a name Windows
+    reserves for a device (``CON`` and ``PRN.txt`` become ``CON_`` and ``PRN_.txt``)."""
     name = _UNSAFE.sub("_", str(ident)).strip("._") or "_"
-    return name[:150]
+    name = name[:150].rstrip(".")
+    stem, dot, rest = name.partition(".")
+    return f"{stem}_{dot}{rest}" if stem.upper() in WINDOWS_RESERVED else name
 
 
 def page_names(idents: Any) -> list[str]:
