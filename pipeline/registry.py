@@ -60,7 +60,22 @@ def load_assets(evidence: Path) -> tuple[pd.DataFrame, list[Finding], dict[str, 
     whole = any(f.line == 0 for f in findings)  # a fault of the file (a column missing): no row is read
     for index, ident in given.drop(index=frame.index, errors="ignore").dropna().items():
         rejected.setdefault(str(ident), 0 if whole else int(index) + 2)
+    findings += _lookalike_ids(frame)
     return frame.set_index("asset", drop=False).rename_axis(None), findings, rejected
+
+
+def _lookalike_ids(frame: pd.DataFrame) -> list[Finding]:
+    """A warning for each asset id that looks like another one (UTS #39 confusables, loopledger.lookalike):
+    the two are told apart, so their tests make two histories."""
+    from loopledger.lookalike import differences, lookalikes
+
+    ids = [str(i) for i in frame["asset"].dropna()]
+    line = {str(ident): int(index) + 2 for index, ident in frame["asset"].dropna().items()}
+    return [warning(f"asset '{ident}' looks like '{other}' (line {line[other]}) but is another id "
+                    f"({differences(ident, other)}): their tests make two histories; if they are one device, "
+                    "write its id the same way in both",
+                    file=ASSETS, line=line[ident], field="asset", code="lookalike")
+            for ident, other in lookalikes(ids)]
 
 
 def _check_units_and_accuracy(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[Finding]]:

@@ -210,3 +210,31 @@ def test_no_page_takes_a_name_windows_reserves(tmp_path):
     written = [p.name for p in (out / "handbook").rglob("*")]
     assert written and not [n for n in written if n.split(".")[0].upper() in WINDOWS_RESERVED]
     assert "CON_.html" in written and "nul_.txt.html" in written
+
+
+def test_asset_ids_that_look_alike_get_a_warning():
+    """UTS #39 (Unicode Security Mechanisms) section 4: two strings are confusable when their skeletons are
+    equal. Pairs from its confusables.txt (from memory): CYRILLIC CAPITAL LETTER BYELORUSSIAN-UKRAINIAN I
+    (U+0406) and LATIN CAPITAL LETTER I both map to 'l'; CYRILLIC CAPITAL ES (U+0421) to 'C'; GREEK CAPITAL
+    OMICRON (U+039F) and DIGIT ZERO to 'O'; 'm' to 'rn'. FULLWIDTH LATIN CAPITAL LETTER I folds to I by NFKC."""
+    from loopledger.lookalike import lookalikes, skeleton
+
+    assert skeleton("\u0406T-1") == skeleton("IT-1") == skeleton("lT-1")
+    assert skeleton("\u0421T-7") == skeleton("CT-7") and skeleton("PT-\u039f1") == skeleton("PT-01")
+    assert skeleton("rnotor") == skeleton("motor") and skeleton("\uff29T-1") == skeleton("IT-1")
+    assert skeleton("IT-1") != skeleton("IT-2") and skeleton("TX-1a") != skeleton("TX-1A")  # case is not folded
+    assert lookalikes(["IT-1", "IT-2", "\u0406T-1", "IT-1"]) == [("\u0406T-1", "IT-1")]
+
+
+def test_a_register_with_look_alike_asset_ids_warns_naming_both(tmp_path, capsys):
+    from tests.evidence import CT_ASSET
+
+    latin, cyrillic = {**CT_ASSET, "asset": "IT-1"}, {**CT_ASSET, "asset": "\u0406T-1"}
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(asset="IT-1", as_found=good_points(0.01)),
+                                          "b.yaml": result_yaml(asset="\u0406T-1", date="2026-05-01",
+                                                                as_found=good_points(0.01))},
+                        assets=[latin, cyrillic])
+    assert main(["check", str(ev / "results")]) == 0
+    out = capsys.readouterr().out
+    assert "assets.csv:3: warning: asset '\u0406T-1' looks like 'IT-1' (line 2)" in out
+    assert "U+0406" in out
