@@ -10,6 +10,7 @@ from __future__ import annotations
 import copy
 import csv
 
+import pytest
 from loopledger.cli import main
 
 from tests.evidence import INSTRUMENTS, good_points, result_yaml, write_evidence
@@ -238,3 +239,16 @@ def test_a_register_with_look_alike_asset_ids_warns_naming_both(tmp_path, capsys
     out = capsys.readouterr().out
     assert "assets.csv:3: warning: asset '\u0406T-1' looks like 'IT-1' (line 2)" in out
     assert "U+0406" in out
+
+
+@pytest.mark.parametrize("command", [["loop"], ["sheet"]])
+def test_loop_and_sheet_print_a_hostile_asset_id_as_text(tmp_path, capsys, command):
+    """assets.csv refuses C0 controls in an id but not the C1 CSI (0x9b, ECMA-48's one-byte ESC [), nor a
+    right-to-left override; the commands that print from the registers show them inert."""
+    from tests.evidence import CT_ASSET
+
+    hostile = "T-\x9b2K\u202eCT1"
+    ev = write_evidence(tmp_path / "ev", {}, assets=[{**CT_ASSET, "asset": hostile}])
+    assert main([*command, hostile, "--evidence", str(ev)]) in (0, 1)
+    out = capsys.readouterr().out
+    assert "\x9b" not in out and "\u202e" not in out and "T-\\x9b2K\\u202eCT1" in out

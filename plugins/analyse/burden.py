@@ -411,8 +411,9 @@ def _run(args: argparse.Namespace, out: Callable[[str], Any] | None = None) -> i
     from loopledger.config import ConfigError
     from loopledger.host import get_plugin_manager
     from loopledger.registry import absent
+    from loopledger.terminal import VisibleLines
 
-    out = out or sys.stdout.write
+    out = out or VisibleLines(sys.stdout).write  # ids and units quote the registers: shown inert
     evidence = args.evidence or find_evidence([Path.cwd()])
     ctx = runner.prepare(runner.RunOptions(evidence), get_plugin_manager())
     if args.asset not in ctx.assets.index:

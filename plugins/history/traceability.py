@@ -246,7 +246,9 @@ def _run(args: argparse.Namespace) -> int:
         raise ConfigError(absent("instrument", args.instrument, ctx.rejected_instruments, "instruments.yaml")
                           + ("" if args.instrument in ctx.rejected_instruments else f" (known: {known})"))
     table, since = impacted(ctx, args.instrument, since)
-    w = sys.stdout.write
+    from loopledger.terminal import VisibleLines
+
+    w = VisibleLines(sys.stdout).write  # ids and files quote the evidence: shown inert
     w(f"Tests that used {args.instrument} " + (f"since {since.isoformat()}" if since else "(all dates)")
       + f": {len(table)}\n")
     for r in table.itertuples():

@@ -56,7 +56,9 @@ def _sheet_run(args: argparse.Namespace) -> int:
     if args.connection:
         plan["connection"] = args.connection
     sheet = sheet_data(ctx, args.asset, plan)
-    sys.stdout.write(sheet_text(sheet))
+    from loopledger.terminal import VisibleLines
+
+    VisibleLines(sys.stdout).write(sheet_text(sheet))  # ids and units quote the registers: shown inert
     if args.html:
         from loopledger.output import write_bytes
 
