@@ -172,7 +172,7 @@ def test_a_command_naming_an_asset_left_out_for_errors_says_so(tmp_path, capsys)
     ('[decison]\nrule = "guarded"\n', "no plugin reads a setting 'decison'"),
     ('rule = "guarded"\n', "no plugin reads a setting 'rule'"),
     ("[limits]\nmax_point = 5\n", "[limits] has no setting 'max_point' (known: max_file_bytes, max_points, "
-                                  "max_repeats)"),
+                                  "max_remarks_bytes, max_repeats)"),
     ("[decision]\nrisk_tagret = 0.02\n", "[decision] has no setting 'risk_tagret' (known: risk_target, rule)"),
 ])
 def test_a_setting_nothing_reads_is_a_configuration_error(tmp_path, capsys, toml, said):
