@@ -158,6 +158,20 @@ def test_plain_hook_register_edits_print_verdict_changes_and_strict_blocks_failu
     assert strict.returncode != 0 and "échec.yaml" in strict.stdout and ": error: fail:" in strict.stdout
 
 
+def test_both_hooks_pick_the_same_files():
+    """The framework filters names by `files` in .pre-commit-hooks.yaml; the plain hook leaves it to `check
+    --paths-from`, which must keep the same ones."""
+    from loopledger.commands.gate import _GATED
+
+    hook = yaml.safe_load((ROOT / ".pre-commit-hooks.yaml").read_text(encoding="utf-8"))[0]
+    assert hook["files"] == _GATED.pattern
+    for name in ("results/a.yaml", "p/results/2026/b.YML", "p/results/c.csv", "results/d.xlsx", "assets.csv",
+                 "p/instruments.yaml", "loopledger.toml"):
+        assert _GATED.search(name), name
+    for name in ("README.md", "results/notes.txt", "notes/assets.csv.bak", "x/assets.csv/y"):
+        assert not _GATED.search(name), name
+
+
 def test_check_reads_nul_separated_names_and_keeps_only_evidence(tmp_path):
     """`--paths-from` takes `git diff -z` output as it is: a name with a newline-free accent and a space is
     one path, README.md and other files are left out, and each path is checked in its own folder."""
