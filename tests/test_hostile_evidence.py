@@ -252,3 +252,15 @@ def test_loop_and_sheet_print_a_hostile_asset_id_as_text(tmp_path, capsys, comma
     assert main([*command, hostile, "--evidence", str(ev)]) in (0, 1)
     out = capsys.readouterr().out
     assert "\x9b" not in out and "\u202e" not in out and "T-\\x9b2K\\u202eCT1" in out
+
+
+def test_a_result_file_naming_a_look_alike_of_a_registered_asset_is_pointed_to_it(tmp_path, capsys):
+    """A result file for the Cyrillic 'ІT-1' (U+0406, UTS #39 confusable with Latin I) where assets.csv has
+    'IT-1': the file cannot be judged, and the error names the registered id it looks like."""
+    from tests.evidence import CT_ASSET
+
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(asset="\u0406T-1", as_found=good_points(0.01))},
+                        assets=[{**CT_ASSET, "asset": "IT-1"}])
+    assert main(["check", str(ev / "results")]) == 2
+    out = capsys.readouterr().out
+    assert "is not in assets.csv; did you mean 'IT-1'? (it holds U+0406" in out

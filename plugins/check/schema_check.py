@@ -128,9 +128,10 @@ _LOOKALIKES = str.maketrans({c: "-" for c in "\u2010\u2011\u2012\u2013\u2014\u22
 
 class _Near:
     """': did you mean ...' for an unknown id that differs from a known one by case, look-alike dashes and
-    spaces, or a slip of a character or two (difflib), naming the characters that are not plain ASCII.
-    Worked out for the first :data:`LIMIT` distinct unknown ids only (difflib over a large register costs
-    milliseconds an id; a folder whose ids all changed must not take minutes to say so)."""
+    spaces, letters of another script that look alike (UTS #39 skeletons), or a slip of a character or two
+    (difflib), naming the characters that are not plain ASCII. Worked out for the first :data:`LIMIT`
+    distinct unknown ids only (difflib over a large register costs milliseconds an id; a folder whose ids
+    all changed must not take minutes to say so)."""
 
     LIMIT = 50
 
@@ -143,7 +144,9 @@ class _Near:
     def _fold(text: str) -> str:
         import unicodedata
 
-        return unicodedata.normalize("NFKC", text).translate(_LOOKALIKES).casefold()
+        from loopledger.lookalike import skeleton  # a Cyrillic I for a Latin one (UTS #39)
+
+        return skeleton(unicodedata.normalize("NFKC", text).translate(_LOOKALIKES)).casefold()
 
     def __call__(self, ident: Any) -> str:
         import difflib
