@@ -78,6 +78,7 @@ def _install_framework(repo: Repo) -> None:
     """This repository's hook definition as a local hook run with this interpreter (the framework would
     otherwise build a virtualenv of loopledger from the network): its file pattern, file passing and serial
     running are the ones users get."""
+    pytest.importorskip("pre_commit")  # in the dev extras (pyproject.toml)
     hook = yaml.safe_load((ROOT / ".pre-commit-hooks.yaml").read_text(encoding="utf-8"))[0]
     local = {**hook, "language": "system", "entry": f"{sys.executable} -m loopledger check"}
     config = {"repos": [{"repo": "local", "hooks": [local]}]}
@@ -90,7 +91,6 @@ def _install_framework(repo: Repo) -> None:
 
 @pytest.mark.parametrize("install", [_install_plain, _install_framework], ids=["plain-hook", "pre-commit"])
 def test_the_gate_stops_invalid_files_and_lets_evidence_of_failures_in(tmp_path, install):
-    pytest.importorskip("pre_commit")
     repo = _repo(tmp_path)
     install(repo)
     first = repo.commit(".")

@@ -3,7 +3,7 @@
 For each point: the input and expected output, how the reading became the measured output, the
 error, the whole uncertainty budget, u, ν_eff, k, U, TUR, the specific risk and the decision with
 the rule and acceptance limit that made it; then the single-test analysis and the method
-comparison. Exit codes as for ``check``.
+comparison. Exit codes as for ``run`` (1 when the test fails).
 """
 
 from __future__ import annotations
