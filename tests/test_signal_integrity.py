@@ -113,7 +113,7 @@ def test_the_same_run_on_a_milliamp_range_does_not_clip(tmp_path, run_folder):
 
 def test_cli_check_reports_clipping_and_ne43(tmp_path, capsys):
     ev = write_evidence(tmp_path / "ev", {"a.yaml": _run(636.0, "shunt")}, assets=[ASSET])
-    assert main(["check", str(ev / "results" / "a.yaml")]) == 1
+    assert main(["check", "--strict", str(ev / "results" / "a.yaml")]) == 1  # a failure blocks with --strict
     out = capsys.readouterr().out
     assert "warning: as-found: the top 2 point(s)" in out and "clipping" in out
     assert "warning: burden: loop 636.0 Ω exceeds the drive limit of 600.0 Ω" in out
