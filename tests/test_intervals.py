@@ -130,10 +130,12 @@ def test_global_false_accept_against_scipy_multivariate_normal(accept, u, eopr):
 
 
 class _FixedU:
-    """Plumbing: an uncertainty stage giving every point U = 0.08 mA (k = 2), i.e. TUR 1 on class 0.5."""
+    """Plumbing: an uncertainty stage giving every point U = 0.08 mA (k = 2, so u = 0.04 mA), i.e. TUR 1 on
+    class 0.5 (the stage contract, loopledger.schemas.stages.UncertainPoints, asks for u, U and k)."""
 
     @hookimpl
     def ll_uncertainty(self, ctx):
+        ctx.points["u"] = 0.04
         ctx.points["U"] = 0.08
         ctx.points["k"] = 2.0
         return []
