@@ -45,9 +45,11 @@ def point_findings(ctx: RunContext) -> list[Finding]:
     tests = ctx.tests.set_index("test")
     out = []
     failing = pts[pts["decision"] != "pass"]
-    for row in failing.itertuples():
+    taken = pts["accepted"] if "accepted" in pts.columns else pts["decision"] == "pass"
+    for row, ok in zip(failing.itertuples(), taken[failing.index].tolist(), strict=True):
         adjusted = row.phase == "as_found" and tests.at[row.test, "as_left"] == "pass"
-        severity = "warning" if adjusted or row.decision == "conditional-pass" else "error"
+        # a conditional pass fails the test (ILAC-G8 binary statement) unless the site accepts it knowingly
+        severity = "warning" if adjusted or ok else "error"
         note = " (adjusted; as-left passes)" if adjusted else ""
         out.append(Finding(severity, f"{row.decision}: error {row.error:+.4g} {row.output_unit} "
                            f"({row.error_pct_span:+.3g} % of span) against MPE ±{row.mpe:.4g} "
@@ -66,7 +68,7 @@ TABLE_ROWS = 50
 
 
 def _worst_points(ctx: RunContext, problems: pd.DataFrame) -> pd.DataFrame:
-    """Per failing test: how many points of its final phase are outside tolerance, and the worst |error|.
+    """Per failing test: how many points of its final phase were not accepted, and the worst |error|.
 
     One grouped pass over the point table (a mask per test was quadratic in a large fleet).
     """
@@ -74,7 +76,8 @@ def _worst_points(ctx: RunContext, problems: pd.DataFrame) -> pd.DataFrame:
     if pts.empty or "decision" not in pts:
         return pd.DataFrame(columns=["n", "worst"])
     final = problems.set_index("test")["as_left"].map(lambda v: "as_left" if v else "as_found")
-    outside = pts[(pts["decision"] != "pass") & pts["test"].isin(final.index)]
+    taken = pts["accepted"].astype(bool) if "accepted" in pts.columns else pts["decision"] == "pass"
+    outside = pts[~taken & pts["test"].isin(final.index)]
     outside = outside[outside["phase"].to_numpy() == outside["test"].map(final).to_numpy()]
     return outside.groupby("test").agg(n=("error_pct_span", "size"),
                                        worst=("error_pct_span", lambda v: v.abs().max()))
@@ -94,6 +97,9 @@ def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None
                   f"(judged on {ctx.as_of.isoformat()}, rule '{cell(ctx.section('decision').get('rule', 'simple'))}')")
     line = ", ".join(f"{counts.get(v, 0)} {v}" for v in ("pass", "adjusted", "fail", "invalid"))
     console.print(f"  tests: {line}")
+    note = ctx.extras.get("decision_note")
+    if note:
+        console.print(f"  note: {note}", markup=False, highlight=False)
     valid = tests[tests["valid"].astype(bool)] if not tests.empty else tests
     latest = valid.sort_values(["date", "test"]).groupby("asset").tail(1) if not valid.empty else valid
     failing = latest[latest["verdict"] == "fail"] if not latest.empty else latest
@@ -108,7 +114,7 @@ def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None
             n, pct = (worst.loc[row.test, "n"], worst.loc[row.test, "worst"]) if row.test in worst.index \
                 else (0, float("nan"))
             table.add_row(cell(row.asset), cell(row.date), cell(row.test),
-                          f"{int(n)} point(s) outside ±MPE, worst {pct:.3g} % of span")
+                          f"{int(n)} point(s) not accepted, worst {pct:.3g} % of span")
         console.print(table)
         _more(console, len(failing) - len(shown_rows), "assets whose latest test failed")
     if earlier > 0:

@@ -46,9 +46,13 @@ def test_empty_acceptance_zone_is_a_warning_not_a_crash(tmp_path):
     ev = write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(as_found=good_points(0.0))}, instruments=rig,
                         config='as_of = 2026-11-30\n[decision]\nrule = "guarded"\n')
     out = tmp_path / "out"
-    assert main(["run", str(ev), "--out", str(out), "--no-handbook"]) == 0
+    # issue 22: this test once pinned exit code 0 (the conditional passes counted as passes, which is
+    # simple acceptance). Under ILAC-G8:2019 §4.2.2's binary statement with a guard band, nothing inside
+    # an empty acceptance zone passes, so the test fails (exit 1), and the warning says why.
+    assert main(["run", str(ev), "--out", str(out), "--no-handbook"]) == 1
     tests = pd.read_csv(out / "data" / "tests.csv")
     assert "acceptance zone is empty" in tests["warnings"].iloc[0]
+    assert list(tests["verdict"]) == ["fail"]
     pts = pd.read_csv(out / "data" / "points.csv")
     assert set(pts["decision"]) == {"conditional-pass"}
 

@@ -140,6 +140,8 @@ def judge(args: argparse.Namespace, evidence: Path, paths: list[Path], label: st
     failing = [rel for rel in named if after.get(rel) == "fail"]
     where = f"{label}/" if label else ""
     report.print_lines([replace(f, file=where + f.file) if f.file and where else f for f in findings], sys.stdout)
+    if ctx.extras.get("decision_note"):
+        sys.stdout.write(f"note: {ctx.extras['decision_note']}\n")
     if before is not None:
         from loopledger.terminal import visible
 

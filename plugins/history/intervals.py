@@ -15,7 +15,8 @@
 - Where a ``U`` column exists (the uncertainty stage), each test's global
   false-accept probability from the bivariate normal model: true error
   ~ N(0, σ_p) with σ_p set so that P(|e| ≤ MPE) = the prior, measured = true
-  + N(0, u), u = U / k; PFA = P(|true| > MPE, |measured| ≤ acceptance limit);
+  + N(0, u), u = U / k; PFA = P(|true| > MPE, |measured| ≤ L), L the limit the verdict
+  used (``verdict_limit``: the acceptance limit, or the MPE where conditional passes are accepted);
   the test's value is the largest over the points of the phase that decided it;
   above ``false_accept_limit`` (default 0.02, the ANSI/NCSL Z540.3 §5.3 target)
   it is flagged.
@@ -181,7 +182,10 @@ def false_accept(ctx: RunContext, prior: pd.DataFrame, limit: float) -> tuple[pd
     k = deciding["k"].astype(float) if "k" in deciding.columns else pd.Series(2.0, index=deciding.index)
     u = deciding["U"].astype(float) / k.fillna(2.0)
     prior = deciding["test"].map(dict(zip(tests["test"].tolist(), prior["eopr"].tolist(), strict=True)))
-    pfa = pd.Series(global_false_accept(deciding["mpe"], deciding["acceptance_limit"], u, prior),
+    # the limit the verdicts actually used (the MPE when conditional passes are accepted), never a
+    # narrower guard-banded limit the verdict did not apply
+    limit_used = deciding["verdict_limit"] if "verdict_limit" in deciding.columns else deciding["acceptance_limit"]
+    pfa = pd.Series(global_false_accept(deciding["mpe"], limit_used, u, prior),
                     index=deciding.index)
     per_test = pfa.groupby(deciding["test"]).max()
     out = tests["test"].map(per_test).astype(float)

@@ -4,7 +4,8 @@
   a test with a point below 4:1 gets a warning (Z540.3's alternative to estimating false-accept
   risk);
 - ``risk`` = probability that the true error lies outside ±MPE given the measured error and u
-  (JCGM 106:2012 specific risk, normal model).
+  (JCGM 106:2012 specific risk; normal model, or a scaled and shifted t at finite ν_eff,
+  JCGM 101:2008 §6.4.9).
 
 Runs after the judge plugins that add the error, MPE and acceptance limit (``@needs``).
 """
@@ -40,7 +41,8 @@ def conformity(ctx: RunContext) -> list[Finding]:
         pts["tur"] = pts["mpe"] / pts["U"]
         # u from another plugin's uncertainty stage may be missing: U / k then (k = 2 if absent too)
         u = pts["u"] if "u" in pts.columns else pts["U"] / (pts["k"] if "k" in pts.columns else 2.0)
-        pts["risk"] = specific_risk(pts["error"], u, pts["mpe"])
+        nu = pts["nu_eff"] if "nu_eff" in pts.columns else np.inf
+        pts["risk"] = specific_risk(pts["error"], u, pts["mpe"], nu)
     ctx.points = pts
     exports = ctx.stash.setdefault(keys.POINT_EXPORTS, [])
     exports += [c for c in ("tur", "risk") if c not in exports]

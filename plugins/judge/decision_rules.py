@@ -7,7 +7,8 @@ Both give the non-binary statements of ILAC-G8:2019 §4.2.3 — ``pass``, ``cond
   conditional-fail if MPE < |e| ≤ MPE + w; fail if |e| > MPE + w.
 
 ``guarded`` takes w = U (the expanded uncertainty, k for 95.45 %). ``risk`` sizes w so that the
-specific risk (JCGM 106:2012, normal model with standard uncertainty u) at the acceptance limit
+specific risk (JCGM 106:2012, with standard uncertainty u: normal, or at finite ν_eff a scaled and
+shifted t, JCGM 101:2008 §6.4.9) at the acceptance limit
 equals ``[decision] risk_target`` (default 0.02): a point accepted at the limit has that
 probability of lying outside ±MPE, and a point rejected at MPE + w has that probability of lying
 inside. When U ≥ MPE (or the target cannot be met even at zero error) no point can pass; the
@@ -29,51 +30,72 @@ from loopledger.plugins.judge.tolerance import ROUNDING
 DEFAULT_RISK_TARGET = 0.02
 
 
-def specific_risk(e: Any, u: Any, mpe: Any) -> Any:
-    """P(true error outside ±MPE | measured error e, standard uncertainty u), normal model (JCGM 106)."""
-    from scipy.special import ndtr  # the normal CDF; scipy.stats costs a second to import
+def _cdf(z: Any, nu: Any) -> Any:
+    """The CDF of the standard normal (ν infinite) or of Student's t with ν degrees of freedom."""
+    from scipy.special import ndtr, stdtr  # scipy.stats costs a second to import
 
+    z, nu = np.broadcast_arrays(np.asarray(z, dtype=float), np.asarray(nu, dtype=float))
+    finite = np.isfinite(nu) & (nu > 0)
+    out = np.asarray(ndtr(z), dtype=float)
+    if finite.any():
+        out = np.where(finite, stdtr(np.where(finite, nu, 1.0), z), out)
+    return out
+
+
+def specific_risk(e: Any, u: Any, mpe: Any, nu: Any = np.inf) -> Any:
+    """P(true error outside ±MPE | measured error e, standard uncertainty u) (JCGM 106:2012).
+
+    The state of knowledge of the true error is normal, or, where the effective degrees of freedom
+    ``nu`` are finite, a t distribution with ``nu`` degrees of freedom scaled by u and shifted to e
+    (JCGM 101:2008 §6.4.9): at few degrees of freedom the normal model understates the risk.
+    """
     e, u, mpe = (np.asarray(v, dtype=float) for v in (e, u, mpe))
-    inside = ndtr((mpe - e) / u) - ndtr((-mpe - e) / u)
+    inside = _cdf((mpe - e) / u, nu) - _cdf((-mpe - e) / u, nu)
     return 1.0 - inside
 
 
-def _pdf(z: Any) -> Any:
-    """The standard normal density."""
-    return np.exp(-0.5 * np.square(z)) / np.sqrt(2.0 * np.pi)
+def _quantile(p: float, nu: np.ndarray) -> np.ndarray:
+    """The ``p`` quantile of the standard normal (ν infinite) or of Student's t."""
+    from scipy.special import ndtri, stdtrit
+
+    finite = np.isfinite(nu) & (nu > 0)
+    return np.where(finite, stdtrit(np.where(finite, nu, 1.0), p), ndtri(p))
 
 
-def risk_limits(u: Any, mpe: Any, target: float) -> tuple[np.ndarray, np.ndarray]:
+def risk_limits(u: Any, mpe: Any, target: float, nu: Any = np.inf) -> tuple[np.ndarray, np.ndarray]:
     """(acceptance limit A, rejection limit R) with specific risk(A) = target and 1 − risk(R) = target.
 
-    Solved with scipy's Newton iteration (vectorised) from the one-tail guess MPE ∓ u·z. A is NaN
-    where even |e| = 0 carries more than the target risk (no acceptance zone).
+    The risk is that of :func:`specific_risk` (normal, or scaled and shifted t at ``nu``). It rises
+    with |e|, so each limit is bracketed and solved by scipy's vectorised bracketing root finder:
+    A in [0, MPE], R in [MPE, MPE + u·q], q the t (or normal) quantile of 1 − target, where
+    1 − risk ≤ target. A is NaN where even |e| = 0 carries more than the target risk (no
+    acceptance zone).
     """
-    from scipy import optimize
-    from scipy.special import ndtri
+    from scipy.optimize import elementwise
 
-    u, mpe = np.asarray(u, dtype=float), np.asarray(mpe, dtype=float)
-    z = -ndtri(target)  # the normal quantile with ``target`` above it
+    u, mpe = np.broadcast_arrays(np.asarray(u, dtype=float), np.asarray(mpe, dtype=float))
+    nu = np.broadcast_to(np.asarray(nu, dtype=float), u.shape)
 
-    def solve(su: np.ndarray, sm: np.ndarray, guess: np.ndarray, goal: float) -> np.ndarray:
-        def f(x: np.ndarray) -> np.ndarray:
-            return np.asarray(specific_risk(x, su, sm)) - goal
+    def solve(su: np.ndarray, sm: np.ndarray, sn: np.ndarray, low: np.ndarray, high: np.ndarray,
+              goal: float) -> np.ndarray:
+        def f(x: np.ndarray, su: np.ndarray, sm: np.ndarray, sn: np.ndarray) -> np.ndarray:
+            return np.asarray(specific_risk(x, su, sm, sn)) - goal
 
-        def df(x: np.ndarray) -> np.ndarray:
-            return np.asarray((_pdf((sm - x) / su) - _pdf((-sm - x) / su)) / su)
-
-        return np.asarray(optimize.newton(f, guess, fprime=df, tol=1e-12, maxiter=100))
+        found = elementwise.find_root(f, (low, high), args=(su, sm, sn),
+                                      tolerances={"xatol": 1e-15, "xrtol": 1e-13})
+        return np.asarray(found.x, dtype=float)
 
     accept = np.full(u.shape, np.nan)
     reject = np.full(u.shape, np.nan)
-    ok = np.isfinite(u) & np.isfinite(mpe) & (u > 0)
+    ok = np.isfinite(u) & np.isfinite(mpe) & (u > 0) & (mpe > 0)
     if ok.any():
-        reject[ok] = solve(u[ok], mpe[ok], mpe[ok] + u[ok] * z, 1.0 - target)
+        su, sm, sn = u[ok], mpe[ok], nu[ok]
+        reject[ok] = solve(su, sm, sn, sm, sm + su * _quantile(1.0 - target, sn), 1.0 - target)
         possible = ok.copy()
-        possible[ok] = np.asarray(specific_risk(0.0, u[ok], mpe[ok])) <= target
+        possible[ok] = np.asarray(specific_risk(0.0, su, sm, sn)) <= target
         if possible.any():
-            up, mp = u[possible], mpe[possible]
-            accept[possible] = solve(up, mp, np.maximum(mp - up * z, 0.0), target)
+            up, mp, np_ = u[possible], mpe[possible], nu[possible]
+            accept[possible] = solve(up, mp, np_, np.zeros_like(mp), mp, target)
     return accept, reject
 
 
@@ -104,14 +126,15 @@ class Guarded(DecisionRule):
 
 class RiskBased(DecisionRule):
     name = "risk"
-    description = ("guard band sized so the specific risk (JCGM 106, normal model) at the acceptance limit "
-                   "equals [decision] risk_target")
+    description = ("guard band sized so the specific risk (JCGM 106; normal model, or scaled and shifted t at "
+                   "finite ν_eff) at the acceptance limit equals [decision] risk_target")
     needs = ("U",)
 
     def decide(self, points: pd.DataFrame, ctx: RunContext) -> pd.DataFrame:
         target = float(ctx.section("decision").get("risk_target", DEFAULT_RISK_TARGET))
         u = points["u"] if "u" in points else points["U"] / 2.0
-        accept, reject = risk_limits(u.to_numpy(dtype=float), points["mpe"].to_numpy(dtype=float), target)
+        nu = points["nu_eff"].to_numpy(dtype=float) if "nu_eff" in points else np.inf
+        accept, reject = risk_limits(u.to_numpy(dtype=float), points["mpe"].to_numpy(dtype=float), target, nu)
         decision = non_binary(points["error"], points["mpe"], accept, reject, points["span"])
         return pd.DataFrame({"decision": decision, "acceptance_limit": np.where(np.isnan(accept), 0.0, accept)},
                             index=points.index)
