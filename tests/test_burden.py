@@ -198,3 +198,31 @@ def test_figures_are_formatted_value_by_value_as_python_does():
     assert fmt(pd.Series(values)).tolist() == ["?" if math.isnan(v) else f"{v:g}" for v in values]
     mixed = [1, True, 1.0, None, -0.0, 0.0]
     assert fmt(pd.Series(mixed, dtype=object), "{}").tolist() == ["?" if v is None else f"{v}" for v in mixed]
+
+
+def test_drive_limit_at_the_ne43_high_failure_current(tmp_path, run_folder):
+    """NAMUR NE 43: a failure signal is ≥ 21.0 mA, so the loop must carry 21 mA; R_max = (V_supply −
+    V_min) / 0.021 (domain.md, calc from NE 43's 21 mA level). The issue's case: 650 Ω on a 13.5 V loop
+    is inside the limits at 20 mA (675 Ω) and 20.5 mA (658.5 Ω) but not at 21 mA (642.9 Ω)."""
+    asset = {**CT_ASSET, "power": "loop", "max_load_ohm": None, "supply_v": 24, "min_terminal_v": 10.5}
+    ctx = _ctx(tmp_path, run_folder, assets=[asset])
+    row = burden.analyse(ctx, _rig(shunt_ohm=650.0)).iloc[0]
+    assert row["limit_ohm"] == pytest.approx(13.5 / 0.020)
+    assert row["upper_limit_ohm"] == pytest.approx(13.5 / 0.0205)
+    assert row["failure_limit_ohm"] == pytest.approx(642.857, abs=1e-3)
+    assert bool(row["high_failure_clipped"])
+    assert "21 mA" in " ".join(v for _, v in burden.term_rows(row))
+    fine = burden.analyse(ctx, _rig(shunt_ohm=640.0)).iloc[0]
+    assert not bool(fine["high_failure_clipped"])
+
+
+def test_a_loop_that_cannot_carry_21_ma_gets_its_own_warning(tmp_path, run_folder):
+    """The fixture's 100 Ω shunt on a loop with 2.08 V of headroom: 104 Ω at 20 mA, 101.5 Ω at 20.5 mA,
+    99.05 Ω at 21 mA (R = V / I, NE 43's levels): the high failure signal would be clipped."""
+    asset = {**CT_ASSET, "power": "loop", "max_load_ohm": None, "supply_v": 12, "min_terminal_v": 9.92}
+    volts = [(i, f"{float(r.split()[0]) * 0.1:.5f} V") for i, r in good_points()]  # 100 Ω: V = 0.1 × mA
+    ctx = _ctx(tmp_path, run_folder, assets=[asset],
+               results={"a.yaml": result_yaml(method="shunt", as_found=volts)})
+    found = [f for f in ctx.findings if f.code == "burden-ne43"]
+    assert len(found) == 1 and "99.0 Ω" in found[0].message and "clipped" in found[0].message
+    assert bool(ctx.tests["high_failure_clipped"].iloc[0])

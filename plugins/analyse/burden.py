@@ -13,7 +13,10 @@ The output can drive it up to a fixed compliance voltage: ``max_load_ohm`` × th
 output range for a self-powered transducer (``power = self``), or ``supply_v`` −
 ``min_terminal_v`` for a loop-powered transmitter (``power = loop``). The limit at a current I
 is that voltage / I: at the top of the range (20 mA) it is ``limit_ohm``; at the NAMUR NE 43
-upper measuring limit (20.5 mA for a 4-20 mA output) it is ``upper_limit_ohm``.
+upper measuring limit (20.5 mA for a 4-20 mA output) it is ``upper_limit_ohm``; at the NE 43
+high failure current (21 mA, the least a failure signal must reach) it is ``failure_limit_ohm``.
+A loop that cannot carry 21 mA would clip a high failure signal (``high_failure_clipped``): a
+warning of its own, even where the margin at 20 mA is fine.
 ``margin_pct`` = (limit − loop) / limit at the top of the range; ``burden_status`` is ``ok``
 (≥ 10 %), ``low-margin`` (0-10 %), ``exceeds`` (< 0) or ``unknown`` (data missing).
 """
@@ -42,11 +45,13 @@ from loopledger.plugins.measure.reading_methods import shunt_ohms
 LOW_MARGIN_PCT = 10.0
 #: the NAMUR NE 43 upper limit of the measuring range for a 4-20 mA output, in A
 NE43_UPPER_A = 0.0205
+#: the NAMUR NE 43 high failure signal (≥ 21 mA), in A: a loop must carry it to signal a high failure
+NE43_FAILURE_A = 0.021
 #: the shunt offered as the "smaller shunt" fix (10 Ω drops 0.2 V at 20 mA)
 SMALL_SHUNT_OHM = 10.0
 
 TEST_COLUMNS = ["loop_ohm", "limit_ohm", "margin_pct", "burden_status", "rig_ohm", "receiver_loop_ohm",
-                "cable_ohm", "compliance_v", "upper_limit_ohm"]
+                "cable_ohm", "compliance_v", "upper_limit_ohm", "failure_limit_ohm", "high_failure_clipped"]
 
 
 def _asset_rows(ctx: RunContext, assets: pd.Series) -> pd.DataFrame:
@@ -176,6 +181,7 @@ def analyse(ctx: RunContext, rigs: pd.DataFrame) -> pd.DataFrame:
                            index=rigs.index)
     limit = compliance / top_a
     upper_limit = compliance / upper_a
+    failure_limit = (compliance / NE43_FAILURE_A).where(four_twenty)
     margin = (limit - loop) / limit * 100.0
     reasons = [
         (a["output_unit"].isna(), "the asset is not in assets.csv"),
@@ -203,9 +209,10 @@ def analyse(ctx: RunContext, rigs: pd.DataFrame) -> pd.DataFrame:
         "receiver_loop_ohm": receiver, "cable_ohm": cable, "cable_desc": cable_desc, "loop_ohm": loop,
         "top_a": top_a, "upper_a": upper_a, "four_twenty": four_twenty, "compliance_v": compliance,
         "self_powered": self_powered, "limit_ohm": limit, "upper_limit_ohm": upper_limit,
+        "failure_limit_ohm": failure_limit, "high_failure_clipped": (loop > failure_limit) & ~unknown,
         "margin_pct": margin, "burden_status": status, "burden_reason": reason,
     }, index=rigs.index)
-    for col in ("loop_ohm", "limit_ohm", "upper_limit_ohm", "margin_pct", "compliance_v"):
+    for col in ("loop_ohm", "limit_ohm", "upper_limit_ohm", "failure_limit_ohm", "margin_pct", "compliance_v"):
         out.loc[unknown, col] = np.nan
     return _with_fixes(ctx, out)
 
@@ -264,6 +271,13 @@ def fixes(row: Any) -> list[str]:
     return out
 
 
+def clipped(row: Any) -> str:
+    """The words of a loop that cannot carry the NE 43 high failure current."""
+    return (f"loop {_ohm(row.loop_ohm)} is above the drive limit of {_ohm(row.failure_limit_ohm)} at "
+            f"{_ma(NE43_FAILURE_A)} (NE 43 high failure current): a high failure signal would be clipped at "
+            f"{row.compliance_v / row.loop_ohm * 1000:.2f} mA and could be read as a measurement")
+
+
 def summary(row: Any, with_fixes: bool = True) -> str:
     """One sentence on a rig whose margin is low or exceeded, with the fixes."""
     if row.burden_status == "unknown":
@@ -273,7 +287,8 @@ def summary(row: Any, with_fixes: bool = True) -> str:
     text = (f"loop {_ohm(row.loop_ohm)} {what} the drive limit of {_ohm(row.limit_ohm)} at {_ma(row.top_a)} "
             f"({'over by' if by > 0 else 'margin'} {abs(by):.1f} Ω, {abs(row.margin_pct):.1f} %)")
     if row.four_twenty:
-        text += f"; {_ohm(row.upper_limit_ohm)} at the NE 43 upper limit {_ma(row.upper_a)}"
+        text += (f"; {_ohm(row.upper_limit_ohm)} at the NE 43 upper limit {_ma(row.upper_a)}, "
+                 f"{_ohm(row.failure_limit_ohm)} at the NE 43 high failure current {_ma(NE43_FAILURE_A)}")
     if row.burden_status == "exceeds":
         text += f"; the output can push at most {row.compliance_v / row.loop_ohm * 1000:.2f} mA through it"
     options = fixes(row) if with_fixes else []
@@ -302,6 +317,10 @@ def term_rows(row: Any) -> list[tuple[str, str]]:
          + (f", {_ohm(row.upper_limit_ohm)} at {_ma(row.upper_a)} (NE 43 upper limit)" if row.four_twenty else "")),
         ("Margin", f"{row.margin_pct:.1f} % ({row.burden_status})"),
     ]
+    if row.four_twenty:
+        rows.append(("Drive limit at the NE 43 high failure current",
+                     f"{_ohm(row.failure_limit_ohm)} at {_ma(NE43_FAILURE_A)}: "
+                     + (clipped(row) if row.high_failure_clipped else "a high failure signal gets through")))
     if row.burden_status != "ok":
         rows += [("Would fix", option) for option in fixes(row)]
     return rows
@@ -335,6 +354,13 @@ def ll_analyse(ctx: RunContext) -> list[Finding]:
                                     line=lines.get(rel, {}).get("connection", 0)))
         elif row.burden_status == "unknown":
             findings.append(note(f"burden not checked: {row.burden_reason}", file=rel, code="burden"))
+    # a loop that carries the measuring range but not 21 mA: its own warning (an exceeded loop's says it)
+    short = terms[terms["high_failure_clipped"].astype(bool) & (terms["burden_status"] != "exceeds")] \
+        if len(terms) else terms
+    for idx, row in zip(short.index, short.itertuples(), strict=True):
+        rel = str(tests.at[idx, "source_file"])
+        findings.append(warning(f"burden: {clipped(row)}", file=rel, field="connection", code="burden-ne43",
+                                line=lines.get(rel, {}).get("connection", 0)))
     return findings
 
 
