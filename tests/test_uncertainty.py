@@ -308,3 +308,30 @@ def test_page_numbers_follow_the_general_format_with_a_dash_and_infinity():
     assert list(fmt_all(np.array(values))) == expected
     assert list(fmt_all(pd.Series([1.5, None, "n/a"], dtype=object))) == ["1.5", "—", "n/a"]
     assert list(fmt_all(np.array([3, 3, 12345]), 3)) == ["3", "3", "1.23e+04"]
+
+
+@pytest.mark.parametrize("rule", ["simple", "guarded"])
+def test_a_reading_beyond_the_largest_range_has_no_u_and_a_warning(tmp_path, run_folder, rule):
+    """A 30 mA reading on the fixture meter whose only current range is 20 mA: 30 > 20 × (1 + 10 %
+    over-range allowance), so its specification does not cover the reading (common practice: a meter's
+    accuracy is stated for readings within its range). The point has no U, a warning says why (under
+    any rule), and the other points are judged."""
+    points = good_points(0.0)
+    points[-1] = ("100 %", "30.000 mA")
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(as_found=points)},
+                        config=f'as_of = 2026-11-30\n[decision]\nrule = "{rule}"\n')
+    ctx = run_folder(ev)
+    found = [f for f in ctx.findings if f.code == "uncertainty-incomplete"]
+    assert len(found) == 1 and found[0].severity == "warning" and "largest range" in found[0].message
+    assert found[0].point == "as_found #5"
+    assert math.isnan(ctx.points["U"].iloc[-1]) and ctx.points["U"].iloc[:-1].notna().all()
+    assert list(ctx.tests["valid"]) == [True]
+
+
+def test_a_reading_within_the_over_range_allowance_keeps_its_u(tmp_path, run_folder):
+    """21.5 mA on a 20 mA range is within the 10 % allowance (meters read a little past the nominal
+    range, common practice), so it keeps its budget."""
+    points = good_points(0.0)
+    points[-1] = ("100 %", "21.500 mA")
+    ctx = run_folder(write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(as_found=points)}))
+    assert ctx.points["U"].notna().all()

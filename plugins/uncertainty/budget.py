@@ -46,6 +46,12 @@ UNEVALUATED = ("a budget term could not be evaluated (infinite slope, e.g. at th
 #: how far past its nominal value a range is taken to read (a 2 V range showing 2.0016 V); beyond
 #: this a finer-digit range is not believed (an assumption, not a published figure)
 OVER_RANGE = 0.10
+#: a reading beyond the meter's largest range of its kind by more than :data:`OVER_RANGE`: the
+#: meter's specification does not cover it, so the point gets no U (a warning, as the issue asks)
+BEYOND_RANGE = ("the reading is beyond the meter's largest range of its kind by more than the over-range "
+                f"allowance ({OVER_RANGE:.0%}): its specification does not cover the reading")
+#: budget problems that are warnings under every rule (not a fault of the evidence's bookkeeping)
+WARN_ONLY = (UNEVALUATED, BEYOND_RANGE)
 #: methods whose reading comes from a control system, not from the test meter
 NO_METER = ("display",)
 #: methods that need the test meter; any other method uses it only when the test names a meter
@@ -246,6 +252,9 @@ def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFr
     picked = pick_ranges(ctx, metered)
     lack(uses_meter & pts["meter"].notna() & picked["range_value"].reindex(pts.index).isna(),
          "the meter has no range in instruments.yaml for the reading's unit")
+    reach = (picked["range_value"] * (1.0 + OVER_RANGE)).fillna(np.inf)  # no range: another problem's
+    beyond = metered["reading"].abs().fillna(0.0) > reach
+    lack(pts.index.isin(beyond.index[beyond]), BEYOND_RANGE)
     ok = picked["range_value"].notna() & picked["accuracy"].notna()
     for (spec_text, unit), idx in picked[ok].assign(unit=metered["reading_unit"]).groupby(
             ["accuracy", "unit"], sort=False).groups.items():

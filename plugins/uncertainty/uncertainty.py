@@ -6,7 +6,8 @@ The components and formulas are in :mod:`loopledger.plugins.uncertainty.budget`.
 
 A point whose budget lacks a main term (no meter range holding the reading, no source
 specification, a shunt without tolerance) gets no U: a warning under the ``simple`` rule, an
-error that makes the file invalid under a rule that needs U.
+error that makes the file invalid under a rule that needs U. A reading beyond the meter's
+largest range of its kind (by more than the over-range allowance) gets no U and a warning.
 """
 
 from __future__ import annotations
@@ -58,7 +59,7 @@ def stage(ctx: RunContext) -> list[Finding]:
     first = lacking.drop_duplicates(["source_file", "problem"]).join(counts, on=["source_file", "problem"])
     for r in first.itertuples():
         more = f" (and {r.n_points - 1} more point(s))" if r.n_points > 1 else ""
-        severity = warning if r.problem == budget.UNEVALUATED else make
+        severity = warning if r.problem in budget.WARN_ONLY else make
         findings.append(severity(f"no uncertainty: {r.problem}{more}", file=str(r.source_file), line=int(r.line),
                              point=f"{r.phase} #{r.point}", field="instruments", code="uncertainty-incomplete"))
     no_ambient = pts[(pts["method"] == "shunt") & pd.to_numeric(pts["ambient_c"], errors="coerce").isna()]
