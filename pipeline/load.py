@@ -14,7 +14,7 @@ from loopledger.contracts import SourceFile
 from loopledger.findings import Finding, error, warning
 
 HEADER_FIELDS = ("asset", "date", "technician", "connection", "method", "injection", "ambient_c",
-                 "source", "meter", "shunt", "remarks", "cjc_c")
+                 "source", "meter", "shunt", "remarks", "cjc_c", "cjc_u", "cjc_probe")
 POINT_FIELDS = ("input", "reading", "readings", "reading_min", "reading_max", "direction")
 TEST_COLUMNS = ("test", "source_file", "sha256", "valid", *HEADER_FIELDS)
 POINT_COLUMNS = ("test", "source_file", "line", "phase", "point", *POINT_FIELDS)

@@ -2,7 +2,7 @@
 
 ```yaml
 DMM-1:
-  kind: meter                 # source | meter | shunt
+  kind: meter                 # source | meter | shunt | probe
   description: Handheld multimeter
   serial: "4417021"
   calibrated: 2026-01-12
@@ -20,6 +20,9 @@ SH-100:
   tolerance: 0.01 %
   tempco: 5 ppm/K
   reference_temperature: 23 degC
+CJ-1:
+  kind: probe                 # a cold-junction temperature probe (cjc_probe in a result file)
+  accuracy: 0.2 degC          # a rectangular half-width
 ```
 """
 
@@ -33,7 +36,7 @@ class InstrumentsTable(pa.DataFrameModel):
     """One row per instrument (instruments.yaml flattened)."""
 
     instrument: Series[str] = pa.Field(unique=True, str_matches=r"^[^\x00-\x1f\x7f/\\]+$")
-    kind: Series[str] = pa.Field(isin=["source", "meter", "shunt"])
+    kind: Series[str] = pa.Field(isin=["source", "meter", "shunt", "probe"])
     description: Series[str] = pa.Field(nullable=True)
     serial: Series[str] = pa.Field(nullable=True)
     calibrated: Series[pa.DateTime] = pa.Field(nullable=True)

@@ -7,7 +7,11 @@ A result file is YAML, CSV or .xlsx; README shows each. Fields:
   display, or one a plugin adds), ``injection`` (secondary | primary),
   ``ambient_c``, instruments ``source`` / ``meter`` / ``shunt``, ``remarks``
   (Markdown), ``cjc_c`` (the reference-junction temperature at a thermocouple
-  transmitter's terminals, °C, for inputs written in mV);
+  transmitter's terminals, °C, for inputs written in mV), ``cjc_u`` (how well ``cjc_c``
+  is known: ``0.2 degC`` is a standard uncertainty; ``0.5 degC rectangular`` or
+  ``0.5 degC triangular`` a half-width with its distribution), instrument ``cjc_probe``
+  (a ``probe`` in instruments.yaml whose ``accuracy`` is a rectangular half-width; used
+  when ``cjc_u`` is not given);
 - points, under ``as_found`` / ``as_left``: ``input`` (``25 %`` of range or a
   quantity such as ``0.5 A``), ``reading`` (a quantity such as ``0.4011 V``),
   or ``readings`` (repeats), or ``reading_min`` + ``reading_max`` (an unsteady
@@ -53,6 +57,8 @@ class TestHeader(pa.DataFrameModel):
     shunt: Series[str] = pa.Field(nullable=True)
     remarks: Series[str] = pa.Field(nullable=True)
     cjc_c: Series[float] = pa.Field(nullable=True, ge=-60, le=150)
+    cjc_u: Series[str] = pa.Field(nullable=True)
+    cjc_probe: Series[str] = pa.Field(nullable=True)
 
     @pa.check("date", error="a real date written YYYY-MM-DD")
     def date_is_iso(cls, series):  # type: ignore[no-untyped-def]

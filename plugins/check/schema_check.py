@@ -21,7 +21,7 @@ from loopledger.validation import validate
 #: the earliest test date taken as real (a bound of our own, well before 4-20 mA loops were in use;
 #: a year 0001 once reached date arithmetic that cannot hold it)
 EARLIEST = dt.date(1950, 1, 1)
-INSTRUMENT_KIND = {"source": "source", "meter": "meter", "shunt": "shunt"}
+INSTRUMENT_KIND = {"source": "source", "meter": "meter", "shunt": "shunt", "cjc_probe": "probe"}
 
 
 def check_tests(ctx: RunContext) -> list[Finding]:
@@ -35,7 +35,8 @@ def check_tests(ctx: RunContext) -> list[Finding]:
     valid["injection"] = valid["injection"].fillna("secondary")
     valid["date"] = valid["date"].map(lambda d: d.isoformat() if isinstance(d, dt.date) else d)
     lines = ctx.stash.get(keys.HEADER_LINES, {})
-    for col in ("asset", "technician", "method", "connection", "source", "meter", "shunt", "remarks"):
+    for col in ("asset", "technician", "method", "connection", "source", "meter", "shunt", "remarks", "cjc_u",
+                "cjc_probe"):
         valid[col] = valid[col].map(lambda v: None if v is None or (isinstance(v, float) and np.isnan(v))
                                     else str(v))
 
@@ -85,8 +86,9 @@ def _check_references(ctx: RunContext, tests: pd.DataFrame, lines: dict[str, dic
     methods = sorted(ctx.methods)
     kinds = ctx.instruments["kind"].to_dict() if not ctx.instruments.empty else {}
     near_instrument = _Near(set(kinds))
-    roles = ("source", "meter", "shunt")
-    columns = [tests[c].tolist() for c in ("source_file", "asset", "method", *roles)]  # not row objects: 20k rows
+    roles = ("source", "meter", "shunt", "cjc_probe")
+    columns = [tests[c].tolist() if c in tests.columns else [None] * len(tests)
+               for c in ("source_file", "asset", "method", *roles)]  # not row objects: 20k rows
     for rel, asset, method, *idents in zip(*columns, strict=True):
         at = lines.get(rel, {})
         if asset in ctx.rejected_assets:

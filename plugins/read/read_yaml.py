@@ -16,7 +16,7 @@ from loopledger.textio import AliasBomb, DuplicateKey, compose, decode, key_line
 
 PHASES = ("as_found", "as_left")
 _SPLIT_NUMBER = re.compile(r"^\d+(\s*\S+)?$")
-INSTRUMENT_ROLES = ("source", "meter", "shunt")
+INSTRUMENT_ROLES = ("source", "meter", "shunt", "cjc_probe")
 _SCALAR = (str, int, float, dt.date)
 
 

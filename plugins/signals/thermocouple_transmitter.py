@@ -9,7 +9,9 @@ E(t) = E_injected + E(t_cj), where t_cj is the reference-junction temperature
 recorded in the result file's ``cjc_c`` header field. E is the IEC 60584-1
 reference function of the asset's ``tc_type`` (``plugins/thermocouple.py``).
 For millivolt inputs ``injected`` is the emf and the sensitivity is
-(output span / input span) / (dE/dt at t).
+(output span / input span) / (dE/dt at t). Since t depends on t_cj through E(t_cj), such a
+point also gets ``cjc_sensitivity`` = sensitivity × dE/dt at t_cj (output per °C at the cold
+junction), which carries ``cjc_u`` (or the ``cjc_probe``'s accuracy) into the budget.
 """
 
 from __future__ import annotations
@@ -50,6 +52,8 @@ class ThermocoupleTransmitter(SignalType):
         with np.errstate(divide="ignore", invalid="ignore"):
             dt_de = 1.0 / thermocouple.seebeck(t, kind.where(rows))
         frame, more = scaling.evaluate_via(points, via, t, "degC", mv, "mV", dt_de)
+        # d output / d t_cj = d output / d E × dE/dt at the cold junction (the emf added for it)
+        frame["cjc_sensitivity"] = frame["sensitivity"] * thermocouple.seebeck(cjc.where(rows), kind.where(rows))
         ctx.stash.setdefault(keys.TEST_EXPORTS, []).append("cjc_c")
         return frame, findings + more
 

@@ -15,6 +15,10 @@ freedom (infinite for type B). Components:
   characteristic's d output / d input (the ``sensitivity`` column of the point table);
 - ``repeatability``: type A, s/√n with n − 1 degrees of freedom;
 - ``unsteady reading``: half the min/max spread, rectangular;
+- ``cold junction``: for a thermocouple transmitter fed in mV, how well the reference-junction
+  temperature ``cjc_c`` is known (``cjc_u`` in the result file, or the accuracy of its
+  ``cjc_probe``), carried by d output / d t_cj = sensitivity × dE/dt at t_cj (the
+  ``cjc_sensitivity`` column the signal type gives);
 - ``display resolution`` (the last digit written, or ``display_resolution``) for a reading taken
   from the control system (``display``, or a plugin's method used without a meter) and
   ``display accuracy`` for the ``display`` method.
@@ -226,7 +230,30 @@ def written_resolution(text: pd.Series) -> pd.Series:
 #: the point columns :func:`compute` reads once the reading methods have given their sensitivity
 BUDGET_COLUMNS = ["method", "meter", "source", "shunt", "reading", "reading_unit", "reading_text", "measured",
                   "ambient_c", "injected", "injected_unit", "sensitivity", "n_readings", "reading_sd",
-                  "reading_half_spread", "display_resolution", "display_accuracy", "display_min", "display_max"]
+                  "reading_half_spread", "display_resolution", "display_accuracy", "display_min", "display_max",
+                  "cjc_sensitivity", "cjc_u", "cjc_probe"]
+#: the divisor of each distribution a ``cjc_u`` may name (GUM 4.3.7, 4.3.9); none named: a standard uncertainty
+CJC_DIVISORS = {"rectangular": SQRT3, "triangular": math.sqrt(6.0), "normal": 1.0}
+
+
+def cjc_spec(text: Any) -> tuple[float, float, str]:
+    """(half-width in °C, divisor, distribution) of a ``cjc_u``: ``0.2 degC`` (or a bare number of °C) is a
+    standard uncertainty; ``0.5 degC rectangular`` / ``triangular`` a half-width. ValueError if unreadable."""
+    words = str(text).strip().split()
+    shape = words[-1].lower() if words and words[-1].lower() in CJC_DIVISORS else ""
+    body = " ".join(words[:-1] if shape else words)
+    try:
+        value, scale = float(body), 1.0
+    except ValueError:
+        parsed = q.parse_one(body)
+        ab = q.affine(parsed.unit, "degC")
+        if ab is None:
+            raise ValueError(f"'{text}' is not a temperature difference") from None
+        value, scale = parsed.value, ab[0]
+    if not math.isfinite(value) or value < 0:
+        raise ValueError(f"'{text}' is not a non-negative uncertainty")
+    return value * scale, CJC_DIVISORS.get(shape, 1.0), shape or "normal"
+
 
 
 def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame, pd.Series]:
@@ -320,6 +347,10 @@ def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFr
             continue
         terms.append(_term(idx, "source", "rectangular", half, unit, SQRT3, rows["sensitivity"]))
 
+    # --- the cold junction of a thermocouple transmitter fed in mV
+    if "cjc_sensitivity" in pts.columns:
+        _cold_junction(ctx, pts, terms, lack)
+
     # --- what the readings themselves show
     rep = pts["n_readings"].astype(int).gt(1) & pts["reading_sd"].notna()
     idx = pts.index[rep]
@@ -362,6 +393,29 @@ def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFr
     bad = problems.notna()
     per.loc[bad, ["u", "U", "k", "nu_eff"]] = np.nan
     return table[TERM_COLUMNS], per, problems
+
+
+def _cold_junction(ctx: RunContext, pts: pd.DataFrame, terms: list[pd.DataFrame], lack: Any) -> None:
+    """The ``cold junction`` term: ``cjc_u`` where given, else the ``cjc_probe``'s accuracy (rectangular)."""
+    slope = pd.to_numeric(pts["cjc_sensitivity"], errors="coerce")
+    given = pts["cjc_u"] if "cjc_u" in pts.columns else pd.Series(None, index=pts.index, dtype=object)
+    probe = pts["cjc_probe"] if "cjc_probe" in pts.columns else pd.Series(None, index=pts.index, dtype=object)
+    texts = given.where(given.notna(), _instrument(ctx, probe, "accuracy"))
+    shape = pd.Series(np.where(given.notna(), "", " rectangular"), index=pts.index)
+    lack(slope.notna() & given.isna() & probe.notna() & texts.isna(),
+         "the cjc_probe has no accuracy in instruments.yaml")
+    wanted = slope.notna() & texts.notna()
+    for (text, extra), idx in pd.DataFrame({"t": texts.astype(str), "x": shape})[wanted].groupby(
+            ["t", "x"], sort=False).groups.items():
+        try:
+            half, divisor, distribution = cjc_spec(str(text) + str(extra) if extra and
+                                                   str(text).split()[-1] not in CJC_DIVISORS else str(text))
+        except ValueError:
+            lack(pts.index.isin(idx), f"the cold-junction uncertainty '{text}' cannot be read (e.g. 0.2 degC, or "
+                                      "0.5 degC rectangular)")
+            continue
+        terms.append(_term(idx, "cold junction", distribution, np.full(len(idx), half), "degC", divisor,
+                           slope[idx]))
 
 
 def combine(table: pd.DataFrame, index: pd.Index) -> pd.DataFrame:

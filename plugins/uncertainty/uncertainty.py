@@ -66,7 +66,23 @@ def stage(ctx: RunContext) -> list[Finding]:
     for rel in pd.unique(no_ambient["source_file"]):
         findings.append(warning("ambient_c not recorded: the shunt's temperature-coefficient term is left out of "
                                 "the uncertainty budget", file=str(rel), field="ambient_c", code="no-ambient"))
+    no_cjc = pts[_needs_cjc(pts)]
+    for rel in pd.unique(no_cjc["source_file"]):
+        findings.append(warning("the cold-junction term is missing from the uncertainty budget: give cjc_u (e.g. "
+                                "0.2 degC, or 0.5 degC rectangular) or a cjc_probe from instruments.yaml",
+                                file=str(rel), field="cjc_u", code="no-cjc-u"))
     return findings
+
+
+def _needs_cjc(pts: pd.DataFrame) -> pd.Series:
+    """Points whose expected value depends on cjc_c but whose budget has nothing on how well it was known."""
+    if "cjc_sensitivity" not in pts.columns:
+        return pd.Series(False, index=pts.index)
+    named = pd.Series(False, index=pts.index)
+    for col in ("cjc_u", "cjc_probe"):
+        if col in pts.columns:
+            named |= pts[col].notna()
+    return pd.to_numeric(pts["cjc_sensitivity"], errors="coerce").notna() & ~named
 
 
 def fmt(value: object, digits: int = 4) -> str:
