@@ -35,25 +35,52 @@ class _Columns(pa.DataFrameModel):
         coerce = True
 
 
+#: accuracy classes of measuring CTs (IEC 61869-2) and inductive VTs (IEC 61869-3), from memory
+CT_CLASSES = ["0.1", "0.2", "0.5", "1", "3", "5"]
+VT_CLASSES = ["0.1", "0.2", "0.5", "1", "3"]
+
+
+def class_ok(series, known):  # type: ignore[no-untyped-def]
+    """Blank, or a number that is one of the ``known`` classes (``0.50`` is ``0.5``)."""
+    import pandas as pd
+
+    number = pd.to_numeric(series, errors="coerce")
+    return series.isna() | number.map(lambda v: f"{v:g}" in known, na_action="ignore").fillna(False).astype(bool)
+
+
+class CurrentTransducerColumns(_Columns):
+    """``current-transducer``: ``ct_ratio`` for primary injection and the CT's ``ct_class``."""
+
+    ct_ratio: Series[str] = pa.Field(nullable=True)
+    ct_class: Series[str] = pa.Field(nullable=True)
+
+    @pa.check("ct_ratio", error=RATIO_ERROR)
+    def ct_ratio_ok(cls, col):  # type: ignore[no-untyped-def]
+        return ratio_ok(col)
+
+    @pa.check("ct_class", error=f"must be a measuring CT accuracy class (IEC 61869-2): {', '.join(CT_CLASSES)}")
+    def ct_class_ok(cls, col):  # type: ignore[no-untyped-def]
+        return class_ok(col, CT_CLASSES)
+
+
 class VoltageTransducerColumns(_Columns):
-    """``voltage-transducer``: ``vt_ratio`` (e.g. ``11000/110``) for primary injection."""
+    """``voltage-transducer``: ``vt_ratio`` (e.g. ``11000/110``) for primary injection, and ``vt_class``."""
 
     vt_ratio: Series[str] = pa.Field(nullable=True)
+    vt_class: Series[str] = pa.Field(nullable=True)
 
     @pa.check("vt_ratio", error=RATIO_ERROR)
     def vt_ratio_ok(cls, col):  # type: ignore[no-untyped-def]
         return ratio_ok(col)
 
+    @pa.check("vt_class", error=f"must be a VT accuracy class (IEC 61869-3): {', '.join(VT_CLASSES)}")
+    def vt_class_ok(cls, col):  # type: ignore[no-untyped-def]
+        return class_ok(col, VT_CLASSES)
 
-class PowerTransducerColumns(_Columns):
-    """``power-transducer``: ``ct_ratio`` and ``vt_ratio``; primary power = secondary × both."""
 
-    ct_ratio: Series[str] = pa.Field(nullable=True)
-    vt_ratio: Series[str] = pa.Field(nullable=True)
-
-    @pa.check("ct_ratio", "vt_ratio", error=RATIO_ERROR)
-    def ratios_ok(cls, col):  # type: ignore[no-untyped-def]
-        return ratio_ok(col)
+class PowerTransducerColumns(CurrentTransducerColumns, VoltageTransducerColumns):
+    """``power-transducer``: ``ct_ratio`` and ``vt_ratio``; primary power = secondary × both; ``ct_class`` and
+    ``vt_class`` (the columns and checks of both transducers above)."""
 
 
 class ProcessTransmitterColumns(_Columns):

@@ -5,7 +5,11 @@ power: the range arithmetic is the same linear map as any other transducer
 (``plugins/scaling.py``), applied to a range that straddles zero. Inputs are
 written as power (``-250 kW``; ``kvar`` for reactive power) or as % of range. With ``injection: primary``
 the written power is primary power, divided by ``ct_ratio`` × ``vt_ratio`` (a blank
-one of the two counts as 1, e.g. a low-voltage transducer wired direct to the busbar).
+one of the two counts as 1, e.g. a low-voltage transducer wired direct to the busbar). The ratio-error
+limits of ``ct_class`` and ``vt_class`` enter the budget (:mod:`.transformers`); for the CT's limit
+the current is taken as the input's % of the larger end of the transducer's range (our assumption:
+the range matches the CT's rated current at rated voltage and unity power factor). The transformers'
+phase displacement, which moves power through the power factor, is left out, and the budget says so.
 
 Active power (W), reactive power (var) and apparent power (VA) are different quantities in one SI unit
 (IEC 80000-6 gives each its name; from memory), so pint converts between them freely. An input written
@@ -23,6 +27,7 @@ from loopledger.context import RunContext
 from loopledger.contracts import SignalType
 from loopledger.findings import Finding, warning
 from loopledger.hookspecs import hookimpl
+from loopledger.plugins.signals import transformers
 from loopledger.plugins.signals.voltage_transducer import primary_scale
 from loopledger.schemas.signals import PowerTransducerColumns
 
@@ -34,7 +39,9 @@ class PowerTransducer(SignalType):
     input_units = ("W",)
     asset_columns = {"ct_ratio": "current-transformer ratio (primary injection)",
                      "vt_ratio": "voltage-transformer ratio (primary injection); primary power = "
-                                 "secondary power × ct_ratio × vt_ratio"}
+                                 "secondary power × ct_ratio × vt_ratio",
+                     "ct_class": "the CT's accuracy class (IEC 61869-2), for its ratio error under primary injection",
+                     "vt_class": "the VT's accuracy class (IEC 61869-3), for its ratio error under primary injection"}
 
     def evaluate(self, points: pd.DataFrame, ctx: RunContext) -> tuple[pd.DataFrame, list[Finding]]:
         cols, findings = asset_columns.check(points, PowerTransducerColumns)
@@ -42,7 +49,16 @@ class PowerTransducer(SignalType):
         ratio = (ct.fillna(1.0) * vt.fillna(1.0)).where(ct.notna() | vt.notna())
         scale, more = primary_scale(points, ratio, "ct_ratio and vt_ratio")
         frame, rest = scaling.linear_evaluate(points, scale)
-        return frame, findings + more + rest + _other_kind_of_power(points)
+        through = (points["injection"] == "primary") & ct.notna()
+        ends = points[["input_min", "input_max"]].astype(float).abs().max(axis=1) * scale
+        pct = frame["injected"].abs() / ends * 100.0
+        ct_pct, ct_blank = transformers.ct_error(points[through], frame["injected"][through],
+                                                 cols["ct_class"][through], pct[through])
+        frame["ct_error_pct"] = ct_pct.reindex(points.index)
+        through = (points["injection"] == "primary") & vt.notna()
+        vt_pct, vt_blank = transformers.vt_error(points[through], cols["vt_class"][through])
+        frame["vt_error_pct"] = vt_pct.reindex(points.index)
+        return frame, findings + more + rest + ct_blank + vt_blank + _other_kind_of_power(points)
 
 
 #: the power a unit name stands for; a name matching none (a unit pint spells otherwise) is not compared

@@ -19,6 +19,10 @@ freedom (infinite for type B). Components:
   temperature ``cjc_c`` is known (``cjc_u`` in the result file, or the accuracy of its
   ``cjc_probe``), carried by d output / d t_cj = sensitivity × dE/dt at t_cj (the
   ``cjc_sensitivity`` column the signal type gives);
+- ``CT ratio error`` / ``VT ratio error``: under primary injection, the ratio-error limit of the
+  transformer's accuracy class at the injected value (``ct_error_pct`` / ``vt_error_pct`` from the
+  signal type, % of the injected value), rectangular, carried like the source; for a power
+  transducer the component says that phase displacement is left out;
 - ``display resolution`` (the last digit written, or ``display_resolution``) for a reading taken
   from the control system (``display``, or a plugin's method used without a meter) and
   ``display accuracy`` for the ``display`` method.
@@ -231,7 +235,7 @@ def written_resolution(text: pd.Series) -> pd.Series:
 BUDGET_COLUMNS = ["method", "meter", "source", "shunt", "reading", "reading_unit", "reading_text", "measured",
                   "ambient_c", "injected", "injected_unit", "sensitivity", "n_readings", "reading_sd",
                   "reading_half_spread", "display_resolution", "display_accuracy", "display_min", "display_max",
-                  "cjc_sensitivity", "cjc_u", "cjc_probe"]
+                  "cjc_sensitivity", "cjc_u", "cjc_probe", "ct_error_pct", "vt_error_pct", "signal"]
 #: the divisor of each distribution a ``cjc_u`` may name (GUM 4.3.7, 4.3.9); none named: a standard uncertainty
 CJC_DIVISORS = {"rectangular": SQRT3, "triangular": math.sqrt(6.0), "normal": 1.0}
 
@@ -346,6 +350,19 @@ def compute(ctx: RunContext, pts: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFr
             lack(pts.index.isin(idx), f"source accuracy '{acc}' (range '{rng}') cannot be applied in {unit}")
             continue
         terms.append(_term(idx, "source", "rectangular", half, unit, SQRT3, rows["sensitivity"]))
+
+    # --- the instrument transformers under primary injection (IEC 61869-2 / -3 ratio-error limits)
+    for column, name in (("ct_error_pct", "CT ratio error"), ("vt_error_pct", "VT ratio error")):
+        if column not in pts.columns:
+            continue
+        limit = pd.to_numeric(pts[column], errors="coerce")
+        is_power = pts["signal"].eq("power-transducer") if "signal" in pts.columns else \
+            pd.Series(False, index=pts.index)
+        for power, idx in is_power[limit.notna()].groupby(is_power[limit.notna()]).groups.items():
+            rows = pts.loc[idx]
+            label = name + (" (phase displacement left out)" if power else "")
+            terms.append(_term(idx, label, "rectangular", limit[idx] / 100.0 * rows["injected"].abs(),
+                               rows["injected_unit"], SQRT3, rows["sensitivity"]))
 
     # --- the cold junction of a thermocouple transmitter fed in mV
     if "cjc_sensitivity" in pts.columns:
