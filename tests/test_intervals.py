@@ -142,8 +142,13 @@ class _FixedU:
 
 
 def test_false_accept_per_test_where_u_exists_and_flag_above_2_percent(tmp_path, pm, run_folder):
-    """The prior is the signal type's as-found reliability before the test: none for the first test, 1 of 1
-    for the second, 1 of 2 for the third (the second failed as found)."""
+    """The prior is the signal type's in-tolerance probability before the test: none for the first test, from
+    1 of 1 for the second, 1 of 2 for the third (the second failed as found). prior_min_count = 1 here so that
+    three files give priors at all.
+
+    issue 22: this test once pinned the raw ratio k / n as the prior (1 of 1 → 100 %, clipped to 99.99 %);
+    it now pins the mean of the Beta(1 + k, 1 + n − k) posterior, (k + 1) / (n + 2): 2/3 for 1 of 1, 1/2
+    for 1 of 2 (the Beta-binomial posterior mean, checked below with scipy.stats.beta)."""
     ev = write_evidence(tmp_path / "ev", {
         "a.yaml": result_yaml(date="2024-01-10", as_found=good_points(0.02)),
         "b.yaml": result_yaml(date="2025-01-10", as_found=good_points(0.10), as_left=good_points(0.0)),
@@ -153,27 +158,32 @@ def test_false_accept_per_test_where_u_exists_and_flag_above_2_percent(tmp_path,
     plain = run_folder(ev)
     assert "global_false_accept" not in plain.tests.columns  # no U: the column is simply absent
     pm.register(_FixedU())
-    ctx = run_folder(ev)
+    ctx = run_folder(ev, intervals={"prior_min_count": 1})
     by_file = ctx.tests.set_index("source_file")["global_false_accept"]
-    expected = float(intervals.global_false_accept(0.08, 0.08, 0.04, 0.5))  # EOPR 1 of 2 before c
+    assert stats.beta(1 + 1, 1 + 1).mean() == pytest.approx(0.5) and stats.beta(2, 1).mean() == pytest.approx(2 / 3)
+    expected = float(intervals.global_false_accept(0.08, 0.08, 0.04, 0.5))  # 1 of 2 before c: Beta(2, 2), mean 1/2
     assert by_file["results/c.yaml"] == pytest.approx(expected)
-    assert by_file["results/b.yaml"] == pytest.approx(float(intervals.global_false_accept(0.08, 0.08, 0.04, 1.0)))
+    b_value = float(intervals.global_false_accept(0.08, 0.08, 0.04, 2 / 3))  # 1 of 1 before b: Beta(2, 1)
+    assert by_file["results/b.yaml"] == pytest.approx(b_value)
     assert np.isnan(by_file["results/a.yaml"])  # nothing before it to set a prior
     counts = ctx.tests.set_index("source_file")[["prior_n", "prior_in_tolerance"]]
     files = ["results/a.yaml", "results/b.yaml", "results/c.yaml"]
     assert counts.loc[files].values.tolist() == [[0, 0], [1, 1], [2, 1]]
-    assert expected > 0.02 > by_file["results/b.yaml"]
+    # issue 22: with the prior 2/3 (not 99.99 %) b's probability is above 2 % as well, so both are flagged
+    assert expected > 0.02 and by_file["results/b.yaml"] > 0.02
     flagged = [f.file for f in ctx.findings if f.code == "false-accept"]
-    assert flagged == ["results/c.yaml"]
+    assert flagged == ["results/b.yaml", "results/c.yaml"]
     ids = ctx.tests.set_index("source_file")["test"]
     pages = batch_and_alone(intervals.ll_test_sections, ctx, list(ctx.tests["test"]))
     assert [tuple(r) for r in pages[ids["results/c.yaml"]][0].rows] == [
         ("Probability (bivariate normal model)", f"{expected:.2%}"),
-        ("Prior: the signal type's as-found reliability", "50.0% (1 of 2 as-found results before the test)"),
+        ("Prior: the signal type's in-tolerance probability",
+         f"50.0% (Beta(1, 1) prior updated with 1 of 2 as-found results before the test; 95 % interval "
+         f"{stats.beta(2, 2).ppf(0.025):.1%} to {stats.beta(2, 2).ppf(0.975):.1%})"),
         ("Target", "≤ 2% — exceeded")]
     assert [tuple(r) for r in pages[ids["results/a.yaml"]][0].rows] == [
         ("Probability (bivariate normal model)", "— (not worked out)"),
-        ("Prior: the signal type's as-found reliability", "none (no earlier as-found result of its signal type)"),
+        ("Prior: the signal type's in-tolerance probability", "none (no earlier as-found result of its signal type)"),
         ("Target", "—")]
 
 
@@ -234,3 +244,17 @@ def test_cli_writes_assets_csv(tmp_path):
     assert float(row["recommended_interval_months"]) == 18  # 0.01 of 0.08 mA found: 12 × 1.5
     page = (tmp_path / "out" / "handbook" / "assets" / "T-CT1.html").read_text(encoding="utf-8")
     assert "Recommended interval" in page and "18 months (staircase)" in page
+
+
+def test_bayesian_prior_needs_a_minimum_count_and_shows_its_interval():
+    """Beta(1, 1) prior on the in-tolerance rate, updated with k of n: posterior Beta(1 + k, 1 + n − k), mean
+    (k + 1)/(n + 2), 95 % equal-tailed interval from scipy.stats.beta.ppf. Below the minimum count there is
+    no prior (issue 22: one earlier pass once gave a 99.99 % prior and a 3 × 10⁻⁵ probability)."""
+    got = intervals.bayes_prior([1, 5, 20, 20], [1, 5, 19, 20], 5)
+    assert got["mean"].isna().tolist() == [True, False, False, False]
+    for row, (n, k) in zip(range(1, 4), [(5, 5), (20, 19), (20, 20)], strict=True):
+        post = stats.beta(1 + k, 1 + n - k)
+        assert got.at[row, "mean"] == pytest.approx(post.mean(), rel=1e-12)
+        assert got.at[row, "low"] == pytest.approx(post.ppf(0.025), rel=1e-9)
+        assert got.at[row, "high"] == pytest.approx(post.ppf(0.975), rel=1e-9)
+    assert "at least 5" in intervals.prior_text(1, 1, float("nan"), float("nan"), float("nan"), 5)

@@ -20,10 +20,15 @@
   the test's value is the largest over the points of the phase that decided it;
   above ``false_accept_limit`` (default 0.02, the ANSI/NCSL Z540.3 §5.3 target)
   it is flagged.
-- The prior is the EOPR of the test's signal type as it stood before the test:
-  over the valid as-found results dated before the test's date (none: no
-  probability). So a test's figure is what could have been worked out on its
-  day, and a later test never changes an earlier test's evidence. (Our choice:
+- The prior is the in-tolerance probability of the test's signal type as it
+  stood before the test, estimated from the k of n valid as-found results dated
+  before the test's date: the mean of the Beta(1 + k, 1 + n − k) posterior,
+  i.e. a uniform Beta(1, 1) prior on the in-tolerance rate, (k + 1) / (n + 2),
+  with its 95 % credible interval shown beside it. Below ``prior_min_count``
+  earlier results (default 5, our choice) there is no prior and no
+  probability: one earlier pass (1 of 1) once made a 99.99 % prior. So a
+  test's figure is what could have been worked out on its day, and a later
+  test never changes an earlier test's evidence. (Our choice:
   the standards ask for the population's in-tolerance probability from its
   history without saying which history; a test entered late, dated before
   others, moves theirs.)
@@ -50,7 +55,7 @@ from loopledger.plugins.history import drift, history
 #: the factors are configurable; these defaults are ours (ILAC-G24 gives "e.g. 80 %" as the
 #: threshold, from memory, and no factors)
 DEFAULTS: dict[str, float] = {"extend_within": 0.8, "extend_factor": 1.25, "shorten_factor": 0.5,
-                              "min_months": 3, "max_months": 60, "false_accept_limit": 0.02}
+                              "min_months": 3, "max_months": 60, "false_accept_limit": 0.02, "prior_min_count": 5}
 MONTH_DAYS = 365.25 / 12
 #: EOPR is clipped into this range before it sets σ_p (0 and 1 make σ_p infinite or zero)
 EOPR_CLIP = (0.01, 0.9999)
@@ -170,6 +175,30 @@ def prior_reliability(tests: pd.DataFrame, assets: pd.DataFrame) -> pd.DataFrame
     return pd.DataFrame({"n": n, "in_tolerance": k, "eopr": ratio}, index=tests.index)
 
 
+def bayes_prior(n: Any, k: Any, min_count: float) -> pd.DataFrame:
+    """The in-tolerance probability from k of n results: posterior mean and 95 % credible interval of
+    Beta(1 + k, 1 + n − k) (a uniform Beta(1, 1) prior); NaN where n < ``min_count``."""
+    from scipy.special import betaincinv
+
+    n, k = np.asarray(n, dtype=float), np.asarray(k, dtype=float)
+    a, b = 1.0 + k, 1.0 + n - k
+    enough = n >= max(min_count, 1)
+    mean = np.where(enough, a / (a + b), np.nan)
+    low = np.where(enough, betaincinv(a, b, 0.025), np.nan)
+    high = np.where(enough, betaincinv(a, b, 0.975), np.nan)
+    return pd.DataFrame({"mean": mean, "low": low, "high": high})
+
+
+def prior_text(n: int, k: int, mean: float, low: float, high: float, min_count: float) -> str:
+    """What a test's page says of its prior."""
+    if n == 0:
+        return "none (no earlier as-found result of its signal type)"
+    if not mean == mean:
+        return f"none (only {n} earlier as-found result(s) of its signal type; at least {min_count:g} are needed)"
+    return (f"{mean:.1%} (Beta(1, 1) prior updated with {k} of {n} as-found results before the test; "
+            f"95 % interval {low:.1%} to {high:.1%})")
+
+
 def false_accept(ctx: RunContext, prior: pd.DataFrame, limit: float) -> tuple[pd.Series, list[Finding]]:
     """Each test's global false-accept probability (NaN without a ``U`` column or without a prior)."""
     tests = ctx.tests
@@ -181,7 +210,9 @@ def false_accept(ctx: RunContext, prior: pd.DataFrame, limit: float) -> tuple[pd
     deciding = pts[np.where(adjusted, pts["phase"] == "as_left", pts["phase"] == "as_found")]
     k = deciding["k"].astype(float) if "k" in deciding.columns else pd.Series(2.0, index=deciding.index)
     u = deciding["U"].astype(float) / k.fillna(2.0)
-    prior = deciding["test"].map(dict(zip(tests["test"].tolist(), prior["eopr"].tolist(), strict=True)))
+    # the prior's in-tolerance probability: ``p_in`` (Bayesian) where given, else the raw ratio
+    p_in = prior["p_in"] if "p_in" in prior.columns else prior["eopr"]
+    prior = deciding["test"].map(dict(zip(tests["test"].tolist(), p_in.tolist(), strict=True)))
     # the limit the verdicts actually used (the MPE when conditional passes are accepted), never a
     # narrower guard-banded limit the verdict did not apply
     limit_used = deciding["verdict_limit"] if "verdict_limit" in deciding.columns else deciding["acceptance_limit"]
@@ -273,18 +304,21 @@ def ll_history(ctx: RunContext) -> list[Finding]:
     if not ctx.tests.empty and "U" in ctx.points.columns:
         limit = float(cfg["false_accept_limit"])
         prior = prior_reliability(ctx.tests, ctx.assets)
+        bayes = bayes_prior(prior["n"], prior["in_tolerance"], float(cfg["prior_min_count"])).set_axis(prior.index)
+        prior["p_in"] = bayes["mean"]
         pfa, findings = false_accept(ctx, prior, limit)
         ctx.tests["global_false_accept"] = pfa
         ctx.fleet_only.add("tests.global_false_accept")
         ctx.tests["false_accept_shown"], ctx.tests["false_accept_over"] = shown(pfa, limit)
-        ctx.tests["false_accept_prior"] = [f"{e:.1%} ({k} of {n} as-found results before the test)" if n else
-                                           "none (no earlier as-found result of its signal type)"
-                                           for e, k, n in zip(prior["eopr"].tolist(), prior["in_tolerance"].tolist(),
-                                                              prior["n"].tolist(), strict=True)]
+        ctx.tests["false_accept_prior"] = [
+            prior_text(n, k, m, lo, hi, float(cfg["prior_min_count"]))
+            for n, k, m, lo, hi in zip(prior["n"].tolist(), prior["in_tolerance"].tolist(), bayes["mean"].tolist(),
+                                       bayes["low"].tolist(), bayes["high"].tolist(), strict=True)]
         # the prior's counts go out with the probability, so it can be worked again from tests.csv
         ctx.tests["prior_n"], ctx.tests["prior_in_tolerance"] = prior["n"], prior["in_tolerance"]
+        ctx.tests["prior_p_in"] = bayes["mean"]
         exports = ctx.stash.setdefault(keys.TEST_EXPORTS, [])
-        exports += ["global_false_accept", "prior_n", "prior_in_tolerance"]
+        exports += ["global_false_accept", "prior_n", "prior_in_tolerance", "prior_p_in"]
     return findings
 
 
@@ -320,7 +354,8 @@ def ll_configure(config: dict[str, Any]) -> list[Finding]:
                  (merged["shorten_factor"] <= 1, "shorten_factor must be ≤ 1"),
                  (merged["extend_within"] <= 1, "extend_within must be ≤ 1 (a fraction of the MPE)"),
                  (merged["min_months"] <= merged["max_months"], "min_months must be ≤ max_months"),
-                 (merged["false_accept_limit"] < 1, "false_accept_limit must be a probability below 1")]
+                 (merged["false_accept_limit"] < 1, "false_accept_limit must be a probability below 1"),
+                 (float(merged["prior_min_count"]) % 1 == 0, "prior_min_count must be a whole number")]
         found += [error(f"[intervals] {text}", file="loopledger.toml", field="intervals") for ok, text in rules
                   if not ok]
     return found
@@ -370,7 +405,8 @@ def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Sectio
     met = {False: f"≤ {limit:.0%} — met", True: f"≤ {limit:.0%} — exceeded"}
     return {str(test): [Section(title="Global false-accept probability", kind="facts", order=60, rows=[
         ("Probability (bivariate normal model)", text or "— (not worked out)"),
-        ("Prior: the signal type's as-found reliability", prior), ("Target", met[bool(over)] if text else "—")])]
+        ("Prior: the signal type's in-tolerance probability", prior),
+        ("Target", met[bool(over)] if text else "—")])]
         for test, text, prior, over in zip(mine["test"], mine["false_accept_shown"], mine["false_accept_prior"],
                                            mine["false_accept_over"], strict=True)}
 
@@ -387,6 +423,8 @@ def ll_fleet_sections(ctx: RunContext) -> list[Section]:
                     columns=["Signal type", "In tolerance as found", "Tests"], rows=rows),
             Section(title="EOPR as a prior", kind="text", order=21,
                     text="Each test's global false-accept probability takes as its prior its signal type's "
-                         "reliability as it stood before the test (the as-found results dated earlier), shown "
-                         "on the test's page; the figures above count every test to date. data/eopr.csv also "
+                         "in-tolerance probability as it stood before the test: a uniform Beta(1, 1) prior "
+                         "updated with the as-found results dated earlier, once there are at least "
+                         f"{settings(ctx)['prior_min_count']:g} of them, shown on the test's page with its count and "
+                         "95 % interval; the figures above count every test to date. data/eopr.csv also "
                          "gives them per description.")]
