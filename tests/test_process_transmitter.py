@@ -106,3 +106,14 @@ def test_square_root_at_zero_without_cut_off_gets_a_note(tmp_path, run_folder):
     assert len(notes) == 1 and notes[0].point == "as_found #1"
     assert list(ctx.tests["verdict"]) == ["pass"]
     assert ctx.points.set_index("point").at[1, "expected"] == pytest.approx(4.0)
+
+
+def test_a_point_exactly_at_the_cut_off_is_not_held(tmp_path, run_folder):
+    """README: the output is held at zero flow *below* the cut-off. With a 10 % cut-off, 1 % ΔP is exactly
+    10 % flow (Q ∝ √ΔP, common practice), so it follows the root: 4 + 16 × 0.1 = 5.6 mA. Before issue 22
+    rounding (√0.01 → 9.999999999999996 %) held it at 4 mA."""
+    rows = [dict(ASSETS[0], low_flow_cutoff_pct=10)]
+    ev = write_evidence(tmp_path / "ev", {"ft.yaml": result_doc("T-FT-DP", FLOW_POINTS)}, assets=rows)
+    ft = run_folder(ev).points.set_index("point")
+    assert ft.at[2, "expected"] == pytest.approx(5.6)
+    assert ft.at[2, "sensitivity"] > 0

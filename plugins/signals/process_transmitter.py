@@ -29,7 +29,8 @@ def apply_cutoff(frame: pd.DataFrame, points: pd.DataFrame, cutoff_pct: pd.Serie
     lo, hi = points["output_min"].astype(float), points["output_max"].astype(float)
     out_pct = (frame["expected"] - lo) / (hi - lo) * 100.0
     cut = cutoff_pct.fillna(0.0).astype(float)
-    below = (cut > 0) & (out_pct < cut)
+    # strictly below: a point at the cut-off (to rounding: √0.01 gives 9.999999999999996 %) is not held
+    below = (cut > 0) & (out_pct < cut) & ~np.isclose(out_pct, cut, rtol=1e-9, atol=1e-9)
     frame = frame.copy()
     frame["expected"] = np.where(below, lo, frame["expected"])
     frame["sensitivity"] = np.where(below, 0.0, frame["sensitivity"])
