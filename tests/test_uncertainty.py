@@ -227,18 +227,25 @@ def test_display_method_budget(tmp_path, run_folder):
     assert terms.at["display accuracy", "contribution"] == pytest.approx(0.00923760, rel=1e-5)
 
 
-def test_square_root_zero_gets_a_warning_not_an_invalid_file(tmp_path, run_folder):
+def test_square_root_zero_gets_a_monte_carlo_u_not_an_invalid_file(tmp_path, run_folder):
     """d√x/dx is infinite at x = 0 (calculus): the linear GUM propagation cannot carry the source
-    term there, so that point has no U and a warning, even under `guarded`; the rest are judged."""
+    term there. issue 22: this test once pinned "no U and a warning" for that point; the point is now
+    propagated by Monte Carlo (JCGM 101 §7), so it has a U, says which method gave it, and the file is
+    judged. The calibrator's 0.01 %rdg is zero at 0 A, so U there is the meter's alone: the GUM result
+    for the other terms (linear) must agree with the simulation to two significant digits."""
     asset = {**CT_ASSET, "characteristic": "sqrt"}
     points = [("0 %", "4.000 mA"), ("25 %", "12.000 mA"), ("100 %", "20.000 mA")]
     doc = result_yaml(as_found=points, instruments={"source": "CAL-1", "meter": "DMM-1"})
     ev = write_evidence(tmp_path / "ev", {"q.yaml": doc}, assets=[asset], instruments=RIG)
     ctx = run_folder(ev, decision={"rule": "guarded"})
-    found = [f for f in ctx.findings if f.code == "uncertainty-incomplete"]
-    assert len(found) == 1 and found[0].severity == "warning" and found[0].point == "as_found #1"
-    assert ctx.points["U"].isna().tolist() == [True, False, False]
+    assert not [f for f in ctx.findings if f.code == "uncertainty-incomplete"]
+    assert ctx.points["U"].notna().all()
+    assert ctx.points["u_method"].tolist()[0] == "Monte Carlo (JCGM 101)"
     assert list(ctx.tests["valid"]) == [True]
+    terms = ctx.extras["budget"]
+    first = terms[(terms["point"] == 1) & (terms["component"] != "source")]
+    u_gum = float(np.sqrt((first["contribution"] ** 2).sum()))
+    assert ctx.points["u"].iloc[0] == pytest.approx(u_gum, rel=0.01)
 
 
 @pytest.mark.parametrize("reading,half_digit", [("2.00200 V", 0.00005), ("2.5 V", 0.0005), ("2.5000 V", 0.0005)])

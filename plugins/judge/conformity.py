@@ -5,7 +5,7 @@
   risk);
 - ``risk`` = probability that the true error lies outside ±MPE given the measured error and u
   (JCGM 106:2012 specific risk; normal model, or a scaled and shifted t at finite ν_eff,
-  JCGM 101:2008 §6.4.9).
+  JCGM 101:2008 §6.4.9; from the simulated distribution where U came from Monte Carlo).
 
 Runs after the judge plugins that add the error, MPE and acceptance limit (``@needs``).
 """
@@ -43,6 +43,12 @@ def conformity(ctx: RunContext) -> list[Finding]:
         u = pts["u"] if "u" in pts.columns else pts["U"] / (pts["k"] if "k" in pts.columns else 2.0)
         nu = pts["nu_eff"] if "nu_eff" in pts.columns else np.inf
         pts["risk"] = specific_risk(pts["error"], u, pts["mpe"], nu)
+    quantiles = ctx.extras.get("mc_quantiles")
+    if isinstance(quantiles, pd.DataFrame) and len(quantiles):
+        from loopledger.plugins.uncertainty import montecarlo
+
+        mine = quantiles[quantiles.index.isin(pts.index)]
+        pts.loc[mine.index, "risk"] = montecarlo.specific_risk(mine, pts["error"], pts["mpe"])
     ctx.points = pts
     exports = ctx.stash.setdefault(keys.POINT_EXPORTS, [])
     exports += [c for c in ("tur", "risk") if c not in exports]

@@ -23,7 +23,7 @@ from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl
-from loopledger.plugins.uncertainty import budget
+from loopledger.plugins.uncertainty import budget, montecarlo
 
 POINT_COLUMNS = ["u", "U", "k", "nu_eff"]
 BUDGET_COLUMNS = ["test", "phase", "point", "component", "distribution", "half_width", "unit", "divisor",
@@ -45,13 +45,27 @@ def budget_frame(pts: pd.DataFrame, terms: pd.DataFrame) -> pd.DataFrame:
 def stage(ctx: RunContext) -> list[Finding]:
     pts = ctx.points
     terms, per, problems = budget.compute(ctx, pts)
+    pts["u_method"] = "GUM"
+    pts["mc_low"], pts["mc_high"] = np.nan, np.nan
+    # where the first-order budget is not valid (a square root near zero, a cut-off): JCGM 101 Monte Carlo,
+    # also for points whose only problem was the unbounded slope the first-order law cannot take
+    open_ = problems.isna() | (problems == budget.UNEVALUATED)
+    mc, quantiles = montecarlo.run(pts[open_], terms) if open_.any() else (pd.DataFrame(), pd.DataFrame())
+    if len(mc):
+        per.loc[mc.index, ["u", "U", "k"]] = mc[["u", "U", "k"]].to_numpy()
+        per.loc[mc.index, "nu_eff"] = np.inf
+        problems[mc.index] = None
+        pts.loc[mc.index, "u_method"] = montecarlo.METHOD
+        pts.loc[mc.index, "mc_low"], pts.loc[mc.index, "mc_high"] = mc["mc_low"], mc["mc_high"]
+        ctx.extras["mc_trials"] = mc["trials"]
+    ctx.extras["mc_quantiles"] = quantiles
     for col in POINT_COLUMNS:
         pts[col] = per[col]
     pts["reading_sensitivity"] = per["c_reading"]
     ctx.points = pts
     ctx.stash[keys.BUDGET] = budget_frame(pts, terms)
     exports = ctx.stash.setdefault(keys.POINT_EXPORTS, [])
-    exports += [c for c in POINT_COLUMNS if c not in exports]
+    exports += [c for c in [*POINT_COLUMNS, "u_method", "mc_low", "mc_high"] if c not in exports]
     make = error if _rule_needs_u(ctx) else warning
     findings: list[Finding] = []
     lacking = pts.loc[problems.dropna().index].assign(problem=problems.dropna())
@@ -134,11 +148,11 @@ def rows_by(keys: pd.Series, columns: list[np.ndarray]) -> dict[str, list[list[s
 
 def point_rows(pts: pd.DataFrame) -> list[np.ndarray]:
     """The columns of the per-point table, formatted."""
-    c = pts.reindex(columns=["phase", "point", "u", "k", "nu_eff", "U", "mpe", "tur", "risk", "acceptance_limit",
-                             "decision"])
+    c = pts.reindex(columns=["phase", "point", "u", "k", "nu_eff", "U", "u_method", "mpe", "tur", "risk",
+                             "acceptance_limit", "decision"])
     return [phase_texts(c["phase"]), texts(c["point"]), fmt_all(c["u"]), fmt_all(c["k"], 3), fmt_all(c["nu_eff"], 3),
-            fmt_all(c["U"]), fmt_all(c["mpe"]), fmt_all(c["tur"], 3), each_value(c["risk"], percent),
-            fmt_all(c["acceptance_limit"]), texts(c["decision"])]
+            fmt_all(c["U"]), texts(c["u_method"].fillna("GUM")), fmt_all(c["mpe"]), fmt_all(c["tur"], 3),
+            each_value(c["risk"], percent), fmt_all(c["acceptance_limit"]), texts(c["decision"])]
 
 
 def budget_rows(frame: pd.DataFrame) -> list[np.ndarray]:
@@ -186,8 +200,8 @@ def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Sectio
         unit, rule = units[test], rules.get(test, "")
         out[test] = [Section(
             title=f"Uncertainty and conformity per point (rule: {rule}; values in {unit})", kind="table",
-            columns=["Phase", "#", "u", "k", "ν_eff", "U (95.45 %)", "MPE ±", "TUR", "Risk", "Acceptance limit",
-                     "Decision"], rows=rows, order=20)]
+            columns=["Phase", "#", "u", "k", "ν_eff", "U (95.45 %)", "U from", "MPE ±", "TUR", "Risk",
+                     "Acceptance limit", "Decision"], rows=rows, order=20)]
         if frame is not None:
             out[test].append(Section(
                 title=f"Uncertainty budget (contributions u_i in {unit})", kind="table",
