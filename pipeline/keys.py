@@ -32,6 +32,16 @@ BUDGET: StashKey[pd.DataFrame] = StashKey(
     "budget", "uncertainty", "one row per (point, component) of every GUM budget: value, divisor, "
     "sensitivity, u, degrees of freedom (budget.csv)")
 
+MC_QUANTILES: StashKey[pd.DataFrame] = StashKey(
+    "mc_quantiles", "uncertainty", "per point whose U came from Monte Carlo (JCGM 101), the simulated "
+    "deviation's quantiles at montecarlo.LEVELS and the point's source_file; the conformity stage reads its risk")
+
+# --- ll_judge --------------------------------------------------------------------------------------
+
+DECISION_NOTE: StashKey[str] = StashKey(
+    "decision_note", "tolerance", "what the terminal says of the rule's statement when [decision] conditional = "
+    "\"pass\" accepts conditional passes (empty otherwise)")
+
 # --- ll_analyse ------------------------------------------------------------------------------------
 
 ANALYSIS: StashKey[pd.DataFrame] = StashKey(

@@ -6,6 +6,7 @@ from collections.abc import Callable
 from typing import TextIO
 
 import pandas as pd
+from loopledger import keys
 from loopledger.context import RunContext
 from loopledger.findings import Finding, by_file
 from loopledger.terminal import cell
@@ -97,7 +98,7 @@ def summary(ctx: RunContext, console: Console, *, verbose: bool = False) -> None
                   f"(judged on {ctx.as_of.isoformat()}, rule '{cell(ctx.section('decision').get('rule', 'simple'))}')")
     line = ", ".join(f"{counts.get(v, 0)} {v}" for v in ("pass", "adjusted", "fail", "invalid"))
     console.print(f"  tests: {line}")
-    note = ctx.extras.get("decision_note")
+    note = ctx.stash.get(keys.DECISION_NOTE)
     if note:
         console.print(f"  note: {note}", markup=False, highlight=False)
     valid = tests[tests["valid"].astype(bool)] if not tests.empty else tests

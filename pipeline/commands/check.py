@@ -113,7 +113,7 @@ def judge(args: argparse.Namespace, evidence: Path, paths: list[Path], label: st
     """Check ``paths`` in one evidence folder; print the findings, any verdicts a register edit changes and a
     summary line, each path prefixed by ``label`` (the folder, when several are checked or it lies below the
     current folder); return the exit code."""
-    from loopledger import discover, report, runner
+    from loopledger import discover, keys, report, runner
     from loopledger.commands.run import overrides
     from loopledger.findings import sort_findings
     from loopledger.host import get_plugin_manager
@@ -140,8 +140,8 @@ def judge(args: argparse.Namespace, evidence: Path, paths: list[Path], label: st
     failing = [rel for rel in named if after.get(rel) == "fail"]
     where = f"{label}/" if label else ""
     report.print_lines([replace(f, file=where + f.file) if f.file and where else f for f in findings], sys.stdout)
-    if ctx.extras.get("decision_note"):
-        sys.stdout.write(f"note: {ctx.extras['decision_note']}\n")
+    if ctx.stash.get(keys.DECISION_NOTE):
+        sys.stdout.write(f"note: {ctx.stash[keys.DECISION_NOTE]}\n")
     if before is not None:
         from loopledger.terminal import visible
 

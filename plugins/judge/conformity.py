@@ -43,7 +43,7 @@ def conformity(ctx: RunContext) -> list[Finding]:
         u = pts["u"] if "u" in pts.columns else pts["U"] / (pts["k"] if "k" in pts.columns else 2.0)
         nu = pts["nu_eff"] if "nu_eff" in pts.columns else np.inf
         pts["risk"] = specific_risk(pts["error"], u, pts["mpe"], nu)
-    quantiles = ctx.extras.get("mc_quantiles")
+    quantiles = ctx.stash.get(keys.MC_QUANTILES)
     if isinstance(quantiles, pd.DataFrame) and len(quantiles):
         from loopledger.plugins.uncertainty import montecarlo
 

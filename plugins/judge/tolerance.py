@@ -22,6 +22,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+from loopledger import keys
 from loopledger import quantities as q
 from loopledger.context import RunContext
 from loopledger.contracts import DecisionRule, Section
@@ -140,7 +141,7 @@ def judge(ctx: RunContext) -> list[Finding]:
     # the limit the verdict used: the acceptance limit, or the MPE when conditional passes are accepted
     pts["verdict_limit"] = pts["mpe"] if lenient else pts["acceptance_limit"]
     pts["accepted"] = accepted(pts["decision"], lenient)
-    ctx.extras["decision_note"] = SIMPLE_WITH_RISK if lenient else ""
+    ctx.stash[keys.DECISION_NOTE] = SIMPLE_WITH_RISK if lenient else ""
     ctx.points = pts
     verdicts = phase_verdicts(pts, lenient) if len(pts) else pd.DataFrame(
         columns=["as_found", "as_left", "adjusted", "verdict"])

@@ -205,8 +205,9 @@ def run(pts: pd.DataFrame, terms: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFr
 def specific_risk(quantiles: pd.DataFrame, error: pd.Series, mpe: pd.Series) -> pd.Series:
     """P(|e + S| > MPE) from the kept quantiles of S (the simulated distribution's CDF, interpolated)."""
     out = pd.Series(np.nan, index=quantiles.index, dtype=float)
-    for row in quantiles.index:
-        q = quantiles.loc[row].to_numpy(dtype=float)
+    levels = quantiles.drop(columns="source_file", errors="ignore")
+    for row in levels.index:
+        q = levels.loc[row].to_numpy(dtype=float)
         e, m = float(error[row]), float(mpe[row])
         above = 1.0 - np.interp(m - e, q, LEVELS, left=0.0, right=1.0)
         below = np.interp(-m - e, q, LEVELS, left=0.0, right=1.0)

@@ -57,8 +57,9 @@ def stage(ctx: RunContext) -> list[Finding]:
         problems[mc.index] = None
         pts.loc[mc.index, "u_method"] = montecarlo.METHOD
         pts.loc[mc.index, "mc_low"], pts.loc[mc.index, "mc_high"] = mc["mc_low"], mc["mc_high"]
-        ctx.extras["mc_trials"] = mc["trials"]
-    ctx.extras["mc_quantiles"] = quantiles
+    if len(quantiles):  # each row's file goes with it, so a page's digest moves only with its own points
+        quantiles.insert(0, "source_file", pts.loc[quantiles.index, "source_file"])
+    ctx.stash[keys.MC_QUANTILES] = quantiles
     for col in POINT_COLUMNS:
         pts[col] = per[col]
     pts["reading_sensitivity"] = per["c_reading"]
