@@ -27,7 +27,8 @@ DEMO = Path(__file__).resolve().parents[1] / "sample_results"
 #: the test columns that depend on other assets' tests: a test's false-accept prior counts the as-found
 #: results of its signal type (every asset's) dated before it
 COUPLED_TEST_COLUMNS = {"global_false_accept", "prior_n", "prior_in_tolerance", "false_accept_shown",
-                        "false_accept_over", "false_accept_prior"}
+                        "false_accept_over", "false_accept_prior",
+                        "prior_p_in"}  # issue 22: the Bayesian prior, from the same fleet counts
 #: findings worked out from those columns
 COUPLED_FINDINGS = {"false-accept"}
 

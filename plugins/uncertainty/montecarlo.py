@@ -184,7 +184,8 @@ def simulate(inputs: pd.DataFrame, others: dict[Any, list[tuple[str, float, floa
         results.append(pd.DataFrame({"u": [r[0] for r in rows], "U": [r[1] for r in rows],
                                      "mc_low": [r[2] for r in rows], "mc_high": [r[3] for r in rows],
                                      "trials": [r[4] for r in rows]}, index=part.index))
-        quantiles.append(pd.DataFrame(np.stack([r[5] for r in rows]), index=part.index))
+        quantiles.append(pd.DataFrame(np.stack([r[5] for r in rows]), index=part.index,
+                                      columns=[f"q{i}" for i in range(len(LEVELS))]))
     if not results:
         return pd.DataFrame(columns=["u", "U", "k", "mc_low", "mc_high", "trials"]), pd.DataFrame()
     out = pd.concat(results)
