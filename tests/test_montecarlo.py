@@ -115,3 +115,22 @@ def test_end_to_end_a_point_straddling_the_cut_off(tmp_path, run_folder):
     assert pts.at[1, "U"] > 0.5  # most of the 1.6 mA step, not the root's first-order 0.15 mA
     # a true ΔP below the cut-off means a true output of 4 mA, so the true error is up to 1.6 mA larger
     assert pts.at[1, "mc_high"] > 1.0 and -0.5 < pts.at[1, "mc_low"] < 0.0
+
+
+def test_risk_rule_on_a_simulated_normal_distribution_agrees_with_the_normal_model():
+    """For a simulated point whose only term is normal (u = 0.02 mA, MPE 0.08 mA, target 2 %), the statements
+    and the acceptance limit from the simulated distribution match the normal model's (JCGM 106; the limit
+    MPE − u·z solved by risk_limits, itself checked against scipy.stats.norm in test_decision_rules)."""
+    from loopledger.plugins.judge.decision_rules import risk_limits
+
+    index = list(range(6))
+    inputs = _inputs(0.5, 0.0, index=index)
+    others = {i: [("normal", 0.02, math.inf)] for i in index}
+    _, quantiles = montecarlo.simulate(inputs, others, _keys(index))
+    errors = pd.Series([0.0, 0.02, -0.07, 0.075, 0.09, -0.2], index=index)
+    said, limit = montecarlo.risk_decisions(quantiles, errors, pd.Series(0.08, index=index), 0.02)
+    accept, reject = risk_limits(np.array([0.02]), np.array([0.08]), 0.02)
+    assert limit.to_numpy() == pytest.approx([accept[0]] * 6, abs=0.002)
+    want = ["pass" if abs(e) <= accept[0] else "conditional-pass" if abs(e) <= 0.08
+            else "conditional-fail" if abs(e) <= reject[0] else "fail" for e in errors]
+    assert said.tolist() == want

@@ -21,6 +21,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+from loopledger import keys
 from loopledger.context import RunContext
 from loopledger.contracts import DecisionRule
 from loopledger.findings import Finding, error
@@ -136,8 +137,20 @@ class RiskBased(DecisionRule):
         nu = points["nu_eff"].to_numpy(dtype=float) if "nu_eff" in points else np.inf
         accept, reject = risk_limits(u.to_numpy(dtype=float), points["mpe"].to_numpy(dtype=float), target, nu)
         decision = non_binary(points["error"], points["mpe"], accept, reject, points["span"])
-        return pd.DataFrame({"decision": decision, "acceptance_limit": np.where(np.isnan(accept), 0.0, accept)},
-                            index=points.index)
+        out = pd.DataFrame({"decision": decision, "acceptance_limit": np.where(np.isnan(accept), 0.0, accept)},
+                           index=points.index)
+        stash = getattr(ctx, "stash", None)
+        quantiles = stash.get(keys.MC_QUANTILES) if stash is not None else None
+        if isinstance(quantiles, pd.DataFrame) and len(quantiles):
+            # points whose U came from Monte Carlo: decided from their own simulated distribution
+            from loopledger.plugins.uncertainty import montecarlo
+
+            mine = quantiles[quantiles.index.isin(points.index)]
+            if len(mine):
+                said, limit = montecarlo.risk_decisions(mine, points["error"], points["mpe"], target)
+                out.loc[mine.index, "decision"] = said
+                out.loc[mine.index, "acceptance_limit"] = limit
+        return out
 
 
 @hookimpl

@@ -217,3 +217,27 @@ def specific_risk(quantiles: pd.DataFrame, error: pd.Series, mpe: pd.Series) -> 
         below = np.interp(-m - e, q, LEVELS, left=0.0, right=1.0)
         out[row] = above + below
     return out
+
+
+def risk_decisions(quantiles: pd.DataFrame, error: pd.Series, mpe: pd.Series, target: float,
+                   ) -> tuple[pd.Series, pd.Series]:
+    """The ``risk`` rule's statements (ILAC-G8:2019 §4.2.3) and acceptance limits for simulated points, from
+    their own distribution: pass where the specific risk at the measured error is at most ``target``,
+    conditional pass up to the MPE, conditional fail while P(conform) > ``target``, fail beyond. The limit is
+    the largest |e| on the error's side whose risk is at most ``target`` (bisection; 0 where even e = 0 carries
+    more: no acceptance zone). The distribution may be lopsided (a cut-off), so the two sides can differ."""
+    idx = quantiles.index
+    e, m = error[idx].astype(float), mpe[idx].astype(float)
+    risk = specific_risk(quantiles, e, m)
+    sign = np.where(e.to_numpy() < 0, -1.0, 1.0)
+    low, high = np.zeros(len(idx)), m.to_numpy(dtype=float).copy()
+    zero = specific_risk(quantiles, pd.Series(0.0, index=idx), m).to_numpy()
+    for _ in range(60):
+        mid = (low + high) / 2.0
+        ok = specific_risk(quantiles, pd.Series(sign * mid, index=idx), m).to_numpy() <= target
+        low, high = np.where(ok, mid, low), np.where(ok, high, mid)
+    accept = pd.Series(np.where(zero <= target, low, 0.0), index=idx)
+    inside = e.abs() <= m
+    decision = np.select([risk <= target, inside, (1.0 - risk) > target],
+                         ["pass", "conditional-pass", "conditional-fail"], "fail")
+    return pd.Series(decision, index=idx), accept
