@@ -40,6 +40,7 @@ BUILTIN: tuple[str, ...] = (
     "analyse.method_compare",
     "analyse.loop_split",
     "analyse.burden",
+    "analyse.loop_plan",
     "analyse.signal_integrity",
     "analyse.fault_signatures",
     # ll_history
