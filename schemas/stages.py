@@ -77,7 +77,8 @@ class UncertainPoints(MeasuredPoints):
 
 
 class JudgedPoints(MeasuredPoints):
-    """After ``ll_judge``: error, MPE, the acceptance limit of the rule in force and the decision."""
+    """After ``ll_judge``: error, MPE, the acceptance limit of the rule in force, the decision and whether the
+    verdict accepted the point."""
 
     span: Series[float]
     error: Series[float] = pa.Field(nullable=True)
@@ -86,6 +87,10 @@ class JudgedPoints(MeasuredPoints):
     acceptance_limit: Series[float] = pa.Field(nullable=True)
     decision: Series[str] = pa.Field(isin=DECISIONS)
     decision_rule: Series[str]
+    #: the limit the test's verdict used: the acceptance limit, or the MPE where conditional passes are accepted
+    verdict_limit: Series[float] = pa.Field(nullable=True)
+    #: whether the point counts as a pass in its test's verdict (ILAC-G8:2019 §4.2.2 binary statement)
+    accepted: Series[bool]
 
 
 #: the contract ``ctx.points`` must meet after each stage (stages not named add no guaranteed column)
