@@ -138,7 +138,6 @@ class _FixedU:
         ctx.points["u"] = 0.04
         ctx.points["U"] = 0.08
         ctx.points["k"] = 2.0
-        ctx.points["u"] = 0.04  # the uncertainty stage's contract (schemas/stages.py) has u with U and k
         return []
 
 
