@@ -80,6 +80,7 @@ def replay(argv: list[str]) -> tuple[int | None, Cache | None]:
 
 def main(argv: Sequence[str] | None = None) -> int:
     from loopledger.config import ConfigError
+    from loopledger.lock import LockHeld
 
     argv = list(sys.argv[1:] if argv is None else argv)
     try:
@@ -102,6 +103,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         return int(runners[args.command](args))  # type: ignore[operator]
     except ConfigError as exc:
         sys.stderr.write(f"loopledger: configuration error: {visible(str(exc))}\n")
+        return EXIT_USAGE
+    except LockHeld as exc:
+        sys.stderr.write(f"loopledger: {exc}\n")
         return EXIT_USAGE
     except KeyboardInterrupt:
         sys.stderr.write("loopledger: interrupted; outputs already written are whole, the rest were not "

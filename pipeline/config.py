@@ -8,6 +8,8 @@ from pathlib import Path
 from typing import Any
 
 CONFIG_NAME = "loopledger.toml"
+#: a loopledger.toml larger than this is refused (a settings file is a few hundred bytes)
+MAX_CONFIG_BYTES = 1_000_000
 
 DEFAULTS: dict[str, Any] = {
     "as_of": None,  # date "overdue" is judged on; None means today
@@ -17,6 +19,9 @@ DEFAULTS: dict[str, Any] = {
         "max_points": 500,  # per test
         "max_repeats": 100,  # repeat readings per point
         "max_remarks_bytes": 16_000,  # a test's remarks, UTF-8 (the handbook renders them as Markdown)
+        "max_register_rows": 200_000,  # rows of assets.csv, entries of instruments.yaml
+        "max_register_bytes": 50_000_000,  # assets.csv or instruments.yaml larger than this is refused unread
+        "max_unpacked_bytes": 20_000_000,  # an .xlsx whose parts unpack to more than this is refused unopened
     },
 }
 
@@ -35,13 +40,21 @@ def _merge(base: dict[str, Any], extra: dict[str, Any]) -> dict[str, Any]:
     return out
 
 
-def load_config(evidence: Path, overrides: dict[str, Any] | None = None) -> dict[str, Any]:
-    """Read ``loopledger.toml`` from the evidence folder (if any) over the defaults."""
+def load_config(evidence: Path, overrides: dict[str, Any] | None = None, follow_links: bool = False) -> dict[str, Any]:
+    """Read ``loopledger.toml`` from the evidence folder (if any) over the defaults. A link there is refused
+    unless ``follow_links`` (then only one to a file inside the evidence folder), and only a regular file is
+    read: the run stops with a ConfigError rather than judge under settings nobody chose."""
+    from loopledger.files import LinkRefused, NotRegular, evidence_entry, read_regular
+
     config = dict(DEFAULTS)
-    path = evidence / CONFIG_NAME
-    if path.is_file():
+    try:
+        path = evidence_entry(evidence, CONFIG_NAME, follow_links)
+        data = read_regular(path, MAX_CONFIG_BYTES, f"{CONFIG_NAME} is read up to that size") if path else None
+    except (LinkRefused, NotRegular, ValueError, OSError) as exc:
+        raise ConfigError(f"{CONFIG_NAME}: {exc}") from exc
+    if data is not None:
         try:
-            config = _merge(config, tomllib.loads(path.read_text(encoding="utf-8-sig")))
+            config = _merge(config, tomllib.loads(data.decode("utf-8-sig")))
         except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
             raise ConfigError(f"{CONFIG_NAME}: {exc}") from exc
     if overrides:

@@ -109,12 +109,15 @@ def ll_configure(config: dict[str, Any]) -> list[Finding] | None:
 # --- load ---------------------------------------------------------------------------
 
 @hookspec(firstresult=True)
-def ll_read_result(path: Path, rel: str, data: bytes) -> ResultRead | None:
+def ll_read_result(path: Path, rel: str, data: bytes, limits: dict[str, int]) -> ResultRead | None:
     """Read one result file. Stops at first non-None result.
 
     :param path: the file on disk (already read into ``data``; do not reopen it).
     :param rel: its path relative to the evidence folder, for findings.
     :param data: its bytes.
+    :param limits: the ``[limits]`` in force (``max_points``, ``max_repeats``, ``max_unpacked_bytes`` ...).
+        A reader stops as soon as a file is past one (a file under the byte limit can still unpack or
+        expand to gigabytes) and returns an error naming the limit, rather than read the file whole first.
     :return: a :class:`ResultRead`, or None when the file's format is not this plugin's.
     """
 

@@ -51,33 +51,30 @@ def test_ids(rels: list[str]) -> tuple[list[str], list[Finding]]:
 
 
 def read_bounded(path: Path, limit: int) -> bytes:
-    """The file's bytes, refusing (ValueError) a file over ``limit`` bytes without reading it all."""
-    with open(path, "rb") as fh:
-        size = os.fstat(fh.fileno()).st_size
-        data = fh.read(limit + 1) if size <= limit else b""
-    if size > limit or len(data) > limit:
-        raise ValueError(f"file is {max(size, len(data)):,} bytes, over the limit of {limit:,} "
-                         "(limits.max_file_bytes in loopledger.toml)")
-    return data
+    """The file's bytes, refusing (ValueError) a file over ``limit`` bytes without reading it all, and
+    anything but a regular file without blocking on it (:func:`loopledger.files.read_regular`)."""
+    from loopledger.files import read_regular
+
+    return read_regular(path, limit)
 
 
 #: parse in worker processes only when at least this many files are new (process start-up costs)
 PARALLEL_MIN = 400
 
-_PARSING: tuple[Any, int] | None = None  # (plugin manager, size limit), handed to forked workers
+_PARSING: tuple[Any, dict[str, int]] | None = None  # (plugin manager, limits), handed to forked workers
 
 
 def _parse_one(source: SourceFile) -> tuple[bytes | None, str, Any, str]:
     """(bytes, sha256, ResultRead or None, what went wrong) for one file; run in a forked worker."""
     assert _PARSING is not None
-    pm, limit = _PARSING
+    pm, limits = _PARSING
     try:
-        data = read_bounded(source.path, limit)
+        data = read_bounded(source.path, int(limits["max_file_bytes"]))
     except (OSError, ValueError) as exc:
         return None, "", None, str(exc)
     sha = hashlib.sha256(data).hexdigest()
     try:
-        return data, sha, pm.hook.ll_read_result(path=source.path, rel=source.rel, data=data), ""
+        return data, sha, pm.hook.ll_read_result(path=source.path, rel=source.rel, data=data, limits=limits), ""
     except Exception as exc:  # reported by the caller as a reader bug, as in the serial path
         return data, sha, None, f"{type(exc).__name__}: {exc}"
 
@@ -91,7 +88,7 @@ def parse_ahead(ctx: Any, files: list[SourceFile], workers: int | None = None) -
     workers = workers if workers is not None else (os.cpu_count() or 1)
     if workers < 2 or len(files) < PARALLEL_MIN or not can_fork():
         return {}
-    _PARSING = (ctx.pm, int(ctx.config["limits"]["max_file_bytes"]))
+    _PARSING = (ctx.pm, dict(ctx.config["limits"]))
     try:
         with fork_pool(workers) as pool:
             done = pool.map(_parse_one, files, chunksize=max(1, len(files) // (workers * 8)))
@@ -144,7 +141,7 @@ def read_files(ctx: Any, files: Iterable[SourceFile],
             if early is None:
                 read = previous.get(key)
                 if read is None:
-                    read = ctx.pm.hook.ll_read_result(path=source.path, rel=source.rel, data=data)
+                    read = ctx.pm.hook.ll_read_result(path=source.path, rel=source.rel, data=data, limits=limits)
         except Exception as exc:  # a reader plugin's bug must not stop the other files
             problem = f"{type(exc).__name__}: {exc}"
         if problem:

@@ -34,38 +34,8 @@ def _public_mode() -> int:
     return 0o666 & ~_UMASK
 
 
-LOCK_NAME = ".loopledger.lock"
-
-
-@contextlib.contextmanager
-def exclusive(folder: Path, say: Callable[[str], Any] | None = None) -> Iterator[None]:
-    """Hold an exclusive lock on ``folder`` (a ``.loopledger.lock`` file in it) for the body.
-
-    Two runs writing one output folder at once would each take the other's staging folder for a
-    killed run's leftovers and remove it; the second waits here instead (``say`` is told it is waiting).
-    The operating system releases the lock when a process dies, so a killed run never leaves it held.
-    Where ``fcntl`` is not offered (Windows) nothing is locked.
-    """
-    try:
-        import fcntl
-    except ImportError:  # pragma: no cover - not on the machines this runs on
-        yield
-        return
-    folder.mkdir(parents=True, exist_ok=True)
-    with open(folder / LOCK_NAME, "a+b") as fh:
-        try:
-            fcntl.flock(fh.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
-        except BlockingIOError:
-            if say is not None:
-                say(f"loopledger: another run is writing to '{folder}'; waiting for it to finish\n")
-            fcntl.flock(fh.fileno(), fcntl.LOCK_EX)
-        except OSError:  # a file system that keeps no locks (some network shares): run as before, unlocked
-            yield
-            return
-        try:
-            yield
-        finally:
-            fcntl.flock(fh.fileno(), fcntl.LOCK_UN)
+#: the lock a run holds on OUT lives in :mod:`loopledger.lock`; named here too for older imports
+from loopledger.lock import LOCK_NAME, exclusive  # noqa: E402,F401
 
 
 def file_problem(exc: OSError) -> str:

@@ -14,6 +14,9 @@ from loopledger.validation import validate
 
 ASSETS = "assets.csv"
 INSTRUMENTS = "instruments.yaml"
+#: YAML values allowed per instrument when instruments.yaml is read (an instrument with ten ranges of four
+#: fields each and ten details of its own holds about 100)
+NODES_PER_INSTRUMENT = 200
 
 
 def absent(what: str, ident: str, rejected: dict[str, int], where: object) -> str:
@@ -25,22 +28,53 @@ def absent(what: str, ident: str, rejected: dict[str, int], where: object) -> st
     return f"{what} '{ident}' is not in {where}"
 
 
-def load_assets(evidence: Path) -> tuple[pd.DataFrame, list[Finding], dict[str, int]]:
+def _register_bytes(evidence: Path, name: str, limits: dict[str, Any] | None,
+                    follow_links: bool) -> tuple[bytes | None, list[Finding]]:
+    """A register's bytes, or None with the error that says why not: missing, a link (unless followed to a
+    file inside the evidence folder), not a regular file, or over ``limits.max_register_bytes``."""
+    from loopledger.config import DEFAULTS
+    from loopledger.files import LinkRefused, evidence_entry, read_regular
+
+    limit = int((limits or DEFAULTS["limits"])["max_register_bytes"])
+    try:
+        path = evidence_entry(evidence, name, follow_links)
+        if path is None:
+            return None, [error(f"no {name} in the evidence folder", file=name)]
+        return read_regular(path, limit, "limits.max_register_bytes in loopledger.toml"), []
+    except LinkRefused as exc:
+        return None, [error(str(exc), file=name, code="symlink")]
+    except (OSError, ValueError) as exc:
+        return None, [error(f"cannot read: {exc}", file=name)]
+
+
+def _max_rows(limits: dict[str, Any] | None) -> int:
+    from loopledger.config import DEFAULTS
+
+    return int((limits or DEFAULTS["limits"])["max_register_rows"])
+
+
+def load_assets(evidence: Path, limits: dict[str, Any] | None = None,
+                follow_links: bool = False) -> tuple[pd.DataFrame, list[Finding], dict[str, int]]:
     """assets.csv validated against :class:`AssetsFile`; bad rows are dropped and reported, and returned
     as the ids they gave with their line numbers (so a result file of such an asset can say why it is not
-    judged)."""
+    judged). A file of more than ``limits.max_register_rows`` rows is refused after reading one row more."""
     from loopledger.schemas.assets import OPTIONAL, REQUIRED, AssetsFile
     from loopledger.textio import decode, other_separator
 
-    path = evidence / ASSETS
     empty = pd.DataFrame(columns=REQUIRED + OPTIONAL).set_index("asset", drop=False).rename_axis(None)
-    if not path.is_file():
-        return empty, [error(f"no {ASSETS} in the evidence folder", file=ASSETS)], {}
+    data, problems = _register_bytes(evidence, ASSETS, limits, follow_links)
+    if data is None:
+        return empty, problems, {}
+    most = _max_rows(limits)
     try:
-        frame = pd.read_csv(io.StringIO(decode(path.read_bytes())), dtype=str, keep_default_na=False,
-                            skipinitialspace=True)
+        frame = pd.read_csv(io.StringIO(decode(data)), dtype=str, keep_default_na=False, skipinitialspace=True,
+                            nrows=most + 1)
     except (ValueError, pd.errors.ParserError) as exc:
         return empty, [error(f"cannot read: {exc}", file=ASSETS)], {}
+    del data
+    if len(frame) > most:
+        return empty, [error(f"more than {most:,} rows, over the limit (limits.max_register_rows in "
+                             "loopledger.toml); no asset is read", file=ASSETS, code="too-many")], {}
     frame.columns = [str(c).strip() for c in frame.columns]
     sep = other_separator(list(frame.columns))
     if sep is not None:
@@ -120,21 +154,29 @@ def _check_units_and_accuracy(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[F
     return frame.drop(index=list(dict.fromkeys(bad))), findings
 
 
-def load_instruments(evidence: Path) -> tuple[pd.DataFrame, pd.DataFrame, list[Finding], dict[str, int]]:
+def load_instruments(evidence: Path, limits: dict[str, Any] | None = None, follow_links: bool = False,
+                     ) -> tuple[pd.DataFrame, pd.DataFrame, list[Finding], dict[str, int]]:
     """instruments.yaml as two tables, instruments and meter ranges; and the ids of instruments dropped for
-    errors, with the line of each."""
+    errors, with the line of each. A document of more values than ``limits.max_register_rows`` instruments
+    could hold is refused while it is read (:data:`NODES_PER_INSTRUMENT` each), and so is one of more
+    instruments than that."""
     from loopledger.schemas.instruments import InstrumentsTable, MeterRanges
     from loopledger.textio import decode
 
-    path = evidence / INSTRUMENTS
     empty = pd.DataFrame(columns=["instrument", "kind"]).set_index("instrument", drop=False)
     no_ranges = pd.DataFrame(columns=["instrument", "range", "accuracy", "resolution", "burden"])
-    if not path.is_file():
-        return empty, no_ranges, [error(f"no {INSTRUMENTS} in the evidence folder", file=INSTRUMENTS)], {}
-    from loopledger.textio import DuplicateKey, compose, key_lines
+    data, problems = _register_bytes(evidence, INSTRUMENTS, limits, follow_links)
+    if data is None:
+        return empty, no_ranges, problems, {}
+    from loopledger.textio import DuplicateKey, TooManyNodes, compose, key_lines
 
+    most = _max_rows(limits)
     try:  # safe loading with the result files' loader: dates stay text, so one bad date is one instrument's error
-        doc, node = compose(decode(path.read_bytes()))
+        doc, node = compose(decode(data), max_nodes=most * NODES_PER_INSTRUMENT)
+    except TooManyNodes:
+        return empty, no_ranges, [error(f"more values than {most:,} instruments could hold (limits."
+                                        "max_register_rows in loopledger.toml); no instrument is read",
+                                        file=INSTRUMENTS, code="too-many")], {}
     except yaml.YAMLError as exc:
         mark = getattr(exc, "problem_mark", None)
         return empty, no_ranges, [error(f"cannot read: {getattr(exc, 'problem', None) or exc}", file=INSTRUMENTS,
@@ -145,6 +187,10 @@ def load_instruments(evidence: Path) -> tuple[pd.DataFrame, pd.DataFrame, list[F
         return empty, no_ranges, [error(f"cannot read: {exc}", file=INSTRUMENTS)], {}
     if not isinstance(doc, dict) or node is None:
         return empty, no_ranges, [error("expected a mapping of instrument id -> details", file=INSTRUMENTS)], {}
+    if len(doc) > most:
+        return empty, no_ranges, [error(f"{len(doc):,} instruments, over the limit of {most:,} (limits."
+                                        "max_register_rows in loopledger.toml); no instrument is read",
+                                        file=INSTRUMENTS, code="too-many")], {}
     at = {key: line for key, (line, _) in key_lines(node).items()}
     rows: list[dict[str, Any]] = []
     ranges: list[dict[str, Any]] = []

@@ -35,6 +35,8 @@ class RunOptions:
     #: commit gate judges the result files again under the registers as last committed, to show what a
     #: register edit changes)
     registers: Path | None = None
+    #: follow a link at results/ or a register when it points inside the evidence folder (else refused)
+    follow_links: bool = False
 
 
 def _stamp(findings: list[Finding], stage: str) -> list[Finding]:
@@ -48,7 +50,7 @@ def prepare(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
     if not opts.evidence.is_dir():
         raise ConfigError(f"evidence folder '{opts.evidence}' does not exist")
     registers = opts.registers or opts.evidence
-    config = load_config(registers, opts.overrides)
+    config = load_config(registers, opts.overrides, opts.follow_links)
     _known_keys(config, pm)
     ctx = RunContext(evidence=opts.evidence, config=config, pm=pm)
     for found in pm.hook.ll_configure(config=config):
@@ -63,9 +65,10 @@ def prepare(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
     if rule not in ctx.decision_rules:
         raise ConfigError(f"loopledger.toml: unknown decision rule '{rule}' "
                           f"(known: {', '.join(sorted(ctx.decision_rules))})")
-    ctx.assets, found, ctx.rejected_assets = load_assets(registers)
+    ctx.assets, found, ctx.rejected_assets = load_assets(registers, config["limits"], opts.follow_links)
     ctx.findings += _stamp(found, "registry")
-    ctx.instruments, ctx.ranges, found, ctx.rejected_instruments = load_instruments(registers)
+    ctx.instruments, ctx.ranges, found, ctx.rejected_instruments = load_instruments(registers, config["limits"],
+                                                                                    opts.follow_links)
     ctx.findings += _stamp(found, "registry")
     return ctx
 
@@ -195,9 +198,9 @@ def run(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
     """Everything up to (not including) export and publication."""
     ctx = prepare(opts, pm)
     if opts.files is None:
-        files, found = disc.discover(opts.evidence)
+        files, found = disc.discover(opts.evidence, opts.follow_links)
     else:
-        files, found = disc.select(opts.evidence, opts.files)
+        files, found = disc.select(opts.evidence, opts.files, opts.follow_links)
     ctx.findings += _stamp(found, "discover")
     tick = opts.progress(len(files), 0) if opts.progress else None
     ctx.findings += _stamp(read_files(ctx, files, tick, parsed=opts.parsed), "load")

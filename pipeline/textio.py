@@ -129,7 +129,42 @@ def _no_duplicate_keys(node: yaml.Node) -> None:
             stack.extend(item.value)
 
 
-def compose(text: str) -> tuple[Any, yaml.Node | None]:
+class TooManyNodes(ValueError):
+    """A document of more values than a limit allows, found while it is read (before it is built)."""
+
+    def __init__(self, budget: int) -> None:
+        super().__init__(f"more than {budget:,} values")
+        self.budget = budget
+
+
+def count_nodes(text: str, budget: int) -> None:
+    """Raise :class:`TooManyNodes` once the document's events pass ``budget`` values (scalars, aliases,
+    sequences, mappings), reading no further; nothing is built. A syntax error is left to the composer. A
+    text too short to hold that many values (each takes at least one character, most a separator too) is
+    not read at all."""
+    if len(text) <= budget // 2:
+        return
+    loader = Loader(text)
+    counted = (yaml.ScalarEvent, yaml.AliasEvent, yaml.SequenceStartEvent, yaml.MappingStartEvent)
+    seen = 0
+    try:
+        while loader.check_event():
+            if isinstance(loader.get_event(), counted):
+                seen += 1
+                if seen > budget:
+                    raise TooManyNodes(budget)
+    except yaml.YAMLError:
+        return
+    finally:
+        loader.dispose()
+
+
+def compose(text: str, max_nodes: int | None = None) -> tuple[Any, yaml.Node | None]:
+    """The document built safely, with its node tree (for lines). With ``max_nodes``, a document of more
+    values than that is refused (:class:`TooManyNodes`) while its events are read, before any node is
+    built: a file under the byte limit can still hold a million points (:func:`count_nodes`)."""
+    if max_nodes is not None:
+        count_nodes(text, max_nodes)
     loader = Loader(text)
     try:
         node = loader.get_single_node()

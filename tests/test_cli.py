@@ -172,7 +172,8 @@ def test_a_command_naming_an_asset_left_out_for_errors_says_so(tmp_path, capsys)
     ('[decison]\nrule = "guarded"\n', "no plugin reads a setting 'decison'"),
     ('rule = "guarded"\n', "no plugin reads a setting 'rule'"),
     ("[limits]\nmax_point = 5\n", "[limits] has no setting 'max_point' (known: max_file_bytes, max_points, "
-                                  "max_remarks_bytes, max_repeats)"),
+                                  "max_register_bytes, max_register_rows, max_remarks_bytes, max_repeats, "
+                                  "max_unpacked_bytes)"),
     # issue 22 added the [decision] conditional setting, so it is listed among the known keys
     ("[decision]\nrisk_tagret = 0.02\n",
      "[decision] has no setting 'risk_tagret' (known: conditional, risk_target, rule)"),

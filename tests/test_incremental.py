@@ -21,7 +21,6 @@ from pathlib import Path
 import pytest
 from loopledger.cache import store as incremental
 from loopledger.cli import main
-from loopledger.plugins.read import read_yaml
 
 from tests.evidence import good_points, result_yaml, write_evidence
 
@@ -36,20 +35,6 @@ def _fleet(tmp_path: Path, n: int = 4) -> Path:
 def _run(ev: Path, out: Path, capsys: pytest.CaptureFixture[str], *extra: str) -> tuple[int, str]:
     code = main(["run", str(ev), "--out", str(out), *extra])
     return code, capsys.readouterr().out
-
-
-@pytest.fixture
-def parse_calls(monkeypatch: pytest.MonkeyPatch) -> list[str]:
-    """Every YAML result file actually parsed (not served from the cache)."""
-    calls: list[str] = []
-    original = read_yaml.parse
-
-    def counting(text: str, rel: str):  # type: ignore[no-untyped-def]
-        calls.append(rel)
-        return original(text, rel)
-
-    monkeypatch.setattr(read_yaml, "parse", counting)
-    return calls
 
 
 def test_unchanged_rerun_replays_the_summary_and_exit_code(tmp_path, capsys, parse_calls):
@@ -356,13 +341,13 @@ def test_a_second_run_into_the_same_out_waits_for_the_first(tmp_path):
     out.mkdir()
     env = {**os.environ, "PYTHONPATH": str(ROOT)}
     with open(out / ".loopledger.lock", "a+b") as held:
-        fcntl.flock(held.fileno(), fcntl.LOCK_EX)  # as a first run holds it
+        fcntl.lockf(held.fileno(), fcntl.LOCK_EX)  # as a first run holds it (a POSIX record lock)
         proc = subprocess.Popen([sys.executable, "-m", "loopledger", "run", str(ev), "--out", str(out)], env=env,
                                 stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
         time.sleep(8)  # time to start and reach the lock (a run of this folder takes a few seconds)
         assert proc.poll() is None, "the second run did not wait"
         assert sorted(p.name for p in out.iterdir()) == [".loopledger.lock"], "the waiting run wrote into OUT"
-        fcntl.flock(held.fileno(), fcntl.LOCK_UN)
+        fcntl.lockf(held.fileno(), fcntl.LOCK_UN)
     assert proc.wait(timeout=120) == 0
     assert "another run is writing to" in proc.stderr.read()
     assert (out / "handbook" / "index.html").is_file()

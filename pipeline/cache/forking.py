@@ -40,10 +40,12 @@ def share_out(costs: Sequence[float], n: int) -> list[list[int]]:
 
 @contextlib.contextmanager
 def fork_pool(workers: int) -> Iterator[ProcessPoolExecutor]:
-    """A pool of ``workers`` forked processes (the caller checks :func:`can_fork` first)."""
+    """A pool of ``workers`` forked processes (the caller checks :func:`can_fork` first). Each worker ends
+    when the process that made the pool ends (:func:`_end_with`), so a killed run leaves no worker behind."""
     gc.freeze()
     try:
-        with ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork")) as pool:
+        with ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork"), initializer=_end_with,
+                                 initargs=(os.getpid(),)) as pool:
             yield pool
     finally:
         gc.unfreeze()

@@ -1,15 +1,19 @@
 """Incremental runs: a manifest of what the last run read and wrote, and a cache of parsed files.
 
 Standard library only, on purpose: a rerun over an unchanged evidence folder
-decides "nothing changed" from file sizes, modification times and (where those
-moved) SHA-256 hashes, then reprints the previous summary and exits with the
-previous code, without importing pandas, pandera, pint or numpy.
+decides "nothing changed" from each input file's size, modification time,
+status-change time and inode (where those moved, from SHA-256 hashes), checks
+that every output the last run wrote is still there as it was written, then
+reprints the previous summary and exits with the previous code, without
+importing pandas, pandera, pint or numpy.
 
 The cache lives in ``OUT/.loopledger-cache`` (or the folder ``--cache`` names),
-never in the evidence folder. Every cache file carries a format version and a
-SHA-256 of its body; a file that fails either check is ignored and rebuilt,
-never trusted over the input. Writes go through a temporary file and
-``os.replace``, so an interrupted run leaves the previous cache whole.
+never in the evidence folder. Every cache file carries a format version and an
+HMAC-SHA-256 under a key kept outside OUT (:mod:`loopledger.cache.seal`); a file
+that fails either check is ignored and rebuilt, never trusted over the input.
+Writes go through a temporary file and ``os.replace``, so an interrupted run
+leaves the previous cache whole. A cache that cannot be written is a warning:
+the run goes on without it.
 """
 
 from __future__ import annotations
@@ -21,6 +25,7 @@ import io
 import json
 import os
 import re
+import stat
 import sys
 from collections.abc import Iterator
 from pathlib import Path
@@ -28,36 +33,50 @@ from typing import Any, TextIO
 
 from loopledger.output import write_bytes as atomic_write
 
-VERSION = 1
 CACHE_NAME = ".loopledger-cache"
 MANIFEST = "manifest.json"
 PARSED = "parsed.json"
 #: the evidence folder's own files besides results/ (a change to one may change any verdict)
 REGISTRY_FILES = ("assets.csv", "instruments.yaml", "loopledger.toml")
+#: the folders of OUT a run writes, whose files the manifest lists
+OUTPUT_FOLDERS = ("data", "handbook")
 _ANSI = re.compile(r"\x1b\[[0-9;?]*[A-Za-z]")
 
-Stat = tuple[int, int]  # size, mtime_ns
+#: size, modification time, status-change time (which ``touch`` cannot set back) and inode, as git's index
+Stat = tuple[int, int, int, int]
+
+
+def _stat(st: os.stat_result) -> Stat:
+    return (st.st_size, st.st_mtime_ns, st.st_ctime_ns, st.st_ino)
 
 
 def _sealed(body: bytes) -> bytes:
-    """``VERSION`` line, SHA-256 line, then the body."""
-    return f"loopledger-cache {VERSION}\n{hashlib.sha256(body).hexdigest()}\n".encode() + body
+    from loopledger.cache.seal import seal
+
+    return seal(body)
 
 
 def _unseal(data: bytes) -> bytes | None:
-    """The body if the version and checksum hold, else None (a damaged or foreign cache file)."""
-    head, _, rest = data.partition(b"\n")
-    digest, _, body = rest.partition(b"\n")
-    if head != f"loopledger-cache {VERSION}".encode():
-        return None
-    if hashlib.sha256(body).hexdigest().encode() != digest:
-        return None
-    return body
+    """The body if the format and the MAC hold, else None (a damaged, forged or foreign cache file)."""
+    from loopledger.cache.seal import unseal
+
+    return unseal(data)
+
+
+def warn(problem: object) -> None:
+    """Say that the cache cannot be written or used; the run goes on without it."""
+    sys.stderr.write(f"loopledger: warning: the cache cannot be used ({problem}); this run goes on without it\n")
+    sys.stderr.flush()
 
 
 def sha256_file(path: Path) -> str:
-    if path.is_symlink():
+    """SHA-256 of a regular file; a link is named by its target (never followed); anything else (a named
+    pipe, a socket, a device) is never opened and gets ''."""
+    st = os.lstat(path)
+    if stat.S_ISLNK(st.st_mode):
         return "symlink:" + os.readlink(path)
+    if not stat.S_ISREG(st.st_mode):
+        return ""
     h = hashlib.sha256()
     with open(path, "rb") as fh:
         for block in iter(lambda: fh.read(1 << 20), b""):
@@ -66,16 +85,32 @@ def sha256_file(path: Path) -> str:
 
 
 def scan_inputs(evidence: Path) -> dict[str, Stat]:
-    """(size, mtime_ns) of every file a run could read: the registries and everything under results/.
+    """The :data:`Stat` of every file a run could read: the registries and everything under results/.
 
-    Uses lstat, so a symbolic link is recorded as the link itself (it is never followed).
+    Uses lstat, so a symbolic link is recorded as the link itself. Where a register or results/ is a link
+    to somewhere inside the evidence folder (which ``--follow-links`` reads), what it points at is recorded
+    too, so an edit there is seen.
     """
     out: dict[str, Stat] = {}
-    for name in REGISTRY_FILES:
+    base = evidence.resolve()
+    for name in (*REGISTRY_FILES, "results"):
         with contextlib.suppress(OSError):
             st = os.lstat(evidence / name)
-            out[name] = (st.st_size, st.st_mtime_ns)
-    stack = [evidence / "results"]
+            if name != "results" or stat.S_ISLNK(st.st_mode):
+                out[name] = _stat(st)
+            if stat.S_ISLNK(st.st_mode) and name != "results":
+                target = (evidence / name).resolve()
+                if base in target.parents:
+                    out[target.relative_to(base).as_posix()] = _stat(os.lstat(target))
+    out.update(_files_under([evidence / "results"], evidence))
+    return out
+
+
+def _files_under(roots: list[Path], base: Path) -> dict[str, Stat]:
+    """The :data:`Stat` of every file (not folder) under ``roots`` at any depth, by path in ``base``; a
+    link is recorded as itself, and a folder that cannot be read is left out."""
+    found: dict[str, Stat] = {}
+    stack = list(roots)
     while stack:
         folder = stack.pop()
         try:
@@ -83,13 +118,16 @@ def scan_inputs(evidence: Path) -> dict[str, Stat]:
         except OSError:
             continue
         for entry in entries:
-            rel = os.path.relpath(entry.path, evidence).replace(os.sep, "/")
             if entry.is_dir(follow_symlinks=False):
                 stack.append(Path(entry.path))
-                continue
-            st = entry.stat(follow_symlinks=False)
-            out[rel] = (st.st_size, st.st_mtime_ns)
-    return out
+            else:
+                found[os.path.relpath(entry.path, base).replace(os.sep, "/")] = _stat(entry.stat(follow_symlinks=False))
+    return found
+
+
+def scan_outputs(out: Path) -> dict[str, Stat]:
+    """The :data:`Stat` of every file under OUT's output folders (``data/``, ``handbook/``), by path in OUT."""
+    return _files_under([out / name for name in OUTPUT_FOLDERS], out)
 
 
 def engine_fingerprint() -> str:
@@ -163,20 +201,24 @@ def effective_as_of(evidence: Path, given: str | None) -> str:
         return str(given)
     import tomllib
 
-    with contextlib.suppress(OSError, ValueError):
-        value = tomllib.loads((evidence / "loopledger.toml").read_text(encoding="utf-8-sig")).get("as_of")
+    from loopledger.files import read_regular
+
+    with contextlib.suppress(OSError, ValueError):  # a link, a named pipe: never followed, never blocked on
+        data = read_regular(evidence / "loopledger.toml", 1_000_000)
+        value = tomllib.loads(data.decode("utf-8-sig")).get("as_of")
         if value is not None:
             return str(value)
     return dt.date.today().isoformat()
 
 
 class Cache:
-    """The manifest and parsed-file cache of one output (or ``--cache``) folder."""
+    """The manifest and parsed-file cache of one output (or ``--cache``) folder. ``out`` is the output
+    folder whose ``data/`` and ``handbook/`` the run writes (None for ``check``, which writes none)."""
 
-    def __init__(self, folder: Path, key: dict[str, Any], outputs: list[Path]) -> None:
+    def __init__(self, folder: Path, key: dict[str, Any], out: Path | None) -> None:
         self.folder = folder
         self.key = key
-        self.outputs = outputs
+        self.out = out
         self.inputs: dict[str, Stat] = {}
 
     # --- the no-change path ------------------------------------------------------
@@ -184,12 +226,14 @@ class Cache:
     def _read_manifest(self) -> dict[str, Any] | None:
         try:
             body = _unseal((self.folder / MANIFEST).read_bytes())
-            return json.loads(body) if body is not None else None
+            found = json.loads(body) if body is not None else None
+            return found if isinstance(found, dict) else None
         except (OSError, ValueError):
             return None
 
     def replay(self, evidence: Path, stream: TextIO) -> int | None:
-        """If nothing changed since the last complete run, reprint its output and return its exit code."""
+        """If nothing changed since the last complete run, and every output it wrote is still there as it
+        wrote it, reprint its output and return its exit code."""
         manifest = self._read_manifest()
         if manifest is None or manifest.get("key") != self.key:
             return None
@@ -198,55 +242,65 @@ class Cache:
         if set(old) != set(self.inputs):
             return None
         moved = False
-        for rel, (size, mtime) in self.inputs.items():
-            o_size, o_mtime, o_sha = old[rel]
-            if (size, mtime) == (o_size, o_mtime):
+        for rel, now in self.inputs.items():
+            o_size, *o_times, o_sha = old[rel]
+            if now == (o_size, *o_times):
                 continue
-            if size != o_size or sha256_file(evidence / rel) != o_sha:
-                return None
-            old[rel] = [size, mtime, o_sha]  # touched, same content
+            if not o_sha or now[0] != o_size or sha256_file(evidence / rel) != o_sha:
+                return None  # a file the last run did not read (too large, not regular) is never hashed
+            old[rel] = [*now, o_sha]  # touched, same content
             moved = True
-        for path, stat in zip(self.outputs, manifest["outputs"], strict=False):
-            try:
-                st = path.stat()
-            except OSError:
-                return None
-            if stat is not None and [st.st_size, st.st_mtime_ns] != stat:
-                return None
-        if len(manifest["outputs"]) != len(self.outputs):
+        if not self._outputs_whole(manifest.get("outputs")):
             return None
         if moved:
-            atomic_write(self.folder / MANIFEST, _sealed(json.dumps(manifest).encode()))
+            with contextlib.suppress(OSError):
+                atomic_write(self.folder / MANIFEST, _sealed(json.dumps(manifest).encode()))
         text = manifest["stdout"]
         stream.write(text if _isatty(stream) else _ANSI.sub("", text))
         stream.flush()
         return int(manifest["code"])
 
+    def _outputs_whole(self, recorded: Any) -> bool:
+        """Every output the manifest lists is present with the size, times and inode it was written with
+        (an edit in place, a deletion or a replacement moves at least one of them)."""
+        if self.out is None:
+            return recorded in (None, {})
+        if not isinstance(recorded, dict) or not recorded:
+            return False
+        for rel, then in recorded.items():
+            try:
+                now = _stat(os.lstat(self.out / rel))
+            except OSError:
+                return False
+            if list(now) != then:
+                return False
+        return True
+
     def invalidate(self) -> None:
         """Forget the manifest before a full run (a half-finished run must never look complete)."""
-        with contextlib.suppress(OSError):
+        try:
             os.unlink(self.folder / MANIFEST)
+        except FileNotFoundError:
+            pass
+        except OSError as exc:
+            warn(exc)
 
     def save(self, evidence: Path, hashes: dict[str, str], stdout: str, code: int) -> None:
-        """Record a complete run: input stats taken *before* it read anything, their hashes, its output."""
+        """Record a complete run: input stats taken *before* it read anything, the hashes of the files it
+        read, its outputs' stats, its output. Files it did not read are not hashed (a result file refused as
+        too large, a named pipe): a change to their stats alone makes the next run a full one."""
         files: dict[str, list[Any]] = {}
-        for rel, (size, mtime) in self.inputs.items():
+        for rel, now in self.inputs.items():
             sha = hashes.get(rel)
-            if not sha:
-                try:
-                    sha = sha256_file(evidence / rel)
-                except OSError:
-                    sha = ""
-            files[rel] = [size, mtime, sha]
-        outputs: list[list[int] | None] = []
-        for path in self.outputs:
-            try:
-                st = path.stat()
-                outputs.append([st.st_size, st.st_mtime_ns])
-            except OSError:
-                outputs.append(None)
+            if not sha and not rel.startswith("results/"):  # a register: read by every run
+                sha = _register_hash(evidence / rel)
+            files[rel] = [*now, sha or ""]
+        outputs = scan_outputs(self.out) if self.out is not None else {}
         manifest = {"key": self.key, "files": files, "outputs": outputs, "stdout": stdout, "code": code}
-        atomic_write(self.folder / MANIFEST, _sealed(json.dumps(manifest).encode()))
+        try:
+            atomic_write(self.folder / MANIFEST, _sealed(json.dumps(manifest).encode()))
+        except OSError as exc:
+            warn(exc)
 
     # --- parsed files --------------------------------------------------------------
 
@@ -273,7 +327,23 @@ class Cache:
     def save_parsed(self, parsed: dict[tuple[str, str], Any]) -> None:
         files = [[rel, sha, _to_json(read)] for (rel, sha), read in sorted(parsed.items())]
         body = {"engine": self.key["engine"], "files": files}
-        atomic_write(self.folder / PARSED, _sealed(json.dumps(body, default=str).encode()))
+        try:
+            atomic_write(self.folder / PARSED, _sealed(json.dumps(body, default=str).encode()))
+        except OSError as exc:
+            warn(exc)
+
+
+def _register_hash(path: Path) -> str:
+    """SHA-256 of a register the run read; '' for one it did not (a link, not a regular file, too large)."""
+    from loopledger.config import DEFAULTS
+
+    try:
+        st = os.lstat(path)
+        if not stat.S_ISREG(st.st_mode) or st.st_size > int(DEFAULTS["limits"]["max_register_bytes"]):
+            return ""
+        return sha256_file(path)
+    except OSError:
+        return ""
 
 
 def _to_json(read: Any) -> dict[str, Any]:

@@ -54,7 +54,7 @@ def cache_for(args: argparse.Namespace) -> incremental.Cache | None:
 
     args.evidence = args.evidence or find_evidence(args.paths)
     paths = sorted(str(p.resolve()) for p in args.paths)
-    return make_cache(args, "check", args.cache, [], paths=paths, strict=bool(args.strict),
+    return make_cache(args, "check", args.cache, None, paths=paths, strict=bool(args.strict),
                       label=_label(args.evidence))
 
 
@@ -120,9 +120,10 @@ def judge(args: argparse.Namespace, evidence: Path, paths: list[Path], label: st
 
     registers = gate.registers_named(evidence, paths)
     results = [p for p in paths if p.name not in registers or p.resolve().parent != evidence.resolve()]
-    named = {s.rel for s in discover.select(evidence, results)[0]}
+    named = {s.rel for s in discover.select(evidence, results, args.follow_links)[0]}
     parsed = cache.load_parsed() if cache is not None else None
     ctx = runner.run(runner.RunOptions(evidence, files=list(paths), overrides=overrides(args), parsed=parsed,
+                                       follow_links=args.follow_links,
                                        save_parsed=cache.save_parsed if cache is not None else None),
                      get_plugin_manager())
     before = _verdicts_before(args, evidence, paths, registers, parsed)

@@ -43,7 +43,7 @@ def evidence_of(path: Path) -> Path | None:
     """The nearest folder at or above ``path`` that holds assets.csv, or None."""
     start = path.absolute()
     for folder in [start, *start.parents]:
-        if (folder / ASSETS).is_file():
+        if os.path.lexists(folder / ASSETS):  # of any kind: a link or a named pipe there is reported by the run
             return folder
     return None
 

@@ -22,10 +22,15 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--rule", help="decision rule, overriding loopledger.toml")
     parser.add_argument("--no-handbook", action="store_true", help="write data/ only")
     parser.add_argument("--verbose", "-v", action="store_true", help="show every finding")
+    parser.add_argument("--wait", type=float, default=None, metavar="SECONDS",
+                        help="how long to wait for another run writing to OUT (default: 600)")
     add_cache_arguments(parser, default="OUT/.loopledger-cache")
 
 
 def add_cache_arguments(parser: argparse.ArgumentParser, default: str) -> None:
+    parser.add_argument("--follow-links", dest="follow_links", action="store_true",
+                        help="follow a symbolic link at results/, assets.csv, instruments.yaml or loopledger.toml "
+                             "when it points inside the evidence folder (refused otherwise)")
     parser.add_argument("--cache", type=Path, metavar="DIR",
                         help=f"folder for the incremental-run cache (default: {default}; never inside the "
                              "evidence folder)")
@@ -43,19 +48,29 @@ def overrides(args: argparse.Namespace) -> dict[str, object]:
 
 
 def outside_evidence(evidence: Path, path: Path, what: str) -> Path:
-    """``path`` resolved; a ConfigError when it lies inside the evidence folder."""
+    """``path`` resolved; a ConfigError when it and the evidence folder overlap: when it is the evidence
+    folder, lies inside it or holds it (a run replaces OUT/data and OUT/handbook whole, and tidies the cache
+    folder, so an evidence folder there would be deleted). Overlap is judged by the folders' identity on
+    disk, so links, ``..`` and file systems that ignore case cannot hide it."""
     from loopledger.config import ConfigError
+    from loopledger.files import inside
 
     ev = evidence.resolve()
     resolved = path.resolve()
-    if resolved == ev or ev in resolved.parents:
-        raise ConfigError(f"{what} '{resolved}' is inside the evidence folder; outputs never go there")
+    if inside(resolved, ev):
+        beside = ev.parent / f"{ev.name}-out"
+        raise ConfigError(f"{what} '{resolved}' is inside the evidence folder '{ev}'; outputs never go there "
+                          f"(write them beside it, e.g. {what} '{beside}')")
+    if inside(ev, resolved):
+        raise ConfigError(f"the evidence folder '{ev}' is inside {what} '{resolved}': a run replaces what it "
+                          f"writes there whole and would delete the evidence. Name a {what} folder that neither "
+                          "holds the evidence folder nor lies inside it")
     if resolved.exists() and not resolved.is_dir():
         raise ConfigError(f"{what} '{path}' is a file; name a folder (it is made if it is not there)")
     return resolved
 
 
-def make_cache(args: argparse.Namespace, command: str, folder: Path | None, outputs: list[Path],
+def make_cache(args: argparse.Namespace, command: str, folder: Path | None, writes: Path | None,
                **key: Any) -> incremental.Cache | None:
     """The cache for this invocation, or None (``--no-cache``, or no folder to keep one in)."""
     if getattr(args, "no_cache", False) or folder is None:
@@ -64,16 +79,14 @@ def make_cache(args: argparse.Namespace, command: str, folder: Path | None, outp
     folder = outside_evidence(evidence, folder, "--cache")
     full_key = {"command": command, "evidence": str(evidence), "as_of": incremental.effective_as_of(
         evidence, getattr(args, "as_of", None)), "rule": getattr(args, "rule", None),
-        "engine": incremental.engine_fingerprint(), **key}
-    return incremental.Cache(folder, full_key, outputs)
+        "engine": incremental.engine_fingerprint(),
+        "follow_links": bool(getattr(args, "follow_links", False)), **key}
+    return incremental.Cache(folder, full_key, writes)
 
 
 def cache_for(args: argparse.Namespace) -> incremental.Cache | None:
     out = outside_evidence(args.evidence, args.out, "--out")
-    outputs = [out / "data" / "tests.csv", out / "data" / "points.csv"]
-    if not args.no_handbook:
-        outputs.append(out / "handbook" / "index.html")
-    return make_cache(args, "run", args.cache or out / incremental.CACHE_NAME, outputs, out=str(out),
+    return make_cache(args, "run", args.cache or out / incremental.CACHE_NAME, out, out=str(out),
                       handbook=not args.no_handbook, verbose=bool(args.verbose))
 
 
@@ -98,10 +111,11 @@ def main(args: argparse.Namespace) -> int:
         from loopledger.config import ConfigError
 
         raise ConfigError(f"evidence folder '{args.evidence}' does not exist")
-    from loopledger.output import exclusive
+    from loopledger.lock import DEFAULT_WAIT, exclusive
 
     cache = cache_for(args)
-    with exclusive(outside_evidence(args.evidence, args.out, "--out"), sys.stderr.write):
+    wait = DEFAULT_WAIT if args.wait is None else max(0.0, args.wait)
+    with exclusive(outside_evidence(args.evidence, args.out, "--out"), sys.stderr.write, wait):
         return cached(args, cache, _full)
 
 
@@ -139,7 +153,7 @@ def _full(args: argparse.Namespace, cache: incremental.Cache | None) -> tuple[in
     pm = get_plugin_manager()
     out = outside_evidence(args.evidence, args.out, "--out")
     parsed = cache.load_parsed() if cache is not None else None
-    opts = runner.RunOptions(args.evidence, overrides=overrides(args),
+    opts = runner.RunOptions(args.evidence, overrides=overrides(args), follow_links=args.follow_links,
                              progress=report.progress_factory(Console(stderr=True)), parsed=parsed,
                              save_parsed=cache.save_parsed if cache is not None else None)
     ctx = runner.run(opts, pm)

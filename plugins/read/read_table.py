@@ -27,14 +27,19 @@ KNOWN = {*HEADER_FIELDS, *POINT_FIELDS, "phase", *UNIT_COLUMNS}
 Table = tuple[list[str], list[tuple[int, list[str]]]]  # column names, (line, cells) per row
 
 
-def _table(path: Path, data: bytes) -> Table:
-    """Column names and rows (with their 1-based line) as text; plain Python, no per-file DataFrame."""
-    if path.suffix.lower() == ".xlsx":
-        import pandas as pd
+def _table(path: Path, data: bytes, limits: dict[str, int] | None = None) -> Table:
+    """Column names and rows (with their 1-based line) as text; plain Python, no per-file DataFrame.
 
-        frame = pd.read_excel(io.BytesIO(data), dtype=object, engine="openpyxl")
-        return [str(c) for c in frame.columns], [(i + 2, [_cell(v) for v in row])
-                                                 for i, row in enumerate(frame.itertuples(index=False))]
+    A table of more than ``max_points`` rows is refused at the first row past it (:class:`TooManyRows`),
+    and a workbook whose parts unpack to more than ``max_unpacked_bytes`` before it is opened."""
+    from loopledger.config import DEFAULTS
+
+    limits = {**DEFAULTS["limits"], **(limits or {})}
+    most = int(limits["max_points"])
+    if path.suffix.lower() == ".xlsx":
+        from loopledger.plugins.read.workbook import first_sheet
+
+        return first_sheet(data, most, int(limits["max_unpacked_bytes"]))
     text = decode(data)
     reader = csv.reader(io.StringIO(text), skipinitialspace=True)
     header = next(reader, None)
@@ -51,22 +56,10 @@ def _table(path: Path, data: bytes) -> Table:
             raise RaggedRow(start, len(cells), len(header))
         if cells:
             rows.append((start, cells))
+            if len(rows) > most:
+                raise TooManyRows(most, start)
         start = reader.line_num + 1
     return header, rows
-
-
-def _cell(value: Any) -> str:
-    """A spreadsheet cell as the text it shows: a date cell (a datetime at midnight) as YYYY-MM-DD, as the
-    schema check wants it; an empty cell as ''."""
-    import datetime as dt
-
-    if value is None or value != value:  # NaN, NaT: an empty cell
-        return ""
-    if isinstance(value, dt.datetime) and value.time() == dt.time(0, 0):
-        return value.date().isoformat()
-    if isinstance(value, dt.date | dt.datetime):
-        return value.isoformat()
-    return str(value)
 
 
 class BadShape(ValueError):
@@ -75,6 +68,14 @@ class BadShape(ValueError):
     def __init__(self, message: str, line: int) -> None:
         super().__init__(message)
         self.line = line
+
+
+class TooManyRows(BadShape):
+    """A table of more rows than a test may have points, found at the first row past the limit."""
+
+    def __init__(self, most: int, line: int) -> None:
+        super().__init__(f"more than {most:,} rows, over the limit of points per test (limits.max_points in "
+                         "loopledger.toml); the file is not read further", line)
 
 
 class RaggedRow(BadShape):
@@ -142,11 +143,13 @@ def parse(table: Table, rel: str) -> ResultRead:
 
 
 @hookimpl
-def ll_read_result(path: Path, rel: str, data: bytes) -> ResultRead | None:
+def ll_read_result(path: Path, rel: str, data: bytes, limits: dict[str, int] | None = None) -> ResultRead | None:
     if path.suffix.lower() not in (".csv", ".xlsx"):
         return None
     try:
-        table = _table(path, data)
+        table = _table(path, data, limits)
+    except TooManyRows as exc:
+        return ResultRead({}, [], findings=[error(str(exc), file=rel, line=exc.line, code="too-many")])
     except BadShape as exc:
         return ResultRead({}, [], findings=[error(str(exc), file=rel, line=exc.line, code="table")])
     except ValueError as exc:

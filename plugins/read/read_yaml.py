@@ -12,7 +12,7 @@ from loopledger.contracts import ResultRead
 from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.load import HEADER_FIELDS, POINT_FIELDS
-from loopledger.textio import AliasBomb, DuplicateKey, compose, decode, key_lines, node_line
+from loopledger.textio import AliasBomb, DuplicateKey, TooManyNodes, compose, count_nodes, decode, key_lines, node_line
 
 PHASES = ("as_found", "as_left")
 _SPLIT_NUMBER = re.compile(r"^\d+(\s*\S+)?$")
@@ -119,12 +119,27 @@ def _point(item: Any, node: yaml.Node, phase: str, number: int, rel: str,
     return point
 
 
+def node_budget(limits: dict[str, int] | None) -> int:
+    """The most YAML values a result file within the limits can hold: each point a mapping of its fields
+    (two values each) and up to ``max_repeats`` readings, plus a header's worth."""
+    from loopledger.config import DEFAULTS
+
+    limits = {**DEFAULTS["limits"], **(limits or {})}
+    return 200 + int(limits["max_points"]) * (1 + 2 * len(POINT_FIELDS) + int(limits["max_repeats"]))
+
+
 @hookimpl
-def ll_read_result(path: Path, rel: str, data: bytes) -> ResultRead | None:
+def ll_read_result(path: Path, rel: str, data: bytes, limits: dict[str, int] | None = None) -> ResultRead | None:
     if path.suffix.lower() not in (".yaml", ".yml"):
         return None
     try:
         text = decode(data)
     except ValueError as exc:
         return ResultRead({}, [], findings=[error(str(exc), file=rel, code="encoding")])
+    try:  # counted before anything is built: a file under the byte limit can hold a million points
+        count_nodes(text, node_budget(limits))
+    except TooManyNodes as exc:
+        return ResultRead({}, [], findings=[error(
+            f"the file holds {exc}, more than points within limits.max_points, each with up to "
+            "limits.max_repeats readings, could need; it is not read further", file=rel, code="too-many")])
     return parse(text, rel)
