@@ -26,6 +26,10 @@ TEST_EXPORTS: StashKey[list[str]] = StashKey(
     "test_exports", "engine", "columns of ctx.tests written to tests.csv beyond the schema's; every stage "
     "appends the columns it adds")
 
+REBUILD_ALL: StashKey[bool] = StashKey(
+    "rebuild_all", "engine", "True when the run was told not to use its cache (--no-cache): outputs are made "
+    "again whole, and the handbook renders every page rather than reuse any of the live site's")
+
 # --- ll_uncertainty --------------------------------------------------------------------------------
 
 BUDGET: StashKey[pd.DataFrame] = StashKey(

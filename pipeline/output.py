@@ -25,6 +25,11 @@ if TYPE_CHECKING:
 _UMASK: int | None = None
 
 
+def public_mode() -> int:
+    """The mode an ordinary ``open()`` gives a new file (0o666 less the process umask)."""
+    return _public_mode()
+
+
 def _public_mode() -> int:
     """0o666 less the process umask: what an ordinary ``open()`` would have given (mkstemp gives 0o600)."""
     global _UMASK

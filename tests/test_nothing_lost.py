@@ -20,7 +20,7 @@ import pytest
 from loopledger.cli import main
 from loopledger.lock import exclusive
 
-from tests.evidence import good_points, result_yaml, write_evidence
+from tests.evidence import CT_ASSET, good_points, result_yaml, write_evidence
 
 ROOT = Path(__file__).resolve().parents[1]
 ENV = {**os.environ, "PYTHONPATH": str(ROOT)}
@@ -247,3 +247,67 @@ def test_a_same_size_edit_with_its_mtime_restored_is_seen(tmp_path, capsys, pars
     with open(out / "data" / "points.csv", encoding="utf-8", newline="") as fh:
         measured = {r["measured"] for r in csv.DictReader(fh)}
     assert "9.996" in measured and "9.986" not in measured
+
+
+# --- 3. a rebuild tells the truth: kept pages are checked before they are reused ---------------------------
+
+def _two_assets(root: Path) -> Path:
+    return write_evidence(root, {"a.yaml": result_yaml(as_found=good_points()),
+                                 "b.yaml": result_yaml(asset="T-CT2", as_found=good_points())},
+                          assets=[CT_ASSET, {**CT_ASSET, "asset": "T-CT2"}])
+
+
+@pytest.mark.parametrize("option", [[], ["--no-cache"]])
+def test_a_kept_page_edited_in_place_is_made_again_and_named(tmp_path, capsys, option):
+    """A page of an unchanged asset, emptied in place, stayed empty after a rebuild and after --no-cache."""
+    ev = _two_assets(tmp_path / "ev")
+    out = tmp_path / "out"
+    assert main(["run", str(ev), "--out", str(out)]) == 0
+    page = out / "handbook" / "assets" / "T-CT2.html"
+    good = page.read_bytes()
+    os.chmod(page, 0o644)  # pages are written read-only; someone "fixing" one by hand makes it writable
+    with open(page, "r+b") as fh:
+        fh.truncate(0)
+    (ev / "results" / "a.yaml").write_text(result_yaml(date="2026-04-15", as_found=good_points()), encoding="utf-8")
+    assert main(["run", str(ev), "--out", str(out), "-v", *option]) == 0
+    said = capsys.readouterr().out.replace("\n  ", " ")
+    assert page.read_bytes() == good
+    if not option:  # --no-cache renders every page without looking at the live ones
+        assert "handbook/assets/T-CT2.html: warning: this page of the published handbook was not as the last " \
+               "run wrote it" in said
+
+
+def test_no_cache_renders_every_page(tmp_path, capsys, monkeypatch):
+    from loopledger.plugins.handbook import build
+
+    ev = _two_assets(tmp_path / "ev")
+    out = tmp_path / "out"
+    assert main(["run", str(ev), "--out", str(out)]) == 0
+    rendered: list[str] = []
+    original = build.render_job
+
+    def counting(job):  # type: ignore[no-untyped-def]
+        rendered.append(job.rel)
+        return original(job)
+
+    monkeypatch.setattr(build, "render_job", counting)
+    assert main(["run", str(ev), "--out", str(out), "--no-cache"]) == 0
+    capsys.readouterr()
+    pages = sorted(p.relative_to(out / "handbook").as_posix() for p in (out / "handbook").rglob("*.html"))
+    assert sorted(rendered) == pages
+
+
+def test_pages_are_written_read_only_and_reused_only_by_link_when_not_writable(tmp_path, capsys):
+    """Where this process could write a live page (the superuser, a share that ignores modes), a kept page is
+    copied into the new site, not linked, so no edit of one generation can reach the other."""
+    ev = _two_assets(tmp_path / "ev")
+    out = tmp_path / "out"
+    assert main(["run", str(ev), "--out", str(out)]) == 0
+    kept = out / "handbook" / "assets" / "T-CT2.html"
+    assert kept.stat().st_mode & 0o222 == 0
+    os.chmod(kept, 0o644)
+    before = kept.stat().st_ino
+    (ev / "results" / "a.yaml").write_text(result_yaml(date="2026-04-15", as_found=good_points()), encoding="utf-8")
+    assert main(["run", str(ev), "--out", str(out)]) == 0
+    capsys.readouterr()
+    assert kept.stat().st_ino != before  # copied (it was writable): a new file

@@ -157,6 +157,11 @@ def _full(args: argparse.Namespace, cache: incremental.Cache | None) -> tuple[in
                              progress=report.progress_factory(Console(stderr=True)), parsed=parsed,
                              save_parsed=cache.save_parsed if cache is not None else None)
     ctx = runner.run(opts, pm)
+    if args.no_cache:
+        from loopledger import keys
+
+        ctx.stash[keys.REBUILD_ALL] = True
+        ctx.fleet_only.add(keys.REBUILD_ALL.name)  # how the pages are made, not what is on them: no digest
     if args.no_handbook:
         runner.export(ctx, out)
     else:

@@ -13,8 +13,11 @@ The package, module by module:
   made in forked worker processes when there are many pages. The site is built in a staging folder and
   swapped into place whole. A manifest (``.manifest.json`` in the site) keeps a hash of each page's inputs
   and a digest per asset of everything its pages are made from; an asset whose digest is unchanged has its
-  pages hard-linked from the previous site without their data being made, and for the other assets each page
-  whose hash is unchanged is linked rather than rendered and written again.
+  pages reused from the previous site without their data being made, and for the other assets each page
+  whose hash is unchanged is reused rather than rendered and written again. A page is reused only when the
+  live one still has the SHA-256 the manifest records (:mod:`.reuse`); with ``--no-cache`` every page is
+  rendered.
+- :mod:`.reuse`: writing pages (read-only), checking a live page before it is reused, linking or copying it.
 - :mod:`.digests`: the per-asset digests of the run's tables that decide which pages are kept.
 - :mod:`.fleet_pages`: data of the pages about the whole fleet (index, overdue, failures, instruments) and the
   asset and test tables they are made from.
@@ -54,7 +57,7 @@ from pathlib import Path
 
 from loopledger import keys
 from loopledger.context import RunContext
-from loopledger.findings import Finding
+from loopledger.findings import Finding, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.plugins.handbook.build import build as build_handbook
 
@@ -64,6 +67,9 @@ def ll_publish(ctx: RunContext, out: Path) -> list[Finding]:
     from loopledger.output import staged_dir
 
     live = out / "handbook"
+    reuse = live.is_dir() and not ctx.stash.get(keys.REBUILD_ALL)
     with staged_dir(live) as folder:
-        ctx.stash[keys.HANDBOOK_BUILD] = build_handbook(ctx, folder, previous=live if live.is_dir() else None)
-    return []
+        stats = build_handbook(ctx, folder, previous=live if reuse else None)
+        ctx.stash[keys.HANDBOOK_BUILD] = stats
+    return [warning("this page of the published handbook was not as the last run wrote it (edited by hand?); "
+                    "it was made again", file=f"handbook/{rel}", code="edited-page") for rel in stats.edited]

@@ -6,8 +6,7 @@ from __future__ import annotations
 import importlib.resources
 import json
 import os
-import shutil
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -15,7 +14,7 @@ import pandas as pd
 from loopledger.cache.forking import can_fork, fork_pool, share_out
 from loopledger.context import RunContext
 from loopledger.plugins.handbook import asset_pages as pages
-from loopledger.plugins.handbook import blocks, digests, fleet_pages, values
+from loopledger.plugins.handbook import blocks, digests, fleet_pages, reuse, values
 from loopledger.plugins.handbook.fleet_pages import CAUTIONS
 from loopledger.plugins.handbook.render import FORMAT, STATIC, Job, _depth, _theme_digest, render_job, render_markdown
 from loopledger.plugins.history import traceability
@@ -155,6 +154,8 @@ class BuildStats:
     reused: int = 0
     #: registered assets whose page data was not made again (their digest matched the live site's)
     kept: int = 0
+    #: pages of the live site that differed from what the last build wrote (edited by hand), made again
+    edited: list[str] = field(default_factory=list)
 
 
 @dataclass
@@ -176,15 +177,21 @@ _CURRENT: _Build | None = None
 
 
 def _emit(b: _Build, job: Job) -> tuple[dict[str, Any], bool]:
-    """Write one page into the staging folder: linked from the live site when its inputs are unchanged,
-    else rendered. Returns its manifest entry and whether it was rendered."""
+    """Write one page into the staging folder: reused from the live site when its inputs are unchanged and
+    the live page is intact (:mod:`.reuse`), else rendered. Returns its manifest entry (``edited`` when the
+    live page had been changed by hand) and whether it was rendered."""
     digest = job.digest(b.theme)
-    entry = {"hash": digest}
     prev = b.old_pages.get(job.rel)
-    if b.previous is not None and prev and prev.get("hash") == digest and (b.previous / job.rel).is_file():
-        _reuse(b.previous / job.rel, b.folder / job.rel)
-        return entry, False
-    _write(b.folder / job.rel, render_job(job))
+    if b.previous is not None and prev and prev.get("hash") == digest:
+        data = reuse.verified(b.previous, job.rel, prev)
+        if data is not None:
+            reuse.place(b.previous, b.folder, job.rel, data)
+            return {"hash": digest, "sha": prev["sha"]}, False
+    data = render_job(job)
+    reuse.write(b.folder / job.rel, data)
+    entry: dict[str, Any] = {"hash": digest, "sha": reuse.sha(data)}
+    if b.previous is not None and prev and prev.get("hash") == digest and reuse.edited(b.previous, job.rel, prev):
+        entry["edited"] = True
     return entry, True
 
 
@@ -226,6 +233,8 @@ def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: 
     keys = asset_digests(view, sh, theme) if live is not None and old_keys else None
     kept = _kept_assets(sh, keys, old_keys, old_pages, live) if keys is not None and live is not None else {}
     b = _Build(view, ctx, sh, folder, live, old_pages, theme)
+    kept_done, edited = _keep(b, kept)  # an asset with a page edited by hand is made again whole
+    kept = {asset: rels for asset, rels in kept.items() if asset not in edited}
     workers = workers if workers is not None else (os.cpu_count() or 1)
     made = set(sh.assets.index) - set(kept)
     todo = batches(sh, 1, only=made)
@@ -243,19 +252,23 @@ def build(ctx: RunContext, folder: Path, previous: Path | None = None, workers: 
                 done = [*(f.result() for f in futures), fleet]
     finally:
         _CURRENT = None
-    done.append(_keep(b, kept))
+    done.append(kept_done)
     manifest: dict[str, Any] = {"theme": theme, "assets": keys, "pages": {}}
-    stats = BuildStats()
+    stats = BuildStats(edited=sorted(rel for rels in edited.values() for rel in rels))
     for entries, rendered in done:
+        for rel, entry in entries.items():
+            if entry.pop("edited", False):
+                stats.edited.append(rel)
         manifest["pages"].update(entries)
         stats.pages += len(entries)
         stats.rendered += rendered
     stats.reused = stats.pages - stats.rendered
     stats.kept = len(kept)
     static = importlib.resources.files("loopledger.site").joinpath("static")
+    stats.edited.sort()
     for name in STATIC:
-        _write(folder / name, static.joinpath(name).read_bytes())
-    _write(folder / MANIFEST, json.dumps(manifest, sort_keys=True, indent=1).encode("utf-8") + b"\n")
+        reuse.write(folder / name, static.joinpath(name).read_bytes())
+    reuse.write(folder / MANIFEST, json.dumps(manifest, sort_keys=True, indent=1).encode("utf-8") + b"\n")
     return stats
 
 
@@ -286,47 +299,22 @@ def _kept_assets(sh: Shared, keys: dict[str, str], old_keys: dict[str, Any], old
     return kept
 
 
-def _keep(b: _Build, kept: dict[Any, list[str]]) -> tuple[dict[str, Any], int]:
-    """The kept assets' pages linked from the live site, with their manifest entries (none rendered)."""
+def _keep(b: _Build, kept: dict[Any, list[str]]) -> tuple[tuple[dict[str, Any], int], dict[Any, list[str]]]:
+    """The kept assets' pages put into the new site from the live one, with their manifest entries (none
+    rendered); and the assets left out because a page of theirs is not as the last build wrote it, with
+    those pages (nothing of such an asset is placed, so its pages are all made again)."""
     entries: dict[str, Any] = {}
+    edited: dict[Any, list[str]] = {}
     if b.previous is None:
-        return entries, 0
-    for rels in kept.values():
-        for rel in rels:
-            _reuse(b.previous / rel, b.folder / rel)
+        return (entries, 0), edited
+    for asset, rels in kept.items():
+        found = [reuse.verified(b.previous, rel, b.old_pages[rel]) for rel in rels]
+        if any(data is None for data in found):
+            edited[asset] = [rel for rel, data in zip(rels, found, strict=True)
+                             if data is None and reuse.edited(b.previous, rel, b.old_pages[rel])]
+            continue
+        for rel, data in zip(rels, found, strict=True):
+            assert data is not None
+            reuse.place(b.previous, b.folder, rel, data)
             entries[rel] = b.old_pages[rel]
-    return entries, 0
-
-
-def _reuse(source: Path, target: Path) -> None:
-    """A file of the live site into the staging folder: a hard link (no copy) where the file system
-    allows, else a copy. Files are never written in place, so a link never changes the live site."""
-    try:
-        _link_or_copy(source, target)
-    except FileNotFoundError:  # its folder is not made yet
-        target.parent.mkdir(parents=True, exist_ok=True)
-        _link_or_copy(source, target)
-
-
-def _link_or_copy(source: Path, target: Path) -> None:
-    try:
-        os.link(source, target)
-    except OSError:
-        shutil.copyfile(source, target)
-
-
-def _write(path: Path, data: bytes) -> None:
-    """Write a new file into the staging folder. Opened exclusively (one call where the folder exists):
-    a name already there, which may be a link to a live page, is removed first, never written through."""
-    try:
-        fh = open(path, "xb")
-    except FileNotFoundError:
-        path.parent.mkdir(parents=True, exist_ok=True)
-        fh = open(path, "xb")
-    except FileExistsError:
-        path.unlink()
-        fh = open(path, "xb")
-    with fh:
-        fh.write(data)
-
-
+    return (entries, 0), edited
