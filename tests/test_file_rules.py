@@ -220,3 +220,17 @@ def test_a_file_refused_as_too_large_is_never_hashed(tmp_path, capsys, monkeypat
     assert "big.yaml" not in hashed
     manifest = json.loads(incremental._unseal((out / incremental.CACHE_NAME / incremental.MANIFEST).read_bytes()))
     assert manifest["files"]["results/big.yaml"][-1] == ""
+
+
+def test_an_edit_behind_a_followed_register_link_is_seen(tmp_path, capsys):
+    """The no-change check records what a followed link points at, not only the link."""
+    ev = write_evidence(tmp_path / "ev", {"a.yaml": result_yaml(as_found=good_points())})
+    (ev / "registers").mkdir()
+    (ev / "assets.csv").rename(ev / "registers" / "assets.csv")
+    (ev / "assets.csv").symlink_to(Path("registers") / "assets.csv")
+    out = tmp_path / "out"
+    assert main(["run", str(ev), "--out", str(out), "--follow-links"]) == 0
+    target = ev / "registers" / "assets.csv"
+    target.write_text(target.read_text(encoding="utf-8").replace(",0.5,", ",-0.5,"), encoding="utf-8")
+    assert main(["run", str(ev), "--out", str(out), "--follow-links"]) == 2  # accuracy -0.5: an error now
+    capsys.readouterr()

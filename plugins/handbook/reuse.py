@@ -43,7 +43,7 @@ def write(path: Path, data: bytes) -> None:
         fh = open(path, "xb")
     with fh:
         fh.write(data)
-        os.fchmod(fh.fileno(), _read_only())
+    os.chmod(path, _read_only())
 
 
 def verified(live: Path, rel: str, entry: Any) -> bytes | None:
