@@ -115,7 +115,7 @@ def asset_table(ctx: RunContext, tests: pd.DataFrame) -> pd.DataFrame:
         assets[col] = summary[col].reindex(assets.index) if isinstance(summary, pd.DataFrame) and \
             col in summary.columns else np.nan
     last_flag = tests.set_index("test")["reference_out_of_cal"] if len(tests) else pd.Series(dtype=bool)
-    assets["last_ref_out"] = assets["last_test"].map(last_flag).fillna(False).astype(bool)
+    assets["last_ref_out"] = assets["last_test"].map(last_flag).eq(True)  # no test (NaN): not flagged
     assets["next_due"] = assets["next_due"].map(plain)
     return assets
 
