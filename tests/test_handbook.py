@@ -106,11 +106,11 @@ def test_sheet_windows_volts_and_primary(tmp_path, run_folder):
     assert mid["expected"] == pytest.approx(12.0) and mid["accept"] == pytest.approx(0.08)
     assert (mid["low"], mid["high"]) == (pytest.approx(11.92), pytest.approx(12.08))
     # Ohm's law across the planned shunt: 11.92 mA x 250 ohm = 2.98 V, 12.08 mA x 250 ohm = 3.02 V
-    assert (mid["v_low"], mid["v_high"]) == (pytest.approx(2.98), pytest.approx(3.02))
+    assert (mid["read_low"], mid["read_high"]) == (pytest.approx(2.98), pytest.approx(3.02))
     # 0.5 A secondary behind a 2000/1 A current transformer is 1000 A primary
     assert mid["input"] == pytest.approx(0.5) and mid["primary"] == pytest.approx(1000.0)
     text = sheet_command.sheet_text(sheet)
-    assert "11.9200" in text and "3.0200" in text and "open-circuit" in text
+    assert "2.9800" in text and "3.0200" in text and "open-circuit" in text
 
 
 def test_columns_of_other_stages_are_shown_when_present(tmp_path, run_folder):
@@ -349,9 +349,9 @@ def test_sheet_command(tmp_path, capsys):
     assert main(["sheet", "T-CT1", "--evidence", str(ev), "--shunt", "250", "--html", str(html)]) == 0
     out = capsys.readouterr().out
     # class 0.5 on 16 mA is 0.08 mA (IEC 60688); 12.08 mA x 250 ohm = 3.02 V (Ohm's law)
-    assert "12.0800" in out and "3.0200" in out and "Cautions" in out
+    assert "2.9800" in out and "3.0200" in out and "Before you connect anything" in out
     page = html.read_text(encoding="utf-8")
-    assert "Pass from (V)" in page and "3.0200" in page and _audit(page).external == []
+    assert "Accept from (V)" in page and "3.0200" in page and _audit(page).external == []
     assert _links(html) == []  # a page on its own: the style sheet is inside it, no links to a site
     assert main(["sheet", "NOPE", "--evidence", str(ev)]) == 3
     assert "NOPE" in capsys.readouterr().err
@@ -365,7 +365,7 @@ def test_sheet_of_an_asset_ranged_in_a_unit_of_the_wrong_kind(tmp_path, capsys):
     assert main(["sheet", "T-M", "--evidence", str(ev)]) == 0
     out = capsys.readouterr().out
     assert "input_unit 'm' is not of the kind signal 'current-transducer' takes as input" in out
-    assert "rule 'simple'" in out and "pass from" in out and "12.0800" not in out
+    assert "rule 'simple'" in out and "12.0800" not in out
 
 
 # --- a real browser ------------------------------------------------------------------------------

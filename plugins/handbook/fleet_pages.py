@@ -18,18 +18,11 @@ from loopledger import keys
 from loopledger.cache.store import REGISTRY_FILES
 from loopledger.context import RunContext
 from loopledger.findings import by_file
+from loopledger.plugins.handbook import cautions
 from loopledger.plugins.handbook.values import _col, _dates, grouped, page_name, page_names, plain, records
 from loopledger.plugins.history.traceability import cal_status
 
-CAUTIONS = [
-    "Never open-circuit the secondary of a current transformer that may carry primary current: "
-    "short it at the test block before disconnecting anything.",
-    "Isolate, lock out and prove dead before touching terminals; work under the site's permit-to-work "
-    "and test-block procedures.",
-    "Use instruments, leads and probes rated for the measurement category of the circuit.",
-    "Injection testing is for competent, authorised people only. Local codes, the site's rules and licensed "
-    "practice take precedence over anything in this handbook.",
-]
+CAUTIONS = cautions.ALL  # the footer of the fleet pages: every caution the handbook gives
 
 #: roles of the reference instruments named in a result file
 ROLES = ("source", "meter", "shunt")
