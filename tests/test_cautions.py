@@ -38,8 +38,7 @@ def test_the_hazardous_area_caution_when_assets_csv_marks_the_loop(mark, shown):
 
 
 def test_the_sheet_and_its_page_show_the_cautions_first(tmp_path, run_folder):
-    from loopledger.plugins.sheet import plan
-    from loopledger.plugins.sheet import sheet_text
+    from loopledger.plugins.sheet import plan, sheet_text
 
     ev = write_evidence(tmp_path / "ev", {}, assets=[{**PT, "hazardous_area": "zone 2"}])
     ctx = run_folder(ev)

@@ -96,9 +96,9 @@ def sheet_text(sheet: dict[str, Any]) -> str:
               f"output {_g(a.get('output_min'))} … {_g(a.get('output_max'))} {unit}, accuracy {a.get('accuracy')}, "
               f"rule '{sheet.get('rule', '')}'",
               f"  planned rig: method {plan.get('method')}, source "
-              + (" ".join([source["id"], *(f"({t})" for t in (source.get("description"), source.get("range") and
-                                                                f"range {source['range']}") if t)])
-                 if source else "(not named: add --source ID)")
+              + (source["id"] + "".join(f" ({t})" for t in [", ".join(
+                  t for t in (source.get("description"), source.get("range") and f"range {source['range']}") if t)]
+                  if t) if source else "(not named: add --source ID)")
               + f", meter {plan.get('meter') or '(not named)'}, "
               f"shunt {_num(plan.get('shunt_ohm'), 3) + ' Ω' if plan.get('shunt_ohm') else '(none)'}, "
               f"{plan.get('connection')}", ""]

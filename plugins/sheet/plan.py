@@ -258,8 +258,7 @@ def _sheet(ctx: RunContext, asset: str, plan: dict[str, Any], points: list[dict[
                "mpe": plain(p["mpe"]), "U": plain(p["U"]), "u_problem": plain(p["u_problem"]),
                "tur": plain(float(p["mpe"]) / float(p["U"])) if plain(p["U"]) else None}
         if ratio is not None and row["input"] is not None:
-            row["primary"] = row["input"] * ratio
-            row["primary_unit"] = row["input_unit"]
+            row["primary"], row["primary_unit"] = _primary(row["input"] * ratio, str(row["input_unit"]), reg)
         if read_unit is not None and read_unit != unit:
             row.update(read_expected=plain(p["read_expected"]), read_low=plain(p["read_low"]),
                        read_high=plain(p["read_high"]))
@@ -275,6 +274,13 @@ def _primary_ratio(reg: pd.Series) -> float | None:
     """The factor from the secondary input to the primary: the CT ratio, the VT ratio or (for power) both."""
     ratios = [r for r in (_ratio(reg.get("ct_ratio")), _ratio(reg.get("vt_ratio"))) if r is not None]
     return float(np.prod(ratios)) if ratios else None
+
+
+def _primary(value: float, unit: str, reg: pd.Series) -> tuple[float, str]:
+    """A primary value in the display's unit when it is of the same kind (300000 W as 300 kW), else as is."""
+    shown = reg.get("display_unit")
+    ab = q.affine(unit, str(shown)) if isinstance(shown, str) and shown.strip() else None
+    return (float(ab[0] * value + ab[1]), str(shown)) if ab is not None else (float(value), unit)
 
 
 def _instrument(ctx: RunContext, ident: Any) -> dict[str, Any] | None:
