@@ -23,7 +23,8 @@ REFERENCE = """\
 {{ words.get(v, v or '—') }}</span>
 {%- endmacro %}
 {% macro section(s) -%}
-<section class="plugin-section">
+<section class="plugin-section{{ ' screen-only' if s.screen_only }}\
+{{ ' wide' if s.kind == 'table' and (s.columns or []) | length > 6 }}">
   <h2>{{ s.title }}</h2>
   {% if s.kind == 'facts' %}
   <dl class="facts">{% for pair in s.rows %}<dt>{{ pair[0] }}</dt><dd>{{ pair[1] }}</dd>{% endfor %}</dl>
@@ -35,14 +36,16 @@ REFERENCE = """\
   {% elif s.kind in ('html', 'svg') %}<figure>{{ s.html | safe }}{% if s.alt %}<figcaption>{{ s.alt }}</figcaption>\
 {% endif %}</figure>
   {% endif %}
-</section>
+</section>{% if s.screen_only %}<p class="print-only">{{ s.title }}: on the screen page ({{ (s.rows or []) | length }} \
+rows); the per-point summary above gives each point's figures.</p>{% endif %}
 {%- endmacro %}
 """
 
 
 POINT_ROWS = """\
 {% from 'm.html' import verdict %}{% for p in points %}<tr class="d-{{ p.decision }}">
-<td>{{ p.phase | phase }}</td><td>{{ p.point }}</td><td>{{ p.input }}</td><td>{{ p.input_pct | num(1) }}</td>\
+<td>{{ p.phase | phase }}</td><td>{{ p.point }}</td><td>{{ verdict(p.decision) }}</td><td>{{ p.input }}</td>\
+<td>{{ p.input_pct | num(1) }}</td>\
 <td>{{ p.reading_text or '—' }}</td>
 <td>{{ p.expected | num }}</td><td>{{ p.measured | num }}</td><td>{{ p.error | signed(4) }}</td>\
 <td>{{ p.error_pct_span | signed(3) }}</td>
@@ -50,7 +53,7 @@ POINT_ROWS = """\
 {% if 'U' in point_cols %}<td>{{ p.U | num }}{% if p.k %} (k={{ p.k | num(2) }}){% endif %}</td>{% endif %}\
 {% if 'tur' in point_cols %}<td>{{ p.tur | num(1) }}</td>{% endif %}
 {% if 'ne43_band' in point_cols %}<td>{{ p.ne43_band or '—' }}</td>{% endif %}
-<td>{{ verdict(p.decision) }}</td><td>{{ p.decision_rule or rule }}</td>
+<td>{{ p.decision_rule or rule }}</td>
 </tr>
 {% endfor %}"""
 
@@ -87,6 +90,8 @@ CASES = [
     {"title": "Raw", "kind": "html", "html": "<p>made safe by the plugin</p>", "alt": ""},
     {"title": "Unknown kind", "kind": "something-else", "rows": [["a", "b"]]},
     {"title": None, "kind": "text", "text": None},
+    {"title": "Budget", "kind": "table", "columns": list("abcdefg"), "rows": [list("1234567")] * 3,
+     "screen_only": True},
 ]
 
 

@@ -141,5 +141,5 @@ def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Sectio
     first = ctx.points[ctx.points["test"].isin(list(found))].drop_duplicates("test")
     units = dict(zip(first["test"].astype(str), first["output_unit"].astype(str), strict=True))
     return {test: [Section(title=f"Method comparison: U ({units[test]}) and TUR with the other rig the registry "
-                                 "allows", kind="table", columns=columns, rows=rows, order=25)]
+                                 "allows", kind="table", columns=columns, rows=rows, order=25, screen_only=True)]
             for test, (columns, rows) in found.items() if rows}

@@ -26,14 +26,6 @@ CAUTIONS = cautions.ALL  # the footer of the fleet pages: every caution the hand
 
 #: roles of the reference instruments named in a result file
 ROLES = ("source", "meter", "shunt")
-#: analysis columns (issue 3), in % of span, with their labels
-ANALYSIS = [("zero_error_pct", "Zero error"), ("span_error_pct", "Span error"),
-            ("nonlin_terminal_pct", "Non-linearity (terminal)"),
-            ("nonlin_independent_pct", "Non-linearity (independent)"), ("hysteresis_pct", "Hysteresis"),
-            ("nonrepeatability_pct", "Non-repeatability"), ("worst_after_trim_pct", "Worst error after trim")]
-BURDEN = [("loop_ohm", "Loop resistance", "Ω"), ("limit_ohm", "Largest load the output drives", "Ω"),
-          ("margin_pct", "Margin", "%"), ("burden_status", "Burden check", ""),
-          ("fault_signature", "Fault signature", "")]
 SOON_DAYS = 90  # "due soon" on the index: common practice for a planning look-ahead
 PREDICT_DAYS = 365  # a predicted exit from tolerance within a year (or before the next due date) is "soon"
 
