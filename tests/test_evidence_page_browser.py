@@ -10,7 +10,6 @@ bytes (``/Type /Page``, ISO 32000-1 §7.7.3.3).
 from __future__ import annotations
 
 import base64
-import os
 import re
 
 import openpyxl
@@ -36,11 +35,7 @@ def pages(pdf: bytes) -> int:
 def test_verdict_on_the_first_screen_and_the_printed_page_counts(tmp_path):
     from tests import cdp
 
-    exe = cdp.find_chromium()
-    if exe is None:
-        if os.environ.get("CI") == "true":
-            pytest.fail("CI=true but no Chromium found: install Debian's chromium package (.ci/run does)")
-        pytest.skip("no Chromium found: install Debian's chromium package to run the browser test")
+    exe = cdp.chromium_or_skip()
     ev = write_evidence(tmp_path / "ev", {"t.yaml": result_yaml(as_found=good_points(0.01), remarks="Routine.")})
     assert main(["run", str(ev), "--out", str(tmp_path / "out")]) == 0
     site = tmp_path / "out" / "handbook"

@@ -375,11 +375,7 @@ def test_sheet_of_an_asset_ranged_in_a_unit_of_the_wrong_kind(tmp_path, capsys):
 def test_in_headless_chromium(tmp_path):
     from tests import cdp
 
-    exe = cdp.find_chromium()
-    if exe is None:
-        if os.environ.get("CI") == "true":
-            pytest.fail("CI=true but no Chromium found: install Debian's chromium package (.ci/run does)")
-        pytest.skip("no Chromium found: install Debian's chromium package to run the browser test")
+    exe = cdp.chromium_or_skip()
     ev = _fleet(tmp_path / "ev")
     main(["run", str(ev), "--out", str(tmp_path / "out")])
     site = (tmp_path / "out" / "handbook").resolve()
