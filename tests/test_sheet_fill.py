@@ -164,3 +164,14 @@ def test_shunt_windows_are_volts_across_it(tmp_path, run_folder):
     row = next(r for r in sheet["rows"] if r["input_pct"] == 25.0)
     assert (row["read_expected"], row["read_low"], row["read_high"]) == pytest.approx((0.8, 0.792, 0.808))
     assert row["U"] is not None and row["tur"] == pytest.approx(0.08 / row["U"])
+
+
+def test_the_sheet_command_plans_a_display_reading(tmp_path, capsys):
+    """``--method display``: the windows in the display's amps (500 ± 10 A at 25 %, worked above), and why
+    U is not known before the day (the display's digits)."""
+    ev = write_evidence(tmp_path / "ev", {})
+    assert main(["sheet", "T-CT1", "--evidence", str(ev), "--method", "display", "--source", "SRC-1"]) == 0
+    out = capsys.readouterr().out
+    assert "(read in A)" in out and re.search(r"500\.0000\s+490\.0000\s+510\.0000", out)
+    assert "display_resolution" in out
+    assert main(["sheet", "T-CT1", "--evidence", str(ev), "--method", "nope"]) == 3

@@ -28,6 +28,8 @@ def _sheet_arguments(parser: argparse.ArgumentParser) -> None:
                         help="the evidence folder (default: the current folder)")
     parser.add_argument("--shunt", type=float, metavar="OHM", help="planned shunt resistance in ohms "
                         "(reads volts across it); default: the rig of the asset's latest test")
+    parser.add_argument("--method", help="planned reading method (direct, shunt, display, counts or a plugin's); "
+                        "default: that of the latest test")
     parser.add_argument("--meter", metavar="ID", help="planned meter (an id in instruments.yaml)")
     parser.add_argument("--source", metavar="ID", help="planned source (an id in instruments.yaml)")
     parser.add_argument("--connection", choices=["standalone", "in-loop"], help="planned connection")
@@ -54,9 +56,15 @@ def _sheet_run(args: argparse.Namespace) -> int:
             raise ConfigError(absent(role, ident, ctx.rejected_instruments, args.evidence / "instruments.yaml"))
     if args.fill is not None and args.fill.suffix.lower() not in fill.FORMATS:
         raise ConfigError(f"--fill '{args.fill}': name a file ending in {', '.join(fill.FORMATS)}")
+    if args.method is not None and args.method not in ctx.methods:
+        raise ConfigError(f"--method '{args.method}' is not a reading method (known: {', '.join(sorted(ctx.methods))})")
+    if args.method == "shunt" and args.shunt is None:
+        raise ConfigError("--method shunt needs --shunt OHM (the planned shunt's resistance)")
     if args.shunt is not None and not args.shunt > 0:
         raise ConfigError("--shunt must be a resistance in ohms greater than zero")
     plan = default_plan(ctx, args.asset, test_table(ctx))
+    if args.method is not None:
+        plan.update(method=args.method, shunt_ohm=None, shunt=None)
     if args.shunt is not None:
         plan.update(method="shunt", shunt_ohm=float(args.shunt), shunt=None)
     for role in ("meter", "source"):

@@ -88,4 +88,12 @@ def planned_u(ctx: RunContext, frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.Se
                        reading_text=np.where(frame["method"] == "counts",
                                              frame["read_expected"].round().map("{:.0f} counts".format), ""))
     _, per, problems = budget.compute(ctx, pts)
+    # a reading from the control system takes its resolution from the digits written, unknown before the
+    # test unless assets.csv gives display_resolution: say so rather than the budget's general words
+    given = pd.to_numeric(pts["display_resolution"], errors="coerce") if "display_resolution" in pts.columns \
+        else pd.Series(np.nan, index=pts.index)
+    unread = problems.notna() & ~pts["method"].isin(budget.METER_METHODS) & given.isna() & \
+        (pts["method"] != "counts")
+    problems[unread] = ("the display's resolution is known only from the digits written on the day; give "
+                        "display_resolution in assets.csv to plan with it")
     return per[["u", "k", "nu_eff", "U"]], problems
