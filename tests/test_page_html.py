@@ -31,7 +31,8 @@ REFERENCE = """\
   {% elif s.kind == 'table' %}
   <div class="scroll"><table><thead><tr>{% for c in s.columns %}<th scope="col">{{ c }}</th>{% endfor %}\
 </tr></thead>
-  <tbody>{% for r in s.rows %}<tr>{% for v in r %}<td>{{ v }}</td>{% endfor %}</tr>{% endfor %}</tbody></table></div>
+  <tbody>{% for r in s.rows %}<tr>{% for v in r %}<td{% if v is one_token %} class="nw"{% endif %}>{{ v }}</td>\
+{% endfor %}</tr>{% endfor %}</tbody></table></div>
   {% elif s.kind == 'text' %}<p>{{ s.text }}</p>
   {% elif s.kind in ('html', 'svg') %}<figure>{{ s.html | safe }}{% if s.alt %}<figcaption>{{ s.alt }}</figcaption>\
 {% endif %}</figure>
@@ -63,6 +64,7 @@ def _env() -> jinja2.Environment:
                              undefined=jinja2.ChainableUndefined, trim_blocks=True, lstrip_blocks=True,
                              keep_trailing_newline=True)
     env.filters["num"] = blocks.num
+    env.tests["one_token"] = lambda v: "-" in str(v) and len(str(v)) <= 40 and not any(c.isspace() for c in str(v))
     env.filters["signed"] = lambda v, d=3: blocks.num(v, d, sign=True)
     env.filters["phase"] = lambda v: {"as_found": "as found", "as_left": "as left"}.get(v, v or "")
     return env
@@ -90,7 +92,7 @@ CASES = [
     {"title": "Raw", "kind": "html", "html": "<p>made safe by the plugin</p>", "alt": ""},
     {"title": "Unknown kind", "kind": "something-else", "rows": [["a", "b"]]},
     {"title": None, "kind": "text", "text": None},
-    {"title": "Budget", "kind": "table", "columns": list("abcdefg"), "rows": [list("1234567")] * 3,
+    {"title": "Budget", "kind": "table", "columns": list("abcdefg"), "rows": [["2026-03-17", "QM-P1-I", "a - b"]] * 3,
      "screen_only": True},
 ]
 

@@ -78,6 +78,17 @@ def _row(row: Any, cell: Any) -> Any:
     return cell(row)
 
 
+def one_token(value: Any) -> bool:
+    """A cell that is one token with a hyphen (a date, an asset or instrument id): never broken at its
+    hyphens (a browser may break after any hyphen, leaving '2026-03-' above '17')."""
+    text = str(value)
+    return "-" in text and len(text) <= 40 and not any(c.isspace() for c in text)
+
+
+def _td(value: Any) -> str:
+    return ('<td class="nw">' if one_token(value) else "<td>") + _esc(value) + "</td>"
+
+
 #: a table of more columns than this spans the printed page's two columns of sections
 WIDE_COLUMNS = 6
 
@@ -101,7 +112,7 @@ def _block(get: Any, cell: Any) -> str:
         parts.append("</tr></thead>\n  <tbody>")
         for row in get("rows") or []:
             cells = _row(row, cell)
-            parts.append("<tr><td>" + "</td><td>".join(map(_esc, cells)) + "</td></tr>" if cells else "<tr></tr>")
+            parts.append("<tr>" + "".join(_td(c) for c in cells) + "</tr>")
         parts.append("</tbody></table></div>\n")
     elif kind == "text":
         parts += ["<p>", _esc(cell(get("text"))), "</p>\n"]
