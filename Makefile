@@ -9,12 +9,15 @@ STAMP := $(VENV)/.installed
 
 # the example site plugin (DEVELOPERS.md) goes into the same venv, so the tests can run it through the CLI
 EXAMPLE_PLUGIN := plugins/examples/valve_feedback
+# setuptools announces every editable install with an information-only UserWarning ("be careful with
+# folders ... with the same name as your package"); it is not a fault, so the build does not print it
+QUIET_BUILD := PYTHONWARNINGS=ignore::UserWarning
 
 $(STAMP): pyproject.toml $(EXAMPLE_PLUGIN)/pyproject.toml
 	test -x $(PY) || $(PYTHON) -m venv $(VENV)
 	$(PY) -m pip install --quiet --upgrade pip
-	$(PY) -m pip install --quiet -e '.[dev]'
-	$(PY) -m pip install --quiet --no-deps -e $(EXAMPLE_PLUGIN)
+	$(QUIET_BUILD) $(PY) -m pip install --quiet -e '.[dev]'
+	$(QUIET_BUILD) $(PY) -m pip install --quiet --no-deps -e $(EXAMPLE_PLUGIN)
 	touch $(STAMP)
 
 install: $(STAMP)
@@ -22,7 +25,6 @@ install: $(STAMP)
 demo: install
 	@$(VENV)/bin/loopledger run sample_results --out build; rc=$$?; \
 	 echo "loopledger exit code $$rc (0 = every test passed, 1 = a test failed, 2 = a file was invalid)"; \
-	 echo "Handbook: $(CURDIR)/build/handbook/index.html"; \
 	 test $$rc -le 1
 
 lint: install

@@ -101,7 +101,9 @@ class Section:
     ``kind`` says how the page lays it out: ``facts`` (``rows`` of label/value
     pairs), ``table`` (``columns`` and ``rows``), ``text`` (plain ``text``,
     escaped), ``html`` (``html`` the plugin has made safe) or ``svg`` (an
-    inline chart in ``html`` with ``alt`` text).
+    inline chart in ``html`` with ``alt`` text). ``screen_only`` keeps a long
+    block (a whole budget) off the printed page, which says where it is instead;
+    give it only where another block summarises it.
     """
 
     title: str
@@ -112,6 +114,7 @@ class Section:
     html: str = ""
     alt: str = ""
     order: int = 50
+    screen_only: bool = False
 
 
 @dataclass

@@ -148,13 +148,27 @@ def parse_column(values: pd.Series) -> pd.DataFrame:
     return pd.DataFrame({"value": value.where(good), "unit": unit.where(good, ""), "problem": problem})
 
 
+#: units of the trade that differ from another only by case (m is milli, M mega; a lone "a" is a year)
+CASE_SENSITIVE = ("mA", "uA", "A", "kA", "V", "mV", "kV", "W", "kW", "MW", "var", "kvar", "VA", "kVA", "bar",
+                  "mbar", "Pa", "kPa", "MPa", "degC", "K", "ohm", "kohm", "Hz", "counts")
+
+
+def case_hint(unit: str, *wanted: str) -> str:
+    """'; units are case-sensitive: did you mean 'mA'?' when ``unit`` is one of ``wanted`` (or of the trade's
+    units) but for its case; '' otherwise."""
+    for known in (*wanted, *CASE_SENSITIVE):
+        if known and unit != known and unit.lower() == known.lower():
+            return f"; units are case-sensitive (m is milli, M is mega): did you mean '{known}'?"
+    return ""
+
+
 @lru_cache(maxsize=512)
 def unit_check(unit: str) -> str:
     """Return the dimensionality of ``unit`` as text, or raise ValueError."""
     try:
         return str(registry_for(unit).Unit(unit).dimensionality)
     except Exception as exc:  # pint raises several kinds; all mean "not a unit"
-        raise ValueError(f"'{unit}' is not a unit loopledger knows") from exc
+        raise ValueError(f"'{unit}' is not a unit loopledger knows{case_hint(unit)}") from exc
 
 
 @lru_cache(maxsize=1024)

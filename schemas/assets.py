@@ -19,7 +19,9 @@ class AssetsFile(pa.DataFrameModel):
     - ``display_*`` is the control system's engineering range for the same signal;
     - ``max_load_ohm``, ``power``, ``supply_v``, ``min_terminal_v``, ``receiver_ohm`` and the
       ``cable_*`` columns describe the loop for the burden check;
-    - ``interval_months`` is the planned test interval, in whole months (1 to 240).
+    - ``interval_months`` is the planned test interval, in whole months (1 to 240);
+    - ``hazardous_area`` marks a loop in a hazardous area (e.g. ``zone 1``; blank, ``no`` or ``false`` when
+      it is not): its test sheet and pages then carry the intrinsically-safe caution.
     """
 
     asset: Series[str] = pa.Field(unique=True, str_matches=ASSET_ID, str_length={"min_value": 1, "max_value": 120})
@@ -49,6 +51,7 @@ class AssetsFile(pa.DataFrameModel):
     cable_length_m: Series[float] = pa.Field(nullable=True, ge=0)
     #: whole months, at most 20 years (our own bound: a longer plan is taken for a typing error)
     interval_months: Series[float] = pa.Field(nullable=True, gt=0, le=240)
+    hazardous_area: Series[str] = pa.Field(nullable=True)
 
     @pa.check("ct_ratio", error=RATIO_ERROR)
     def ct_ratio_ok(cls, col):  # type: ignore[no-untyped-def]

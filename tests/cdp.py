@@ -30,6 +30,20 @@ def find_chromium() -> str | None:
     return None
 
 
+def chromium_or_skip() -> str:
+    """Chromium's path; else the test is skipped, or fails when ``CI=true`` (where it must run)."""
+    import os
+
+    import pytest
+
+    exe = find_chromium()
+    if exe is None:
+        if os.environ.get("CI") == "true":
+            pytest.fail("CI=true but no Chromium found: install Debian's chromium package (.ci/run does)")
+        pytest.skip("no Chromium found: install Debian's chromium package to run the browser test")
+    return exe
+
+
 class Browser:
     def __init__(self, executable: str, profile: Path, timeout: float = 60.0) -> None:
         import websocket  # websocket-client

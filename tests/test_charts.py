@@ -152,7 +152,7 @@ def test_error_chart_is_accessible_scalable_and_escaped() -> None:
     svg = charts.error_chart(error_data(), hostile)
     root = parse(svg)
     assert root.tag == SVG + "svg" and root.attrib["role"] == "img"
-    assert root.attrib["viewBox"] == "0 0 640 340"
+    assert root.attrib["viewBox"] == f"0 0 {svgplot.WIDTH} {svgplot.HEIGHT}"
     assert root[0].tag == SVG + "title"
     assert root[0].text == 'A&B <script>alert("x")</script> \'q\' end'  # XML-forbidden characters dropped
     assert "<script" not in svg

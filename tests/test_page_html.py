@@ -23,26 +23,30 @@ REFERENCE = """\
 {{ words.get(v, v or '—') }}</span>
 {%- endmacro %}
 {% macro section(s) -%}
-<section class="plugin-section">
+<section class="plugin-section{{ ' screen-only' if s.screen_only }}\
+{{ ' wide' if s.kind == 'table' and (s.columns or []) | length > 6 }}">
   <h2>{{ s.title }}</h2>
   {% if s.kind == 'facts' %}
   <dl class="facts">{% for pair in s.rows %}<dt>{{ pair[0] }}</dt><dd>{{ pair[1] }}</dd>{% endfor %}</dl>
   {% elif s.kind == 'table' %}
   <div class="scroll"><table><thead><tr>{% for c in s.columns %}<th scope="col">{{ c }}</th>{% endfor %}\
 </tr></thead>
-  <tbody>{% for r in s.rows %}<tr>{% for v in r %}<td>{{ v }}</td>{% endfor %}</tr>{% endfor %}</tbody></table></div>
+  <tbody>{% for r in s.rows %}<tr>{% for v in r %}<td{% if v is one_token %} class="nw"{% endif %}>{{ v }}</td>\
+{% endfor %}</tr>{% endfor %}</tbody></table></div>
   {% elif s.kind == 'text' %}<p>{{ s.text }}</p>
   {% elif s.kind in ('html', 'svg') %}<figure>{{ s.html | safe }}{% if s.alt %}<figcaption>{{ s.alt }}</figcaption>\
 {% endif %}</figure>
   {% endif %}
-</section>
+</section>{% if s.screen_only %}<p class="print-only">{{ s.title }}: on the screen page ({{ (s.rows or []) | length }} \
+rows); the per-point summary above gives each point's figures.</p>{% endif %}
 {%- endmacro %}
 """
 
 
 POINT_ROWS = """\
 {% from 'm.html' import verdict %}{% for p in points %}<tr class="d-{{ p.decision }}">
-<td>{{ p.phase | phase }}</td><td>{{ p.point }}</td><td>{{ p.input }}</td><td>{{ p.input_pct | num(1) }}</td>\
+<td>{{ p.phase | phase }}</td><td>{{ p.point }}</td><td>{{ verdict(p.decision) }}</td><td>{{ p.input }}</td>\
+<td>{{ p.input_pct | num(1) }}</td>\
 <td>{{ p.reading_text or '—' }}</td>
 <td>{{ p.expected | num }}</td><td>{{ p.measured | num }}</td><td>{{ p.error | signed(4) }}</td>\
 <td>{{ p.error_pct_span | signed(3) }}</td>
@@ -50,7 +54,7 @@ POINT_ROWS = """\
 {% if 'U' in point_cols %}<td>{{ p.U | num }}{% if p.k %} (k={{ p.k | num(2) }}){% endif %}</td>{% endif %}\
 {% if 'tur' in point_cols %}<td>{{ p.tur | num(1) }}</td>{% endif %}
 {% if 'ne43_band' in point_cols %}<td>{{ p.ne43_band or '—' }}</td>{% endif %}
-<td>{{ verdict(p.decision) }}</td><td>{{ p.decision_rule or rule }}</td>
+<td>{{ p.decision_rule or rule }}</td>
 </tr>
 {% endfor %}"""
 
@@ -60,6 +64,7 @@ def _env() -> jinja2.Environment:
                              undefined=jinja2.ChainableUndefined, trim_blocks=True, lstrip_blocks=True,
                              keep_trailing_newline=True)
     env.filters["num"] = blocks.num
+    env.tests["one_token"] = lambda v: "-" in str(v) and len(str(v)) <= 40 and not any(c.isspace() for c in str(v))
     env.filters["signed"] = lambda v, d=3: blocks.num(v, d, sign=True)
     env.filters["phase"] = lambda v: {"as_found": "as found", "as_left": "as left"}.get(v, v or "")
     return env
@@ -87,6 +92,8 @@ CASES = [
     {"title": "Raw", "kind": "html", "html": "<p>made safe by the plugin</p>", "alt": ""},
     {"title": "Unknown kind", "kind": "something-else", "rows": [["a", "b"]]},
     {"title": None, "kind": "text", "text": None},
+    {"title": "Budget", "kind": "table", "columns": list("abcdefg"), "rows": [["2026-03-17", "QM-P1-I", "a - b"]] * 3,
+     "screen_only": True},
 ]
 
 

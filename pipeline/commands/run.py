@@ -17,7 +17,8 @@ from loopledger.cache import store as incremental
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("evidence", type=Path, help="the evidence folder (assets.csv, instruments.yaml, results/)")
-    parser.add_argument("--out", type=Path, default=Path("build"), help="output folder (default: ./build)")
+    parser.add_argument("--out", type=Path, help="output folder (default: ./build, or EVIDENCE-build beside the "
+                        "evidence folder when ./build would be inside it)")
     parser.add_argument("--as-of", dest="as_of", help="judge 'overdue' on this date (YYYY-MM-DD)")
     parser.add_argument("--rule", help="decision rule, overriding loopledger.toml")
     parser.add_argument("--no-handbook", action="store_true", help="write data/ only")
@@ -70,6 +71,18 @@ def outside_evidence(evidence: Path, path: Path, what: str) -> Path:
     return resolved
 
 
+def out_folder(args: argparse.Namespace) -> Path:
+    """The output folder: ``--out``, else ./build, else (./build inside the evidence folder, as after
+    ``cd EVIDENCE; loopledger run .``) a folder named after the evidence folder beside it."""
+    if args.out is not None:
+        return outside_evidence(args.evidence, args.out, "--out")
+    ev = args.evidence.resolve()
+    build = Path("build").resolve()
+    if build == ev or ev in build.parents:
+        return outside_evidence(ev, ev.parent / f"{ev.name}-build", "--out")
+    return outside_evidence(ev, build, "--out")
+
+
 def make_cache(args: argparse.Namespace, command: str, folder: Path | None, writes: Path | None,
                **key: Any) -> incremental.Cache | None:
     """The cache for this invocation, or None (``--no-cache``, or no folder to keep one in)."""
@@ -85,7 +98,7 @@ def make_cache(args: argparse.Namespace, command: str, folder: Path | None, writ
 
 
 def cache_for(args: argparse.Namespace) -> incremental.Cache | None:
-    out = outside_evidence(args.evidence, args.out, "--out")
+    out = out_folder(args)
     return make_cache(args, "run", args.cache or out / incremental.CACHE_NAME, out, out=str(out),
                       handbook=not args.no_handbook, verbose=bool(args.verbose))
 
@@ -115,7 +128,7 @@ def main(args: argparse.Namespace) -> int:
 
     cache = cache_for(args)
     wait = DEFAULT_WAIT if args.wait is None else max(0.0, args.wait)
-    with exclusive(outside_evidence(args.evidence, args.out, "--out"), sys.stderr.write, wait):
+    with exclusive(out_folder(args), sys.stderr.write, wait):
         return cached(args, cache, _full)
 
 
@@ -151,7 +164,7 @@ def _full(args: argparse.Namespace, cache: incremental.Cache | None) -> tuple[in
 
     console = Console(stderr=False, width=None if sys.stdout.isatty() else 120)
     pm = get_plugin_manager()
-    out = outside_evidence(args.evidence, args.out, "--out")
+    out = out_folder(args)
     parsed = cache.load_parsed() if cache is not None else None
     opts = runner.RunOptions(args.evidence, overrides=overrides(args), follow_links=args.follow_links,
                              progress=report.progress_factory(Console(stderr=True)), parsed=parsed,

@@ -6,9 +6,8 @@ budget is the same computation as the uncertainty stage's, on the point as it wo
 (the measured output × R, or the output itself); the repeatability seen in the test is not
 carried over, so both sides are compared on instrument terms plus what was observed only for the
 method actually used. Kept in ``ctx.stash[keys.METHOD_COMPARISON]`` (exported as
-``method_comparison.csv``) and shown on each test page and by ``loopledger explain``; the
-printable site test sheet gets the U and TUR the planned rig would give at the points of the
-asset's latest test.
+``method_comparison.csv``) and shown on each test page and by ``loopledger explain``. (The test
+sheet works out the planned rig's U at its own planned points: :mod:`loopledger.plugins.sheet.rig`.)
 """
 
 from __future__ import annotations
@@ -23,7 +22,6 @@ from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.findings import Finding
 from loopledger.hookspecs import hookimpl
-from loopledger.plugins.judge.conformity import MIN_TUR
 from loopledger.plugins.uncertainty import budget
 from loopledger.plugins.uncertainty.uncertainty import fmt_all, phase_texts, rows_by, texts
 
@@ -143,67 +141,5 @@ def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Sectio
     first = ctx.points[ctx.points["test"].isin(list(found))].drop_duplicates("test")
     units = dict(zip(first["test"].astype(str), first["output_unit"].astype(str), strict=True))
     return {test: [Section(title=f"Method comparison: U ({units[test]}) and TUR with the other rig the registry "
-                                 "allows", kind="table", columns=columns, rows=rows, order=25)]
+                                 "allows", kind="table", columns=columns, rows=rows, order=25, screen_only=True)]
             for test, (columns, rows) in found.items() if rows}
-
-
-def planned(ctx: RunContext, plans: dict[str, dict[str, Any]]) -> pd.DataFrame:
-    """U and TUR at the points of each asset's latest test, had they been read with its planned rig.
-
-    One frame of all the assets' points as the planned rigs would read them, through one budget;
-    an ``asset`` column says whose each row is. Assets whose rig cannot be evaluated are left out.
-    """
-    pts = ctx.points
-    if pts.empty or "mpe" not in pts.columns:
-        return pd.DataFrame(columns=[*COLUMNS, "asset"])
-    seen = pts[["asset", "date", "test"]]
-    seen = seen[seen["asset"].isin(list(plans))].drop_duplicates()
-    latest = seen.sort_values(["date", "test"], kind="stable").drop_duplicates("asset", keep="last")
-    ohms = _shunts(ctx)
-    rigs: dict[str, tuple[str, str | None, float, str]] = {}  # asset -> method, shunt id, Ω, label
-    shunt_for: dict[Any, tuple[str, str | None, float, str] | None] = {}  # the registry shunt for each Ω asked
-    for asset in latest["asset"]:
-        plan = plans[asset]
-        if plan.get("method") == "direct":
-            rigs[asset] = ("direct", None, np.nan, "direct")
-        elif plan.get("method") == "shunt":
-            wanted = plan.get("shunt_ohm")
-            if wanted not in shunt_for:
-                match = ohms[np.isclose(ohms, float(wanted))] if wanted is not None else ohms
-                ident, value = (str(match.index[0]), float(match.iloc[0])) if len(match) else ("", np.nan)
-                shunt_for[wanted] = ("shunt", ident, value, f"shunt {ident} ({value:g} Ω)") if len(match) else None
-            found = shunt_for[wanted]
-            if found is not None:
-                rigs[asset] = found
-    latest = latest[latest["asset"].isin(list(rigs))].set_index("asset")["test"]
-    pts = pts[(pts["test"] == pts["asset"].map(latest)) & pts["measured"].notna()]
-    if pts.empty:
-        return pd.DataFrame(columns=[*COLUMNS, "asset"])
-    rig = pd.DataFrame.from_dict(rigs, orient="index", columns=["method", "shunt", "ohm", "label"])
-    rig = rig.reindex(pts["asset"].to_numpy()).set_axis(pts.index)
-    meters = pd.Series({a: plans[a].get("meter") for a in rigs}, dtype=object).reindex(pts["asset"].to_numpy())
-    shunt = rig["method"] == "shunt"
-    amps = q.convert(pts["measured"], pts["output_unit"], "A")
-    alt = _as_read_by(pts, rig["method"], rig["shunt"].where(shunt, None), (amps * rig["ohm"]).where(
-        shunt, pts["measured"]), pts["output_unit"].where(~shunt, "V"))
-    alt["meter"] = alt["meter"].where(~meters.astype(bool).to_numpy(), meters.to_numpy())  # the planned meter
-    table = _evaluate(ctx, alt, rig["label"])
-    return table.assign(asset=pts["asset"].to_numpy(), input_pct=pts["input_pct"].to_numpy(),
-                        mpe=pts["mpe"].to_numpy(), output_unit=pts["output_unit"].to_numpy())
-
-
-@hookimpl
-def ll_sheet_sections(ctx: RunContext, plans: dict[str, dict[str, Any]]) -> dict[str, list[Section]]:
-    table = planned(ctx, {str(a): p for a, p in plans.items()})
-    if table.empty:
-        return {}
-    first = table.drop_duplicates("asset")
-    names = dict(zip(first["asset"], zip(first["output_unit"].astype(str), first["alternative"], strict=True),
-                     strict=True))
-    ok = np.where(table["tur"].to_numpy(dtype=float) >= MIN_TUR, "yes", "no")
-    columns = [phase_texts(table["phase"]), texts(table["point"]), fmt_all(table["input_pct"], 3),
-               fmt_all(table["mpe"]), fmt_all(table["U"]), fmt_all(table["tur"], 3), ok]
-    return {asset: [Section(
-        title=f"Expected U ({names[asset][0]}) and TUR with the planned rig: {names[asset][1]}",
-        kind="table", columns=["Phase", "#", "Input %", "MPE ±", "U", "TUR", f"TUR ≥ {MIN_TUR:g}:1"],
-        rows=rows, order=40)] for asset, rows in rows_by(table["asset"], columns).items()}

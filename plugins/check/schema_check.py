@@ -201,13 +201,33 @@ def check_points(ctx: RunContext) -> list[Finding]:
     pts = pts.drop(index=list(bad))
     parsed = q.parse_column(pts["input"].where(pts["input"].notna(), ""))
     pts["input_value"], pts["input_written_unit"] = parsed["value"], parsed["unit"]
+    input_units = _input_units(ctx, pts)
     for idx, problem in parsed["problem"].dropna().items():
-        msg = "missing input" if pts.at[idx, "input"] is None else problem
+        msg = "missing input" if pts.at[idx, "input"] is None else _own_unit(pts.at[idx, "input"], problem,
+                                                                             input_units.get(idx))
         findings.append(error(f"input: {msg}", field="input", **where(idx)))
     findings += _parse_readings(pts, where)
     ctx.points = pts
     findings += _check_duplicate_points(pts, where)
     return findings
+
+
+def _input_units(ctx: RunContext, pts: pd.DataFrame) -> dict[Any, str]:
+    """Each point's asset's input unit from assets.csv (points of unknown assets left out)."""
+    if ctx.assets.empty or "input_unit" not in ctx.assets.columns:
+        return {}
+    asset = pts["test"].map(ctx.tests.drop_duplicates("test").set_index("test")["asset"])
+    unit = asset.map(ctx.assets["input_unit"].to_dict())
+    return {i: str(u) for i, u in unit.items() if isinstance(u, str) and u}
+
+
+def _own_unit(text: Any, problem: str, unit: str | None) -> str:
+    """A bare input's message, suggesting the asset's own input unit (e.g. A for a current transducer)
+    rather than the general mA, V or %."""
+    if unit is None or not isinstance(text, int | float | str) or "has no unit" not in problem:
+        return problem
+    value = str(text).strip()
+    return f"'{value}' has no unit: write it in the asset's input unit, e.g. '{value} {unit}', or as % of its range"
 
 
 def _parse_readings(pts: pd.DataFrame, where) -> list[Finding]:  # type: ignore[no-untyped-def]

@@ -65,13 +65,10 @@ def test_pages(ctx: RunContext, tests: pd.DataFrame, points: pd.DataFrame, used:
     out: dict[Any, dict[str, Any]] = {}
     for head in heads:
         tid = head["test"]
-        burden = [(label, head[col], unit) for col, label, unit in fleet_pages.BURDEN if col in head
-                  and head[col] not in (None, "")]
-        analysis = [(label, head[col]) for col, label in fleet_pages.ANALYSIS if col in head and head[col] is not None]
         chart = charts.get(tid)
         out[tid] = {
             "test": head, "asset": registry.get(head.get("asset"), {}), "instruments": rig.get(tid, []),
-            "points": table.get(tid, []), "point_cols": pts_cols, "burden": burden, "analysis": analysis,
+            "points": table.get(tid, []), "point_cols": pts_cols,
             "findings": [{"severity": f.severity, "line": values.plain(f.line), "field": f.field, "point": f.point,
                           "message": f.message, "stage": f.stage}
                          for f in fleet_pages.findings_of(ctx, str(head["source_file"]))],

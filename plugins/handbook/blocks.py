@@ -78,9 +78,27 @@ def _row(row: Any, cell: Any) -> Any:
     return cell(row)
 
 
+def one_token(value: Any) -> bool:
+    """A cell that is one token with a hyphen (a date, an asset or instrument id): never broken at its
+    hyphens (a browser may break after any hyphen, leaving '2026-03-' above '17')."""
+    text = str(value)
+    return "-" in text and len(text) <= 40 and not any(c.isspace() for c in text)
+
+
+def _td(value: Any) -> str:
+    return ('<td class="nw">' if one_token(value) else "<td>") + _esc(value) + "</td>"
+
+
+#: a table of more columns than this spans the printed page's two columns of sections
+WIDE_COLUMNS = 6
+
+
 def _block(get: Any, cell: Any) -> str:
     kind = get("kind")
-    parts = ['<section class="plugin-section">\n  <h2>', _esc(cell(get("title"))), "</h2>\n"]
+    screen = bool(get("screen_only"))
+    wide = kind == "table" and len(get("columns") or []) > WIDE_COLUMNS
+    parts = ['<section class="plugin-section', " screen-only" if screen else "", " wide" if wide else "", '">\n  <h2>',
+             _esc(cell(get("title"))), "</h2>\n"]
     if kind == "facts":
         parts.append('  <dl class="facts">')
         for pair in get("rows") or []:
@@ -94,7 +112,7 @@ def _block(get: Any, cell: Any) -> str:
         parts.append("</tr></thead>\n  <tbody>")
         for row in get("rows") or []:
             cells = _row(row, cell)
-            parts.append("<tr><td>" + "</td><td>".join(map(_esc, cells)) + "</td></tr>" if cells else "<tr></tr>")
+            parts.append("<tr>" + "".join(_td(c) for c in cells) + "</tr>")
         parts.append("</tbody></table></div>\n")
     elif kind == "text":
         parts += ["<p>", _esc(cell(get("text"))), "</p>\n"]
@@ -105,6 +123,9 @@ def _block(get: Any, cell: Any) -> str:
             parts += ["<figcaption>", _esc(alt), "</figcaption>"]
         parts.append("</figure>\n")
     parts.append("</section>")
+    if screen:  # what the printed page says in its place
+        parts += ['<p class="print-only">', _esc(cell(get("title"))), ": on the screen page (", _esc(str(len(
+            get("rows") or []))), " rows); the per-point summary above gives each point's figures.</p>"]
     return "".join(parts)
 
 
@@ -125,14 +146,16 @@ def sections_html(sections: list[Section] | None) -> Markup:
 
 
 def point_rows(points: list[dict[str, Any]] | None, point_cols: Any, rule: Any) -> Markup:
-    """The body rows of a test page's points table: one row per point, the uncertainty, TUR and NE 43
-    cells only where ``point_cols`` has them; a point without its own decision rule shows ``rule``."""
+    """The body rows of a test page's points table: one row per point, its decision third (in sight on a
+    narrow screen), the uncertainty, TUR and NE 43 cells only where ``point_cols`` has them; a point without
+    its own decision rule shows ``rule``."""
     with_u, with_tur, with_band = ("U" in point_cols), ("tur" in point_cols), ("ne43_band" in point_cols)
     out: list[str] = []
     for p in points or []:
         g = p.get
         out += ['<tr class="d-', _esc(g("decision", MISSING)), '">\n<td>', _esc(phase(g("phase", MISSING))),
-                "</td><td>", _esc(g("point", MISSING)), "</td><td>", _esc(g("input", MISSING)), "</td><td>",
+                "</td><td>", _esc(g("point", MISSING)), "</td><td>", verdict(g("decision", MISSING)), "</td><td>",
+                _esc(g("input", MISSING)), "</td><td>",
                 _esc(num(g("input_pct", MISSING), 1)), "</td><td>", _esc(g("reading_text", MISSING) or "—"),
                 "</td>\n<td>", _esc(num(g("expected", MISSING))), "</td><td>", _esc(num(g("measured", MISSING))),
                 "</td><td>", _esc(num(g("error", MISSING), 4, sign=True)), "</td><td>",
@@ -145,6 +168,5 @@ def point_rows(points: list[dict[str, Any]] | None, point_cols: Any, rule: Any) 
             out += ["<td>", _esc(num(g("tur", MISSING), 1)), "</td>"]
         if with_band:
             out += ["<td>", _esc(g("ne43_band", MISSING) or "—"), "</td>"]
-        out += ["<td>", verdict(g("decision", MISSING)), "</td><td>", _esc(g("decision_rule", MISSING) or rule),
-                "</td>\n</tr>\n"]
+        out += ["<td>", _esc(g("decision_rule", MISSING) or rule), "</td>\n</tr>\n"]
     return Markup("".join(out))

@@ -14,7 +14,7 @@ import pandas as pd
 from loopledger.cache.forking import can_fork, fork_pool, share_out
 from loopledger.context import RunContext
 from loopledger.plugins.handbook import asset_pages as pages
-from loopledger.plugins.handbook import blocks, digests, fleet_pages, reuse, values
+from loopledger.plugins.handbook import blocks, cautions, digests, fleet_pages, reuse, values
 from loopledger.plugins.handbook.fleet_pages import CAUTIONS
 from loopledger.plugins.handbook.render import FORMAT, STATIC, Job, _depth, _theme_digest, render_job, render_markdown
 from loopledger.plugins.history import traceability
@@ -103,16 +103,19 @@ def batch_jobs(ctx: RunContext, sh: Shared, asset_ids: list[Any], test_ids: list
             charts["drift_chart"] = ("drift", data.pop("drift_chart"), f"{ident}: as-found error by year")
         out.append(_job(sh, f"assets/{name}.html", "asset.html", data, charts))
         out.append(_job(sh, f"sheets/{name}.html", "sheet.html", {"sheet": sheets[str(ident)],
-                                                                   "asset_page": f"{name}.html"}))
-    for tid, page, asset, date, source, remarks in zip(
+                                                                   "asset_page": f"{name}.html",
+                                                                   "page_cautions": sheets[str(ident)]["cautions"]}))
+    for tid, page, asset, date, source, remarks, connection in zip(
             tests["test"], tests["page"], tests["asset"], tests["date"], tests["source_file"],
-            tests["remarks"] if "remarks" in tests else [None] * len(tests), strict=True):
+            tests["remarks"] if "remarks" in tests else [None] * len(tests),
+            tests["connection"] if "connection" in tests else [None] * len(tests), strict=True):
         data = dict(test_pages[tid])
         chart = data.pop("chart")
         charts = {"chart": ("error", chart, f"{asset}: test of {date}")} if chart else {}
         data["remarks_html"] = render_markdown(remarks)
         data["original"] = pages.original_file(ctx.raw_files.get(source), source)
         data["has_asset"] = asset in ctx.assets.index
+        data["page_cautions"] = cautions.for_asset(ctx.assets.loc[asset] if data["has_asset"] else {}, connection)
         out.append(_job(sh, f"tests/{page}.html", "test.html", data, charts))
     return out
 

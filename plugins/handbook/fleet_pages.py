@@ -18,29 +18,14 @@ from loopledger import keys
 from loopledger.cache.store import REGISTRY_FILES
 from loopledger.context import RunContext
 from loopledger.findings import by_file
+from loopledger.plugins.handbook import cautions
 from loopledger.plugins.handbook.values import _col, _dates, grouped, page_name, page_names, plain, records
 from loopledger.plugins.history.traceability import cal_status
 
-CAUTIONS = [
-    "Never open-circuit the secondary of a current transformer that may carry primary current: "
-    "short it at the test block before disconnecting anything.",
-    "Isolate, lock out and prove dead before touching terminals; work under the site's permit-to-work "
-    "and test-block procedures.",
-    "Use instruments, leads and probes rated for the measurement category of the circuit.",
-    "Injection testing is for competent, authorised people only. Local codes, the site's rules and licensed "
-    "practice take precedence over anything in this handbook.",
-]
+CAUTIONS = cautions.ALL  # the footer of the fleet pages: every caution the handbook gives
 
 #: roles of the reference instruments named in a result file
 ROLES = ("source", "meter", "shunt")
-#: analysis columns (issue 3), in % of span, with their labels
-ANALYSIS = [("zero_error_pct", "Zero error"), ("span_error_pct", "Span error"),
-            ("nonlin_terminal_pct", "Non-linearity (terminal)"),
-            ("nonlin_independent_pct", "Non-linearity (independent)"), ("hysteresis_pct", "Hysteresis"),
-            ("nonrepeatability_pct", "Non-repeatability"), ("worst_after_trim_pct", "Worst error after trim")]
-BURDEN = [("loop_ohm", "Loop resistance", "Ω"), ("limit_ohm", "Largest load the output drives", "Ω"),
-          ("margin_pct", "Margin", "%"), ("burden_status", "Burden check", ""),
-          ("fault_signature", "Fault signature", "")]
 SOON_DAYS = 90  # "due soon" on the index: common practice for a planning look-ahead
 PREDICT_DAYS = 365  # a predicted exit from tolerance within a year (or before the next due date) is "soon"
 

@@ -16,10 +16,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-WIDTH, HEIGHT = 640, 340
+WIDTH, HEIGHT = 960, 340
 #: the plot area inside the canvas: left, top, right, bottom (pixels); the key sits right of it
-LEFT, TOP, RIGHT, BOTTOM = 66.0, 34.0, 486.0, 292.0
-KEY_X = 498.0
+LEFT, TOP, RIGHT, BOTTOM = 66.0, 34.0, 806.0, 292.0
+KEY_X = 818.0
 #: values are clamped to this size before drawing, so a wild reading cannot overflow the arithmetic
 LARGEST = 1e12
 

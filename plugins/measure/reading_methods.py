@@ -21,7 +21,9 @@ from loopledger.scaling import where
 def _unit_error(points: pd.DataFrame, bad: pd.Series, wanted: str) -> list[Finding]:
     """One error per point of ``bad``; ``{output_unit}`` in ``wanted`` becomes the point's output unit."""
     return [error(f"reading unit '{points.at[i, 'reading_unit']}' is not "
-                  + wanted.format(output_unit=points.at[i, "output_unit"]), field="reading", **where(points, i))
+                  + wanted.format(output_unit=points.at[i, "output_unit"])
+                  + q.case_hint(str(points.at[i, "reading_unit"]), str(points.at[i, "output_unit"])),
+                  field="reading", **where(points, i))
             for i in points.index[bad]]
 
 

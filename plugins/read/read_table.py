@@ -4,7 +4,8 @@ Columns: the header fields (``asset``, ``date``, ... ``source``, ``meter``,
 ``shunt``; the same value on every row), ``phase`` (as_found | as_left) and the
 point fields (``input``, ``reading``, ``direction``, ``reading_min``,
 ``reading_max``, ``readings`` as ``;``-separated values). Bare numbers may take
-their unit from ``input_unit`` / ``reading_unit`` columns.
+their unit from ``input_unit`` / ``reading_unit`` columns. The ``sheet_*`` columns of a file written by
+``loopledger sheet --fill`` are guidance and are not read.
 """
 
 from __future__ import annotations
@@ -18,10 +19,14 @@ from loopledger.contracts import ResultRead
 from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.load import HEADER_FIELDS, POINT_FIELDS
+from loopledger.plugins.read.blank import not_filled_in
 from loopledger.textio import decode, other_separator
 
 UNIT_COLUMNS = {"input_unit": ("input",), "reading_unit": ("reading", "reading_min", "reading_max", "readings")}
-KNOWN = {*HEADER_FIELDS, *POINT_FIELDS, "phase", *UNIT_COLUMNS}
+#: the guidance ``loopledger sheet --fill`` writes beside each point (expected reading, accepted window,
+#: inside/OUTSIDE): for the technician, never read as evidence
+SHEET_COLUMNS = ("sheet_expected", "sheet_accept_from", "sheet_accept_to", "sheet_check")
+KNOWN = {*HEADER_FIELDS, *POINT_FIELDS, "phase", *UNIT_COLUMNS, *SHEET_COLUMNS}
 
 
 Table = tuple[list[str], list[tuple[int, list[str]]]]  # column names, (line, cells) per row
@@ -156,4 +161,4 @@ def ll_read_result(path: Path, rel: str, data: bytes, limits: dict[str, int] | N
         return ResultRead({}, [], findings=[error(str(exc), file=rel, code="encoding")])
     except Exception as exc:  # pandas and openpyxl raise many kinds for a damaged file
         return ResultRead({}, [], findings=[error(f"cannot read the table: {exc}", file=rel, code="table")])
-    return parse(table, rel)
+    return not_filled_in(parse(table, rel), rel)

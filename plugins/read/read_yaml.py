@@ -12,6 +12,7 @@ from loopledger.contracts import ResultRead
 from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.load import HEADER_FIELDS, POINT_FIELDS
+from loopledger.plugins.read.blank import not_filled_in
 from loopledger.textio import AliasBomb, DuplicateKey, TooManyNodes, compose, count_nodes, decode, key_lines, node_line
 
 PHASES = ("as_found", "as_left")
@@ -142,4 +143,4 @@ def ll_read_result(path: Path, rel: str, data: bytes, limits: dict[str, int] | N
         return ResultRead({}, [], findings=[error(
             f"the file holds {exc}, more than points within limits.max_points, each with up to "
             "limits.max_repeats readings, could need; it is not read further", file=rel, code="too-many")])
-    return parse(text, rel)
+    return not_filled_in(parse(text, rel), rel)

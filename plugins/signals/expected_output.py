@@ -49,10 +49,44 @@ def evaluate_all(ctx: RunContext) -> list[Finding]:
     ctx.points = pts
     low, high = OUTSIDE_PCT
     outside = pts.index[(pts["input_pct"] < low) | (pts["input_pct"] > high)]
+    hints = _input_hints(pts)
     findings += [warning(f"input at {pts.at[i, 'input_pct']:.0f} % of the asset's input range: outside it the "
                          "expected output is extrapolated, and a 4-20 mA output stops near 3.8 and 20.5 mA "
-                         "(NE 43); check the input written", field="input", **where(pts, i)) for i in outside]
+                         "(NE 43); check the input written" + hints.get(i, ""), field="input", **where(pts, i))
+                 for i in outside]
     return findings
+
+
+def _input_hints(pts: pd.DataFrame) -> dict[object, str]:
+    """What an input outside the range probably meant, per point: primary values without
+    ``injection: primary`` (the asset has ct_ratio/vt_ratio and the input divided by them is in range), or a
+    negative % on a range that straddles zero (% counts from the range's minimum, not from zero)."""
+    from loopledger.scaling import ratio
+
+    hints: dict[object, str] = {}
+    cols = [c for c in ("ct_ratio", "vt_ratio") if c in pts.columns]
+    lo, hi = pts["input_min"].astype(float), pts["input_max"].astype(float)
+    value = lo + pts["input_pct"] / 100.0 * (hi - lo)  # the input in the asset's input unit
+    if cols and "injection" in pts.columns:
+        factors = [ratio(pts[c]) for c in cols]
+        both = factors[0].fillna(1.0) * (factors[1].fillna(1.0) if len(factors) > 1 else 1.0)
+        given = factors[0].notna() | (factors[1].notna() if len(factors) > 1 else False)
+        as_primary = (value / both - lo) / (hi - lo) * 100.0
+        secondary = pts["injection"].fillna("secondary").astype(str) != "primary"
+        looks = given & secondary & (pts["input_pct"] > OUTSIDE_PCT[1]) & as_primary.between(*OUTSIDE_PCT)
+        for i in pts.index[looks]:
+            names = " and ".join(f"{c} {pts.at[i, c]}" for c in cols if isinstance(pts.at[i, c], str))
+            hints[i] = (f"; it looks like a primary value: through {names} it is {as_primary[i]:.0f} % of the "
+                        "range, so if it was injected on the primary write 'injection: primary' in the file's "
+                        "header")
+    pct = pts["input_written_unit"].astype(str) == q.PERCENT
+    negative = pct & (pts["input_value"].astype(float) < 0) & (lo < 0) & (hi > 0)
+    for i in pts.index[negative]:
+        unit = pts.at[i, "input_unit"]
+        hints[i] = (f"; % is of the whole range from its minimum: here 0 % is {lo[i]:g} {unit} and 100 % is "
+                    f"{hi[i]:g} {unit}, so {pts.at[i, 'input_value']:g} % is {value[i]:g} {unit}. For the "
+                    f"range's minimum (full export on an import/export range) write '0 %' or '{lo[i]:g} {unit}'")
+    return hints
 
 
 def wrong_kind(points: pd.DataFrame, handler: SignalType) -> dict[str, str]:

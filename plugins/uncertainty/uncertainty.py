@@ -207,5 +207,5 @@ def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Sectio
             out[test].append(Section(
                 title=f"Uncertainty budget (contributions u_i in {unit})", kind="table",
                 columns=["Phase", "#", "Component", "Distribution", "Half-width", "Divisor", "Sensitivity", "u_i",
-                         "ν"], rows=terms.get(test, []), order=21))
+                         "ν"], rows=terms.get(test, []), order=21, screen_only=True))
     return out

@@ -1,0 +1,23 @@
+"""A result file still blank: every reading empty, as ``loopledger sheet --fill`` writes it.
+
+Reported once, as "not filled in", rather than as a missing reading at every point, so a file carried to
+site and dropped into results/ before it was filled in is told apart from a damaged one.
+"""
+
+from __future__ import annotations
+
+from loopledger.contracts import ResultRead
+from loopledger.findings import error
+
+#: the point fields that hold what was read
+READING_FIELDS = ("reading", "readings", "reading_min", "reading_max")
+
+
+def not_filled_in(read: ResultRead, rel: str) -> ResultRead:
+    """``read`` as it is, or (points planned, none of them read) one error saying the file is not filled in."""
+    if not read.points or any(p.get(f) not in (None, "", ()) for p in read.points for f in READING_FIELDS):
+        return read
+    return ResultRead({}, [], findings=[error(
+        f"not filled in: the {len(read.points)} planned point(s) have no reading yet; type the date, technician "
+        "and each reading, then save the file here again (or keep it out of results/ until the test is done)",
+        file=rel, line=1, field="reading", code="not-filled-in")])
