@@ -68,6 +68,8 @@ def compare(ctx: RunContext, previous: pd.DataFrame, today: dt.date) -> tuple[pd
     tests["changed_because"] = ""
     if previous.empty or not {"source_file", "sha256", "verdict"} <= set(previous.columns):
         return pd.DataFrame(columns=CHANGES_COLUMNS), []
+    if "verdict" not in tests.columns:  # nothing was judged (every file invalid): no verdict to compare yet
+        return pd.DataFrame(columns=CHANGES_COLUMNS), []
     before = previous.drop_duplicates("source_file").set_index("source_file")
     at = tests["source_file"].map(lambda f: f in before.index)
     same = at & (tests["sha256"] == tests["source_file"].map(before["sha256"]))
