@@ -24,9 +24,12 @@ class RunContext:
     - ``points``: one row per reading point of every valid test, with the test's
       header fields and the asset's registry fields joined on;
     - ``tests``: one row per result file (invalid ones included, ``valid`` False);
-    - ``assets``: assets.csv as validated, indexed by ``asset``;
+    - ``assets``: each asset's row of assets.csv in force now (its latest ``valid_from``), indexed by
+      ``asset``; ``asset_rows``: every valid row (an asset's history), with its line as ``asset_row``;
+      a test's points are joined with the row in force on its date;
     - ``instruments`` / ``ranges``: instruments.yaml, one row per instrument and
-      one row per meter range;
+      one row per meter range; ``calibrations``: one row per certificate (instrument, date, due,
+      certificate, as_found, remarks, line), oldest first;
     - ``extras``: the storage behind :attr:`stash`; read and write it through ``ctx.stash[KEY]`` with a key
       declared in :mod:`loopledger.keys` (each has one owner), never by a string;
     - ``fleet_only``: what only stages, exported tables and the pages about the
@@ -37,8 +40,10 @@ class RunContext:
     config: dict[str, Any]
     pm: pluggy.PluginManager
     assets: pd.DataFrame = field(default_factory=pd.DataFrame)
+    asset_rows: pd.DataFrame = field(default_factory=pd.DataFrame)
     instruments: pd.DataFrame = field(default_factory=pd.DataFrame)
     ranges: pd.DataFrame = field(default_factory=pd.DataFrame)
+    calibrations: pd.DataFrame = field(default_factory=pd.DataFrame)
     tests: pd.DataFrame = field(default_factory=pd.DataFrame)
     points: pd.DataFrame = field(default_factory=pd.DataFrame)
     findings: list[Finding] = field(default_factory=list)

@@ -98,6 +98,19 @@ def ll_config_keys() -> dict[str, list[str]] | None:
 
 
 @hookspec
+def ll_registry_keys() -> dict[str, dict[str, str]] | None:
+    """The extra assets.csv columns and instruments.yaml keys this plugin reads, beyond the schemas'.
+
+    A column of assets.csv that neither :class:`~loopledger.schemas.assets.AssetsFile`, a signal type's
+    ``asset_columns`` nor a plugin declares here is an error at line 1, and a key of an instrument in
+    instruments.yaml likewise at its line, so a misspelt column is never silently unused.
+
+    :return: ``{"assets.csv": {"column": "meaning"}, "instruments.yaml": {"key": "meaning"}}`` (either may be
+        left out).
+    """
+
+
+@hookspec
 def ll_configure(config: dict[str, Any]) -> list[Finding] | None:
     """Check this plugin's section of loopledger.toml before anything is read.
 

@@ -29,6 +29,9 @@ TEST_EXPORTS: StashKey[list[str]] = StashKey(
 REBUILD_ALL: StashKey[bool] = StashKey(
     "rebuild_all", "engine", "True when the run was told not to use its cache (--no-cache): outputs are made "
     "again whole, and the handbook renders every page rather than reuse any of the live site's")
+PREVIOUS_RUN: StashKey[dict[str, pd.DataFrame]] = StashKey(
+    "previous_run", "engine", "the previous complete run's tables in the same OUT, read before they are replaced: "
+    "'tests' (data/tests.csv) and 'changes' (data/changes.csv), as text; empty when there was none")
 
 # --- ll_uncertainty --------------------------------------------------------------------------------
 
@@ -75,9 +78,18 @@ EOPR: StashKey[pd.DataFrame] = StashKey(
 ASSETS_SUMMARY: StashKey[pd.DataFrame] = StashKey(
     "assets_summary", "intervals", "one row per asset: latest verdict, next due, overdue, recommended interval "
     "(assets.csv of OUT/data)")
+AS_FOUND_FAILURES: StashKey[pd.DataFrame] = StashKey(
+    "as_found_failures", "failures", "one row per test whose as-found phase failed (adjusted or not): worst "
+    "point, what was done, as-left result, the date a later test put it right")
 REFERENCE_USES: StashKey[pd.DataFrame] = StashKey(
-    "reference_uses", "traceability", "one row per (test, role) naming a reference instrument, with its "
-    "calibration status on the test date")
+    "reference_uses", "traceability", "one row per (test, role) naming a reference instrument, with the "
+    "certificate in force and its status on the test date")
+REFERENCES_FOUND_OUT: StashKey[pd.DataFrame] = StashKey(
+    "references_found_out", "traceability", "one row per reference a calibration found out of tolerance: the "
+    "certificate, its previous good calibration and how many tests used it in between")
+VERDICT_CHANGES: StashKey[pd.DataFrame] = StashKey(
+    "verdict_changes", "changes", "every verdict changed although its result file did not, with the date of the "
+    "run that saw it: the previous run's list and this run's (changes.csv, the handbook's changes page)")
 
 # --- ll_publish ------------------------------------------------------------------------------------
 

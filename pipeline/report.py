@@ -68,6 +68,23 @@ def print_lines(findings: list[Finding], stream: TextIO) -> None:
 TABLE_ROWS = 50
 
 
+def print_failures(ctx: RunContext, stream: TextIO) -> None:
+    """The failures view: every as-found failure the history stage listed (adjusted or not, latest or
+    not), one line each, oldest first."""
+    from loopledger import keys
+    from loopledger.terminal import visible
+
+    events = ctx.stash.get(keys.AS_FOUND_FAILURES)
+    if not isinstance(events, pd.DataFrame) or events.empty:
+        return
+    stream.write(f"as-found failures on record: {len(events)}\n")
+    for e in events.itertuples():
+        after = f"; as left {e.as_left}" if e.as_left else ""
+        fixed = f"; put right {e.put_right}" if e.put_right else ""
+        line = f"  {e.date}  {e.asset}  worst {e.worst}; {e.action}{after}{fixed}  ({e.source_file})"
+        stream.write(visible(line) + "\n")  # ids and file names quote the evidence: shown inert
+
+
 def _worst_points(ctx: RunContext, problems: pd.DataFrame) -> pd.DataFrame:
     """Per failing test: how many points of its final phase were not accepted, and the worst |error|.
 

@@ -11,11 +11,12 @@ from typing import Any
 
 import pluggy
 from loopledger import discover as disc
+from loopledger import keys
 from loopledger.config import ConfigError, load_config
 from loopledger.context import RunContext
 from loopledger.findings import Finding, sort_findings
 from loopledger.load import read_files
-from loopledger.registry import load_assets, load_instruments
+from loopledger.registry import current, load_assets, load_instruments
 
 #: the judging stages, in the order they run
 STAGES = ("check", "expected", "measured", "uncertainty", "judge", "analyse", "history")
@@ -37,6 +38,8 @@ class RunOptions:
     registers: Path | None = None
     #: follow a link at results/ or a register when it points inside the evidence folder (else refused)
     follow_links: bool = False
+    #: the output folder of the previous complete run, whose tables this run compares its verdicts with
+    previous_out: Path | None = None
 
 
 def _stamp(findings: list[Finding], stage: str) -> list[Finding]:
@@ -65,10 +68,18 @@ def prepare(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
     if rule not in ctx.decision_rules:
         raise ConfigError(f"loopledger.toml: unknown decision rule '{rule}' "
                           f"(known: {', '.join(sorted(ctx.decision_rules))})")
-    ctx.assets, found, ctx.rejected_assets = load_assets(registers, config["limits"], opts.follow_links)
+    declared: dict[str, dict[str, str]] = {"assets.csv": {}, "instruments.yaml": {}}
+    for signal in ctx.signal_types.values():
+        declared["assets.csv"].update(getattr(signal, "asset_columns", {}))
+    for found_keys in pm.hook.ll_registry_keys():
+        for file, names in (found_keys or {}).items():
+            declared.setdefault(file, {}).update(names)
+    ctx.asset_rows, found, ctx.rejected_assets = load_assets(registers, config["limits"], opts.follow_links,
+                                                         declared["assets.csv"])
+    ctx.assets = current(ctx.asset_rows)
     ctx.findings += _stamp(found, "registry")
-    ctx.instruments, ctx.ranges, found, ctx.rejected_instruments = load_instruments(registers, config["limits"],
-                                                                                    opts.follow_links)
+    ctx.instruments, ctx.ranges, ctx.calibrations, found, ctx.rejected_instruments = load_instruments(
+        registers, config["limits"], opts.follow_links, declared["instruments.yaml"])
     ctx.findings += _stamp(found, "registry")
     return ctx
 
@@ -79,8 +90,8 @@ def _known_keys(config: dict[str, Any], pm: pluggy.PluginManager) -> None:
 
     known: dict[str, set[str]] = {name: set(value) for name, value in DEFAULTS.items() if isinstance(value, dict)}
     for found in pm.hook.ll_config_keys():
-        for table, keys in (found or {}).items():
-            known.setdefault(table, set()).update(keys)
+        for table, names in (found or {}).items():
+            known.setdefault(table, set()).update(names)
     for name, value in config.items():
         if name == "as_of":
             continue
@@ -197,6 +208,8 @@ def run_stages(ctx: RunContext) -> None:
 def run(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
     """Everything up to (not including) export and publication."""
     ctx = prepare(opts, pm)
+    if opts.previous_out is not None:
+        ctx.stash[keys.PREVIOUS_RUN] = previous_run(opts.previous_out)
     if opts.files is None:
         files, found = disc.discover(opts.evidence, opts.follow_links)
     else:
@@ -216,6 +229,25 @@ def run(opts: RunOptions, pm: pluggy.PluginManager) -> RunContext:
     with writing:
         run_stages(ctx)
     return ctx
+
+
+def previous_run(out: Path) -> dict[str, Any]:
+    """The tables of the previous complete run in ``out`` (``data/`` is swapped in whole, so what is there is
+    one run's), as text: {'tests': ..., 'changes': ...}; a table missing or unreadable is left out."""
+    import pandas as pd
+    from loopledger.schemas.points import FREE_TEXT_COLUMNS
+
+    found: dict[str, Any] = {}
+    for name in ("tests", "changes"):
+        path = out / "data" / f"{name}.csv"
+        try:
+            table = pd.read_csv(path, dtype=str, keep_default_na=False)
+        except (OSError, ValueError, pd.errors.ParserError):
+            continue
+        for col in [c for c in table.columns if c in FREE_TEXT_COLUMNS]:  # the text as it was, before the
+            table[col] = table[col].str.removeprefix("'")  # one apostrophe written against spreadsheet formulas
+        found[name] = table
+    return found
 
 
 def file_hashes(ctx: RunContext) -> dict[str, str]:

@@ -29,6 +29,7 @@ BUILTIN: tuple[str, ...] = (
     "measure.measured_output",
     "measure.reading_methods",
     "measure.counts_reading",
+    "measure.source_range",
     # ll_uncertainty
     "uncertainty.uncertainty",
     # ll_judge, and the decision rules
@@ -45,9 +46,11 @@ BUILTIN: tuple[str, ...] = (
     "analyse.fault_signatures",
     # ll_history
     "history.history",
+    "history.failures",
     "history.drift",
     "history.intervals",
     "history.traceability",
+    "history.changes",
     # ll_export_tables
     "export.export_csv",
     # ll_publish

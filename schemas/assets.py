@@ -1,4 +1,9 @@
-"""assets.csv: one row per asset (the registry of devices under test)."""
+"""assets.csv: one row per asset and period (the registry of devices under test, with its history).
+
+An asset may have several rows, each with a ``valid_from`` date (blank: from the beginning). A test is
+judged against the row in force on its date: the row with the latest ``valid_from`` on or before it. So a
+re-ranged transmitter keeps its old range for its old tests.
+"""
 
 from __future__ import annotations
 
@@ -8,6 +13,14 @@ from pandera.typing import Series
 
 #: an asset id is used in page names: no path separators or control characters
 ASSET_ID = r"^[^\x00-\x1f\x7f/\\]+$"
+
+
+def _above(high, low):  # type: ignore[no-untyped-def]
+    """high > low where both are numbers (a cell that is not one is reported by its own column's check)."""
+    import pandas as pd
+
+    hi, lo = pd.to_numeric(high, errors="coerce"), pd.to_numeric(low, errors="coerce")
+    return hi.isna() | lo.isna() | (hi > lo)
 
 
 class AssetsFile(pa.DataFrameModel):
@@ -22,9 +35,11 @@ class AssetsFile(pa.DataFrameModel):
     - ``interval_months`` is the planned test interval, in whole months (1 to 240);
     - ``hazardous_area`` marks a loop in a hazardous area (e.g. ``zone 1``; blank, ``no`` or ``false`` when
       it is not): its test sheet and pages then carry the intrinsically-safe caution.
+    - ``valid_from`` (YYYY-MM-DD or blank) is the first date a row is in force; two rows of one asset must
+      not share it (two blanks included).
     """
 
-    asset: Series[str] = pa.Field(unique=True, str_matches=ASSET_ID, str_length={"min_value": 1, "max_value": 120})
+    asset: Series[str] = pa.Field(str_matches=ASSET_ID, str_length={"min_value": 1, "max_value": 120})
     description: Series[str] = pa.Field(nullable=True)
     site: Series[str] = pa.Field(nullable=True)
     area: Series[str] = pa.Field(nullable=True)
@@ -52,6 +67,7 @@ class AssetsFile(pa.DataFrameModel):
     #: whole months, at most 20 years (our own bound: a longer plan is taken for a typing error)
     interval_months: Series[float] = pa.Field(nullable=True, gt=0, le=240)
     hazardous_area: Series[str] = pa.Field(nullable=True)
+    valid_from: Series[str] = pa.Field(nullable=True)
 
     @pa.check("ct_ratio", error=RATIO_ERROR)
     def ct_ratio_ok(cls, col):  # type: ignore[no-untyped-def]
@@ -61,13 +77,24 @@ class AssetsFile(pa.DataFrameModel):
     def whole_months(cls, col):  # type: ignore[no-untyped-def]
         return col.isna() | (col % 1 == 0)
 
-    @pa.dataframe_check(error="input_max must differ from input_min")
-    def input_range(cls, df):  # type: ignore[no-untyped-def]
-        return df["input_max"] != df["input_min"]
+    @pa.check("valid_from", error="must be a date written YYYY-MM-DD (or left blank: from the beginning)")
+    def valid_from_is_date(cls, col):  # type: ignore[no-untyped-def]
+        from loopledger.schemas.results import date_part
 
-    @pa.dataframe_check(error="output_max must differ from output_min")
+        return col.isna() | date_part(col).notna()
+
+    @pa.dataframe_check(error="input_max must be above input_min (are they swapped?)")
+    def input_range(cls, df):  # type: ignore[no-untyped-def]
+        return _above(df["input_max"], df["input_min"])
+
+    @pa.dataframe_check(error="output_max must be above output_min (are they swapped?)")
     def output_range(cls, df):  # type: ignore[no-untyped-def]
-        return df["output_max"] != df["output_min"]
+        return _above(df["output_max"], df["output_min"])
+
+    @pa.dataframe_check(error="asset and valid_from must not repeat another row's: two rows of one asset in "
+                              "force from the same date")
+    def one_row_per_date(cls, df):  # type: ignore[no-untyped-def]
+        return ~df.duplicated(["asset", "valid_from"], keep=False)
 
     class Config:
         strict = False

@@ -5,8 +5,10 @@ DMM-1:
   kind: meter                 # source | meter | shunt | probe
   description: Handheld multimeter
   serial: "4417021"
-  calibrated: 2026-01-12
-  due: 2027-01-12
+  calibrations:               # every certificate, oldest first (or the flat calibrated/due of the latest one)
+    - {date: 2025-01-10, due: 2026-01-10, certificate: C-2025-0117}
+    - {date: 2026-01-12, due: 2027-01-12, certificate: C-2026-0042, as_found: fail,
+       remarks: "20 mA range read 0.02 % high"}
   ranges:                     # meters: one entry per range; the unit says the function
     - {range: 20 mA, accuracy: 0.05 %rdg + 2 digits, resolution: 0.001 mA, burden: 1.8 mV/mA}
     - {range: 2 V,   accuracy: 0.025 %rdg + 2 digits, resolution: 0.0001 V}
@@ -14,6 +16,8 @@ INJ-1:
   kind: source
   range: 5 A
   accuracy: 0.1 %rdg + 0.05 %range
+  calibrated: 2026-02-01      # one calibration: the flat form
+  due: 2027-02-01
 SH-100:
   kind: shunt
   resistance: 100 ohm
@@ -65,6 +69,35 @@ class MeterRanges(pa.DataFrameModel):
     accuracy: Series[str] = pa.Field(nullable=True)
     resolution: Series[str] = pa.Field(nullable=True)
     burden: Series[str] = pa.Field(nullable=True)
+
+    class Config:
+        strict = False
+        coerce = True
+
+
+class Calibrations(pa.DataFrameModel):
+    """One row per certificate of ``calibrations:`` (the flat ``calibrated``/``due`` make one row).
+
+    ``as_found: fail`` says the instrument was found out of tolerance at that calibration: the tests that
+    used it since the calibration before are suspect (``loopledger impacted``).
+    """
+
+    instrument: Series[str]
+    date: Series[pa.DateTime]
+    due: Series[pa.DateTime] = pa.Field(nullable=True)
+    certificate: Series[str] = pa.Field(nullable=True)
+    as_found: Series[str] = pa.Field(nullable=True, isin=["pass", "fail"])
+    remarks: Series[str] = pa.Field(nullable=True)
+    line: Series[int]
+
+    @pa.dataframe_check(error="due must not be before date")
+    def due_after_date(cls, df):  # type: ignore[no-untyped-def]
+        return df["due"].isna() | (df["due"] >= df["date"])
+
+    @pa.dataframe_check(error="instrument and date must not repeat another calibration's: two certificates "
+                              "of one day")
+    def one_per_day(cls, df):  # type: ignore[no-untyped-def]
+        return ~df.duplicated(["instrument", "date"], keep=False)
 
     class Config:
         strict = False

@@ -54,6 +54,7 @@ class TestsOut(pa.DataFrameModel):
 FREE_TEXT_COLUMNS = frozenset({
     "asset", "test", "source_file", "description", "site", "area", "technician", "remarks", "warnings", "errors",
     "device_test", "loop_test", "group", "shunt", "meter", "source", "instrument", "reference_issues",
+    "certificates", "changed_because",
 })
 
 POINT_COLUMNS = list(PointsOut.to_schema().columns)

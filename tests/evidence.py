@@ -35,6 +35,13 @@ INSTRUMENTS: dict[str, Any] = {
                "reference_temperature": "23 degC", "calibrated": "2026-01-01", "due": "2027-01-01"},
 }
 
+#: a primary injection set, for tests that inject primary amps through the CT (a secondary set's 5 A range
+#: does not cover them, and the source-range check says so)
+PRIMARY_SOURCE: dict[str, Any] = {"kind": "source", "range": "5000 A", "accuracy": "0.1 %rdg + 0.02 %range",
+                                  "calibrated": "2026-01-01", "due": "2027-01-01"}
+WITH_PRIMARY: dict[str, Any] = {**INSTRUMENTS, "PRI-1": PRIMARY_SOURCE}
+PRIMARY_RIG: dict[str, Any] = {"instruments": {"source": "PRI-1", "meter": "DMM-1"}}
+
 
 def result_yaml(asset: str = "T-CT1", date: str = "2026-04-14", method: str = "direct",
                 as_found: list[tuple[str, str]] | None = None, as_left: list[tuple[str, str]] | None = None,

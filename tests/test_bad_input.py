@@ -268,7 +268,7 @@ def test_a_check_across_a_row_is_said_once_with_the_values_it_compares(tmp_path,
     ctx = run_folder(ev)
     reg = [f for f in ctx.findings if f.file == "assets.csv"]
     assert [(f.line, f.field, f.message) for f in reg] == [
-        (2, "input_max", "input_max must differ from input_min (input_max 5, input_min 5)")]
+        (2, "input_max", "input_max must be above input_min (are they swapped?) (input_max 5, input_min 5)")]
 
 
 def _instruments_text(ev, old: str, new: str) -> None:

@@ -4,12 +4,14 @@ from __future__ import annotations
 
 import pytest
 
-from tests.evidence import result_yaml, write_evidence
+from tests.evidence import PRIMARY_RIG, WITH_PRIMARY, result_yaml, write_evidence
 
 
 def _expected(tmp_path, run_folder, inputs, injection="secondary"):
     points = [(i, "12 mA") for i in inputs]
-    ev = write_evidence(tmp_path / "ev", {"t.yaml": result_yaml(as_found=points, injection=injection)})
+    rig = PRIMARY_RIG if injection == "primary" else {}  # a primary injection set for primary amps
+    ev = write_evidence(tmp_path / "ev", {"t.yaml": result_yaml(as_found=points, injection=injection, **rig)},
+                        instruments=WITH_PRIMARY)
     ctx = run_folder(ev)
     assert not [f for f in ctx.findings if f.severity == "error"], ctx.findings
     return list(ctx.points.sort_values("point")["expected"].round(9))
@@ -49,8 +51,10 @@ def test_sensitivity_is_output_span_over_input_span(tmp_path, run_folder):
     # d(output)/d(input) of a linear 0-1 A -> 4-20 mA transducer is 16 mA/A; through a 2000/1 CT it is
     # 16/2000 mA per primary amp (chain rule on the linear scaling).
     for injection, slope in (("secondary", 16.0), ("primary", 16.0 / 2000)):
+        rig = PRIMARY_RIG if injection == "primary" else {}
         ev = write_evidence(tmp_path / injection, {"t.yaml": result_yaml(as_found=[("50 %", "12 mA")],
-                                                                         injection=injection)})
+                                                                         injection=injection, **rig)},
+                            instruments=WITH_PRIMARY)
         ctx = run_folder(ev)
         assert ctx.points["sensitivity"].iloc[0] == pytest.approx(slope)
         assert ctx.points["injected"].iloc[0] == pytest.approx(0.5 if injection == "secondary" else 1000.0)

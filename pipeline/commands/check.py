@@ -153,6 +153,7 @@ def judge(args: argparse.Namespace, evidence: Path, paths: list[Path], label: st
     elif registers:
         sys.stdout.write(f"loopledger check: {', '.join(registers)} not committed before (or not in git): "
                          "verdict changes not compared\n")
+    report.print_failures(ctx, sys.stdout)
     n = len(ctx.tests)
     invalid = int((~ctx.tests["valid"].astype(bool)).sum()) if n else 0
     fails = int((ctx.tests.get("verdict") == "fail").sum()) if n else 0

@@ -168,7 +168,7 @@ def _full(args: argparse.Namespace, cache: incremental.Cache | None) -> tuple[in
     parsed = cache.load_parsed() if cache is not None else None
     opts = runner.RunOptions(args.evidence, overrides=overrides(args), follow_links=args.follow_links,
                              progress=report.progress_factory(Console(stderr=True)), parsed=parsed,
-                             save_parsed=cache.save_parsed if cache is not None else None)
+                             save_parsed=cache.save_parsed if cache is not None else None, previous_out=out)
     ctx = runner.run(opts, pm)
     if args.no_cache:
         from loopledger import keys

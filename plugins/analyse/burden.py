@@ -50,10 +50,16 @@ TEST_COLUMNS = ["loop_ohm", "limit_ohm", "margin_pct", "burden_status", "rig_ohm
                 "cable_ohm", "compliance_v", "upper_limit_ohm", "failure_limit_ohm", "high_failure_clipped"]
 
 
-def _asset_rows(ctx: RunContext, assets: pd.Series) -> pd.DataFrame:
-    table = ctx.assets.drop(columns=["asset"], errors="ignore")
-    rows = table.reindex(assets.astype(str).to_numpy())
+def _asset_rows(ctx: RunContext, assets: pd.Series, lines: pd.Series | None = None) -> pd.DataFrame:
+    """Each rig's assets.csv row: the row in force on the test's date where ``lines`` (the tests'
+    ``asset_row``) names it, else the asset's current row (a planned rig)."""
+    rows = ctx.assets.drop(columns=["asset"], errors="ignore").reindex(assets.astype(str).to_numpy()).astype(object)
     rows.index = assets.index
+    at = pd.to_numeric(lines, errors="coerce") if lines is not None and "asset_row" in ctx.asset_rows else None
+    if at is not None and (have := at.isin(ctx.asset_rows["asset_row"])).any():
+        by_line = ctx.asset_rows.set_index("asset_row", drop=False)[list(rows.columns)]
+        picked = by_line.reindex(at[have].astype(int).to_numpy()).set_axis(at[have].index).astype(object)
+        rows.loc[picked.index, picked.columns] = picked
     return rows
 
 
@@ -125,7 +131,7 @@ def analyse(ctx: RunContext, rigs: pd.DataFrame) -> pd.DataFrame:
     ``rigs`` has ``asset``, ``method``, ``connection``, ``ambient_c``, ``meter``, ``shunt`` (an
     instrument id) and optionally ``shunt_ohm`` (a resistance given directly, which wins).
     """
-    a = _asset_rows(ctx, rigs["asset"])
+    a = _asset_rows(ctx, rigs["asset"], rigs["asset_row"] if "asset_row" in rigs.columns else None)
     method = _text(rigs["method"])
     in_loop = _text(rigs["connection"]) == "in-loop"
     ambient = pd.to_numeric(rigs["ambient_c"], errors="coerce").astype(float)
@@ -331,7 +337,7 @@ RIG_COLUMNS = ["asset", "method", "connection", "ambient_c", "meter", "shunt"]
 def ll_analyse(ctx: RunContext) -> list[Finding]:
     tests = ctx.tests
     valid = tests[tests["valid"].astype(bool)]
-    rigs = valid.reindex(columns=RIG_COLUMNS)
+    rigs = valid.reindex(columns=[*RIG_COLUMNS, "asset_row"])  # judged with the assets.csv row of its date
     terms = analyse(ctx, rigs) if len(rigs) else pd.DataFrame(columns=TEST_COLUMNS)
     for col in TEST_COLUMNS:
         tests[col] = terms[col].reindex(tests.index) if col in terms else np.nan

@@ -14,6 +14,7 @@ import pandas as pd
 from loopledger import keys
 from loopledger import quantities as q
 from loopledger.context import RunContext
+from loopledger.contracts import Section
 from loopledger.findings import Finding, error, warning
 from loopledger.hookspecs import hookimpl
 from loopledger.validation import validate
@@ -66,11 +67,64 @@ def check_tests(ctx: RunContext) -> list[Finding]:
                                  line=lines.get(rel, {}).get("date", 0), field="date"))
     checked["date"] = dates.dt.strftime("%Y-%m-%d")
     findings += _check_references(ctx, checked, lines)
+    findings += _rows_in_force(ctx, checked, lines)
+    findings += _dates_in_names(checked, lines)
     findings += _check_duplicate_files(checked, lines)
     tests = ctx.tests.astype({c: object for c in checked.columns if c in ctx.tests.columns and c != "valid"})
     for col in checked.columns:
         tests.loc[checked.index, col] = checked[col]
     ctx.tests = tests
+    return findings
+
+
+def _dates_in_names(tests: pd.DataFrame, lines: dict[str, dict[str, int]]) -> list[Finding]:
+    """A warning where the file's name carries a date (YYYY-MM-DD), or one of its folders a year, that
+    disagrees with the header's date (a wrong-year typo would move the asset's next due date silently)."""
+    rel = tests["source_file"].astype(str)
+    named = rel.str.rsplit("/", n=1).str[-1].str.extract(r"(?<!\d)((?:19|20)\d\d-\d\d-\d\d)(?!\d)", expand=False)
+    folders = rel.str.rsplit("/", n=1).str[0].str.extract(r"(?:^|/)((?:19|20)\d\d)(?:/|$)", expand=False)
+    date = tests["date"].astype(str)
+    findings: list[Finding] = []
+    for at in tests.index[named.notna() & (named != date) & tests["date"].notna()]:
+        findings.append(warning(f"the header's date {date[at]} disagrees with the date {named[at]} in the file's "
+                                "name: which is right?", file=rel[at], line=lines.get(rel[at], {}).get("date", 0),
+                                field="date", code="date-mismatch"))
+    for at in tests.index[folders.notna() & (folders != date.str[:4]) & tests["date"].notna()]:
+        findings.append(warning(f"the header's date {date[at]} is not in the year of the folder {folders[at]}/ "
+                                "holding the file: which is right?", file=rel[at],
+                                line=lines.get(rel[at], {}).get("date", 0), field="date", code="date-mismatch"))
+    return findings
+
+
+def _rows_in_force(ctx: RunContext, tests: pd.DataFrame, lines: dict[str, dict[str, int]]) -> list[Finding]:
+    """Set ``asset_row`` (the assets.csv line in force on each test's date: the row of its asset with the
+    latest ``valid_from`` on or before it); a test dated before its asset's first row is an error naming
+    both dates."""
+    rows = ctx.asset_rows if len(ctx.asset_rows) else ctx.assets.reset_index(drop=True)
+    tests["asset_row"] = pd.NA
+    if rows.empty or tests.empty:
+        return []
+    begins = pd.to_datetime(rows["valid_from"], format="%Y-%m-%d") if "valid_from" in rows.columns \
+        else pd.Series(pd.NaT, index=rows.index)
+    table = pd.DataFrame({"asset": rows["asset"].astype(str), "asset_row": rows["asset_row"].astype(int),
+                          "begins": begins.fillna(pd.Timestamp("1900-01-01")).astype("datetime64[ns]")}
+                         ).sort_values("begins")
+    on = pd.to_datetime(tests["date"], format="%Y-%m-%d", errors="coerce")
+    on = on.where(on.dt.year.between(1900, 2200)).astype("datetime64[ns]")  # the rest is refused above
+    dated = pd.DataFrame({"asset": tests["asset"].astype(str), "on": on, "at": tests.index})
+    dated = dated[dated["on"].notna()].sort_values("on")
+    picked = pd.merge_asof(dated, table, left_on="on", right_on="begins", by="asset", direction="backward")
+    tests.loc[picked["at"].to_numpy(), "asset_row"] = picked["asset_row"].to_numpy()
+    first = table.groupby("asset").first()
+    findings: list[Finding] = []
+    for at, asset in picked.loc[picked["asset_row"].isna() & picked["asset"].isin(first.index),
+                                ["at", "asset"]].itertuples(index=False):
+        rel = tests.at[at, "source_file"]
+        findings.append(error(
+            f"date {tests.at[at, 'date']} is before the first row of asset {asset} in assets.csv (line "
+            f"{first.at[asset, 'asset_row']}, valid_from {first.at[asset, 'begins'].date().isoformat()}): add a "
+            "row in force on this date, or correct the date", file=rel, line=lines.get(rel, {}).get("date", 0),
+            field="date", code="before-register"))
     return findings
 
 
@@ -321,10 +375,14 @@ def _check_duplicate_points(pts: pd.DataFrame, where) -> list[Finding]:  # type:
 def join(ctx: RunContext) -> None:
     """Join each point's test header and asset registry row onto the point table."""
     header = ctx.tests[ctx.tests["valid"].astype(bool)].drop(columns=["valid"])
+    row = header["asset_row"] if "asset_row" in header.columns else pd.Series(pd.NA, index=header.index)
+    header = header.assign(asset_row=pd.to_numeric(row, errors="coerce").astype("Int64"))
     pts = ctx.points.drop(columns=[c for c in ("asset",) if c in ctx.points.columns])
     pts = pts.merge(header, on=["test", "source_file"], how="inner", validate="many_to_one")
-    assets = ctx.assets.reset_index(drop=True)
-    pts = pts.merge(assets, on="asset", how="inner", suffixes=("", "_asset"), validate="many_to_one")
+    assets = ctx.asset_rows if len(ctx.asset_rows) else ctx.assets.reset_index(drop=True)
+    assets = assets.assign(asset_row=assets["asset_row"].astype("Int64"))
+    pts = pts.merge(assets, on=["asset", "asset_row"], how="inner", suffixes=("", "_asset"),
+                    validate="many_to_one")
     ctx.points = pts.reset_index(drop=True)
 
 
@@ -334,6 +392,8 @@ def ll_check(ctx: RunContext) -> list[Finding]:
     ctx.invalidate({f.file for f in findings if f.severity == "error"})
     findings += check_points(ctx)
     ctx.invalidate({f.file for f in findings if f.severity == "error"})
+    # a file with a key nobody reads (reported when it was read) is checked whole, then left unjudged
+    ctx.invalidate({f.file for f in ctx.findings if f.code == "unknown-key" and f.severity == "error" and f.file})
     findings += _without_points(ctx)
     ctx.invalidate({f.file for f in findings if f.severity == "error"})
     join(ctx)
@@ -349,3 +409,23 @@ def _without_points(ctx: RunContext) -> list[Finding]:
     return [error("no readings: as_found and as_left are both empty", file=rel,
                   line=lines.get(rel, {}).get("as_found", 0), field="as_found")
             for rel in valid["source_file"] if rel not in has]
+
+
+@hookimpl
+def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
+    """The assets.csv row each test was judged against: its line, from when it is in force, and the ranges it
+    gave (a re-ranged asset's old tests keep their old range)."""
+    if ctx.points.empty or "asset_row" not in ctx.points.columns:
+        return {}
+    cols = ["test", "asset_row", "valid_from", "input_min", "input_max", "input_unit", "output_min", "output_max",
+            "output_unit"]
+    rows = ctx.points.loc[ctx.points["test"].isin(tests), [c for c in cols if c in ctx.points.columns]]
+    out: dict[str, list[Section]] = {}
+    for r in rows.drop_duplicates("test").itertuples(index=False):
+        begins = getattr(r, "valid_from", None)
+        out[str(r.test)] = [Section(title="Register row used", kind="facts", order=15, rows=[
+            ["assets.csv line", str(r.asset_row)],
+            ["In force from", str(begins) if isinstance(begins, str) and begins else "the beginning (no valid_from)"],
+            ["Input range", f"{r.input_min:g} to {r.input_max:g} {r.input_unit}"],
+            ["Output range", f"{r.output_min:g} to {r.output_max:g} {r.output_unit}"]])]
+    return out

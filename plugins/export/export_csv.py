@@ -22,7 +22,8 @@ def _messages(ctx: RunContext, severity: str) -> dict[str, str]:
 
 def points_table(ctx: RunContext) -> pd.DataFrame:
     extra = [c for c in ctx.stash.get(keys.POINT_EXPORTS, []) if c in ctx.points.columns]
-    cols = [*POINT_COLUMNS, "acceptance_limit", "decision_rule", "source_file", "line", *extra]
+    cols = [*POINT_COLUMNS, "acceptance_limit", "decision_rule", "source_file", "line", "asset_row",
+            "valid_from", "certificates", *extra]
     pts = ctx.points.reindex(columns=list(dict.fromkeys(cols)))
     return pts.sort_values(["asset", "date", "test", "phase", "point"], kind="stable")
 

@@ -73,8 +73,10 @@ def fleet_jobs(ctx: RunContext, sh: Shared) -> list[Job]:
             "untested": values.records(assets[assets["verdict"] == "untested"], fleet_pages.ASSET_COLS),
             "soon": values.records(assets[assets["due_soon"]].sort_values("next_due"), fleet_pages.ASSET_COLS)}),
         _job(sh, "failures.html", "failures.html", {"tests": values.records(failed_tests, fleet_pages.TEST_COLS),
-                                                    "assets": index["action"]["failed"]}),
+                                                    "assets": index["action"]["failed"],
+                                                    **fleet_pages.failure_events(ctx, tests)}),
         _job(sh, "instruments.html", "instruments.html", fleet_pages.instruments_data(ctx, sh.used, tests)),
+        _job(sh, "changes.html", "changes.html", fleet_pages.changes_data(ctx, tests)),
     ]
 
 

@@ -30,7 +30,9 @@ import pandas as pd
 from loopledger.context import RunContext
 
 #: run-context extras that are indexes of other parts of the context (made again from them)
-DERIVED_EXTRAS = {"_findings_by_file"}
+#: ``previous_run`` is the last run's tables, which no page shows (what they change, the verdict_changed
+#: column and the changes list, is hashed where it lands): hashed, it would remake every page on every run
+DERIVED_EXTRAS = {"_findings_by_file", "previous_run"}
 #: columns and index levels that name a row's test or file, tried after ``asset``
 OWNER_KEYS = ("test", "source_file")
 

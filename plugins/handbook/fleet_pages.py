@@ -148,8 +148,50 @@ def index_data(ctx: RunContext, assets: pd.DataFrame, tests: pd.DataFrame) -> di
                        "predicted": records(predicted, ASSET_COLS),
                        "reference": records(ref, TEST_COLS), "invalid": [
                            {**r, "problem": _first_error(ctx, r["source_file"])} for r in records(invalid, TEST_COLS)],
-                       "registers": [f.format() for f in ctx.findings if f.file in REGISTRY_FILES]},
+                       "registers": [f.format() for f in ctx.findings if f.file in REGISTRY_FILES],
+                       "found_out": _found_out(ctx)},
             "history_available": isinstance(ctx.stash.get(keys.ASSETS_SUMMARY), pd.DataFrame)}
+
+
+def failure_events(ctx: RunContext, tests: pd.DataFrame) -> dict[str, Any]:
+    """The failures page's list of every as-found failure, as the history stage found them (``events`` is
+    None where that stage has not run: the page says so rather than leave the list out silently)."""
+    events = ctx.stash.get(keys.AS_FOUND_FAILURES)
+    if not isinstance(events, pd.DataFrame):
+        return {"events": None}
+    pages = tests.set_index("test")["page"] if len(tests) else pd.Series(dtype=object)
+    shown = events.assign(page=events["test"].map(pages).fillna(""),
+                          asset_page=events["asset"].map(lambda a: page_name(a) if a in ctx.assets.index else ""))
+    return {"events": records(shown, ["date", "asset", "asset_page", "test", "page", "worst", "action", "as_left",
+                                      "put_right"])}
+
+
+def changes_data(ctx: RunContext, tests: pd.DataFrame) -> dict[str, Any]:
+    """The changes page: every verdict changed without its file changing, as the history stage kept them."""
+    table = ctx.stash.get(keys.VERDICT_CHANGES)
+    if not isinstance(table, pd.DataFrame) or table.empty:
+        return {"changes": [], "compared": bool(ctx.stash.get(keys.PREVIOUS_RUN))}
+    pages = tests.set_index("test")["page"] if len(tests) else pd.Series(dtype=object)
+    shown = table.sort_values(["run_date", "date", "test"], ascending=[False, False, True]).assign(
+        page=table["test"].map(pages).fillna(""),
+        asset_page=table["asset"].map(lambda a: page_name(a) if a in ctx.assets.index else ""))
+    return {"changes": records(shown, [*shown.columns]), "compared": True}
+
+
+def _certificates(ctx: RunContext, ident: str) -> list[dict[str, Any]]:
+    """An instrument's calibrations on record, oldest first, as instruments.yaml gives them."""
+    cals = ctx.calibrations
+    if cals.empty or "instrument" not in cals.columns:
+        return []
+    mine = cals[cals["instrument"] == ident]
+    shown = mine.assign(date=_dates(mine["date"]).map(plain), due=_dates(mine["due"]).map(plain))
+    return records(shown, ["date", "due", "certificate", "as_found", "remarks"])
+
+
+def _found_out(ctx: RunContext) -> list[dict[str, Any]]:
+    """The references a calibration found out of tolerance, as the traceability stage listed them."""
+    table = ctx.stash.get(keys.REFERENCES_FOUND_OUT)
+    return records(table, list(table.columns)) if isinstance(table, pd.DataFrame) and len(table) else []
 
 
 # ---------------------------------------------------------------------------------------------
@@ -219,7 +261,8 @@ def instruments_data(ctx: RunContext, used: pd.DataFrame, tests: pd.DataFrame) -
                     "resistance": plain(info.get("resistance")), "range": plain(info.get("range")),
                     "status_now": cal_status(info.get("calibrated"), info.get("due"), ctx.as_of)
                     if ident in inst.index else "not in instruments.yaml",
-                    "ranges": ranges, "tests": rows, "n_out": sum(1 for r in rows if r["out_of_cal"])})
+                    "ranges": ranges, "certificates": _certificates(ctx, ident), "tests": rows,
+                    "n_out": sum(1 for r in rows if r["out_of_cal"])})
     return {"instruments": out}
 
 

@@ -34,13 +34,54 @@ from loopledger.findings import Finding, warning
 from loopledger.hookspecs import hookimpl
 
 ROLES = ("source", "meter", "shunt")
-USES_COLUMNS = ["test", "source_file", "date", "role", "instrument", "calibrated", "due", "status"]
+USES_COLUMNS = ["test", "source_file", "date", "role", "instrument", "calibrated", "due", "certificate",
+                "found_out", "status"]
+_NO_CALS = pd.DataFrame(columns=["instrument", "date", "due", "certificate", "as_found", "remarks", "line"])
 
 
-def uses(tests: pd.DataFrame, instruments: pd.DataFrame) -> pd.DataFrame:
-    """One row per (test, role) that names an instrument, with its dates and status.
+def in_force(instrument: pd.Series, on: pd.Series, calibrations: pd.DataFrame) -> pd.DataFrame:
+    """For each (instrument, date): the certificate in force (the latest calibration on or before the date)
+    as ``calibrated``, ``due``, ``certificate``; ``first`` (the instrument's earliest calibration on record,
+    for a date before it), and ``found_out`` (the next calibration found the instrument out of tolerance
+    as found: 'DATE certificate', '' otherwise). On the index of ``instrument``."""
+    cals = calibrations if len(calibrations) else _NO_CALS
+    out = pd.DataFrame(index=instrument.index)
+    out["calibrated"] = pd.Series(pd.NaT, index=instrument.index, dtype="datetime64[ns]")
+    out["due"] = out["calibrated"].copy()
+    out["first"] = out["calibrated"].copy()
+    out["certificate"] = pd.Series("", index=instrument.index, dtype=object)
+    out["found_out"] = pd.Series("", index=instrument.index, dtype=object)
+    if cals.empty or instrument.empty:
+        return out
+    table = pd.DataFrame({"instrument": cals["instrument"].astype(str),
+                          "calibrated": pd.to_datetime(cals["date"]).astype("datetime64[ns]"),
+                          "due": pd.to_datetime(cals["due"]).astype("datetime64[ns]"),
+                          "certificate": cals["certificate"].fillna("").astype(str),
+                          "failed": cals["as_found"].fillna("").astype(str) == "fail"}).sort_values("calibrated")
+    when = pd.to_datetime(on.astype(str), errors="coerce", format="%Y-%m-%d")
+    when = when.where(when.dt.year.between(1900, 2200)).astype("datetime64[ns]")
+    left = pd.DataFrame({"instrument": instrument.astype(str), "on": when, "at": instrument.index})
+    left = left[left["on"].notna()].sort_values("on")
+    back = pd.merge_asof(left, table, left_on="on", right_on="calibrated", by="instrument", direction="backward")
+    ahead = pd.merge_asof(left, table.rename(columns={"calibrated": "next"}), left_on="on", right_on="next",
+                          by="instrument", direction="forward", allow_exact_matches=False)
+    idx = back["at"].to_numpy()
+    out.loc[idx, "calibrated"] = back["calibrated"].to_numpy()
+    out.loc[idx, "due"] = back["due"].to_numpy()
+    out.loc[idx, "certificate"] = back["certificate"].fillna("").to_numpy()
+    failed = ahead["failed"].eq(True)
+    said = ahead["next"].dt.strftime("%Y-%m-%d") + ahead["certificate"].fillna("").map(
+        lambda c: f" (certificate {c})" if c else "")
+    out.loc[ahead["at"].to_numpy(), "found_out"] = said.where(failed, "").fillna("").to_numpy()
+    out["first"] = instrument.astype(str).map(table.groupby("instrument")["calibrated"].min())
+    return out
 
-    status: ok | past-due | before-calibration | no-dates | unknown (not in the register).
+
+def uses(tests: pd.DataFrame, instruments: pd.DataFrame, calibrations: pd.DataFrame | None = None) -> pd.DataFrame:
+    """One row per (test, role) that names an instrument, with the certificate in force on the test date.
+
+    status: ok | past-due | before-calibration (before the earliest certificate on record) | no-dates |
+    unknown (not in the register). ``found_out``: the next calibration found it out of tolerance.
     """
     roles = [r for r in ROLES if r in tests.columns]
     if tests.empty or not roles:
@@ -50,14 +91,17 @@ def uses(tests: pd.DataFrame, instruments: pd.DataFrame) -> pd.DataFrame:
     long = long[long["instrument"].notna() & (long["instrument"].astype(str) != "")].copy()
     long["instrument"] = long["instrument"].astype(str)
     reg = instruments if not instruments.empty else pd.DataFrame(columns=["calibrated", "due"])
-    for col in ("calibrated", "due"):
-        long[col] = pd.to_datetime(long["instrument"].map(reg[col]) if col in reg.columns else pd.NaT)
+    cert = in_force(long["instrument"], long["date"], calibrations if calibrations is not None else _NO_CALS)
+    long["calibrated"], long["due"], long["certificate"], long["found_out"] = (
+        cert["calibrated"], cert["due"], cert["certificate"], cert["found_out"])
     when = pd.to_datetime(long["date"].astype(str), format="%Y-%m-%d", errors="coerce")  # invalid tests: any value
     known = long["instrument"].isin(reg.index)
+    early = cert["first"].notna() & (when < cert["first"])
+    long["calibrated"] = long["calibrated"].where(~early, cert["first"])  # the first on record, for the words
     long["status"] = np.select(
-        [~known, long["due"].notna() & (when > long["due"]),
-         long["calibrated"].notna() & (when < long["calibrated"]), long["calibrated"].isna() & long["due"].isna()],
-        ["unknown", "past-due", "before-calibration", "no-dates"], default="ok")
+        [~known, early, long["due"].notna() & (when > long["due"]),
+         long["calibrated"].isna() & long["due"].isna()],
+        ["unknown", "before-calibration", "past-due", "no-dates"], default="ok")
     return long.sort_values(["source_file", "role"], kind="stable").reset_index(drop=True)[USES_COLUMNS]
 
 
@@ -78,40 +122,46 @@ def cal_status(calibrated: Any, due: Any, on: Any) -> str:
     if pd.isna(on_ts):
         return f"due {due_ts.date().isoformat()}"
     if not pd.isna(cal) and on_ts < cal:
-        return f"before the calibration on file ({cal.date().isoformat()}); the earlier certificate is not recorded"
+        return (f"before the earliest calibration on file ({cal.date().isoformat()}); the earlier certificate is "
+                "not recorded")
     if on_ts > due_ts:
         return f"OUT OF CALIBRATION: due {due_ts.date().isoformat()}"
     return f"in calibration until {due_ts.date().isoformat()}"
 
 
 def usage(ctx: RunContext) -> pd.DataFrame:
-    """One row per (test, role) naming a reference instrument, with its status on the test date.
+    """One row per (test, role) naming a reference instrument, with its status on the test date (the
+    certificate in force that day, from the instrument's calibration history).
 
-    The same words as :func:`cal_status`, computed over the whole table at once.
+    The same words as :func:`cal_status`, computed over the whole table at once; ``certificate`` names the
+    certificate in force ('' where none is recorded).
     """
     tests = ctx.tests
     roles = [r for r in ROLES if r in tests.columns]
     if tests.empty or not roles:
-        return pd.DataFrame(columns=["test", "role", "instrument", "date", "status", "out_of_cal", "known"])
+        return pd.DataFrame(columns=["test", "role", "instrument", "date", "status", "out_of_cal", "known",
+                                     "certificate"])
     long = tests.melt(id_vars=["test", "date"], value_vars=roles, var_name="role", value_name="instrument")
     long = long[long["instrument"].notna() & (long["instrument"].astype(str) != "")].copy()
     long["instrument"] = long["instrument"].astype(str)
     inst = ctx.instruments
     known = long["instrument"].isin(inst.index) if len(inst) else pd.Series(False, index=long.index)
-    cal = pd.Series(_as_dates(_column(inst, "calibrated").reindex(long["instrument"])).to_numpy(), index=long.index)
-    due = pd.Series(_as_dates(_column(inst, "due").reindex(long["instrument"])).to_numpy(), index=long.index)
+    cert = in_force(long["instrument"], long["date"], ctx.calibrations)
+    first, due = cert["first"], cert["due"]
     on = _as_dates(long["date"].astype(str))  # invalid tests: any value
-    due_text, cal_text = due.dt.strftime("%Y-%m-%d"), cal.dt.strftime("%Y-%m-%d")
-    early = cal.notna() & on.notna() & (on < cal)
-    late = due.notna() & on.notna() & (on > due)
+    due_text, first_text = due.dt.strftime("%Y-%m-%d"), first.dt.strftime("%Y-%m-%d")
+    early = first.notna() & on.notna() & (on < first)
+    late = due.notna() & on.notna() & (on > due) & ~early
     long["known"] = known
+    long["certificate"] = cert["certificate"].where(~early, "")
+    named = long["certificate"].map(lambda c: f" (certificate {c})" if c else "")
     long["status"] = np.select(
-        [~known, due.isna(), on.isna(), early, late],
-        ["not in instruments.yaml", "no calibration due date recorded", "due " + due_text,
-         "before the calibration on file (" + cal_text + "); the earlier certificate is not recorded",
-         "OUT OF CALIBRATION: due " + due_text],
-        default="in calibration until " + due_text)
-    long["out_of_cal"] = (known & late & ~early).astype(bool)
+        [~known, early, due.isna(), on.isna(), late],
+        ["not in instruments.yaml",
+         "before the earliest calibration on file (" + first_text + "); the earlier certificate is not recorded",
+         "no calibration due date recorded", "due " + due_text, "OUT OF CALIBRATION: due " + due_text + named],
+        default="in calibration until " + due_text + named)
+    long["out_of_cal"] = (known & late).astype(bool)
     long["role_order"] = long["role"].map(ROLES.index)
     return long.sort_values(["test", "role_order"]).drop(columns="role_order").reset_index(drop=True)
 
@@ -126,26 +176,40 @@ def describe(table: pd.DataFrame) -> pd.Series:
     text = np.select(
         [table["status"] == "past-due", table["status"] == "before-calibration", table["status"] == "no-dates"],
         [who + " was past its calibration due date " + due,
-         who + " was used before its calibration on record (" + cal + "); the certificate in force that day "
-         "is not in instruments.yaml",
+         who + " was used before its earliest calibration on record (" + cal + "); the certificate in force "
+         "that day is not in instruments.yaml",
          who + " has no calibration dates in instruments.yaml"], default="")
-    return pd.Series(text, index=table.index, dtype=object)
+    found = table["found_out"].fillna("").astype(str) if "found_out" in table.columns else \
+        pd.Series("", index=table.index)
+    out = (who + " was found out of tolerance at its next calibration, " + found + ": see loopledger impacted "
+           + table["instrument"].astype(str)).where(found != "", "")
+    joined = [("; ".join(p for p in pair if p)) for pair in zip(text, out, strict=True)]
+    return pd.Series(joined, index=table.index, dtype=object)
 
 
 def check(ctx: RunContext) -> list[Finding]:
     table = uses(ctx.tests[ctx.tests["date"].notna()] if "date" in ctx.tests.columns else ctx.tests,
-                 ctx.instruments)
+                 ctx.instruments, ctx.calibrations)
     table = table[table["status"] != "unknown"]  # the schema check already reported those
     ctx.stash[keys.REFERENCE_USES] = table
-    issues = table[table["status"] != "ok"].copy()
+    issues = table[(table["status"] != "ok") | (table["found_out"] != "")].copy()
     issues["text"] = describe(issues)
     by_test = issues.groupby("test")["text"].agg("; ".join)
     past_due = set(issues.loc[issues["status"] == "past-due", "test"])
     ctx.tests["reference_out_of_cal"] = ctx.tests["test"].isin(past_due).astype(bool)
+    ctx.tests["reference_found_out"] = ctx.tests["test"].isin(set(issues.loc[issues["found_out"] != "", "test"]))
     said = by_test.to_dict()
     ctx.tests["reference_issues"] = [str(said.get(t, "")) for t in ctx.tests["test"].tolist()]
+    named = table[table["certificate"] != ""].sort_values(["test", "role"], key=lambda c: c.map(ROLES.index)
+                                                           if c.name == "role" else c, kind="stable")
+    certs = (named["instrument"] + ":" + named["certificate"]).groupby(named["test"]).agg(";".join).to_dict()
+    ctx.tests["certificates"] = [str(certs.get(t, "")) for t in ctx.tests["test"].tolist()]
+    if len(ctx.points):
+        ctx.points["certificates"] = [str(certs.get(t, "")) for t in ctx.points["test"].tolist()]
+    ctx.stash[keys.REFERENCES_FOUND_OUT] = found_out(ctx)
     exports = ctx.stash.setdefault(keys.TEST_EXPORTS, [])
-    exports += [c for c in ("reference_out_of_cal", "reference_issues") if c not in exports]
+    exports += [c for c in ("reference_out_of_cal", "reference_found_out", "reference_issues", "certificates",
+                            "asset_row") if c not in exports]
     # a warning only where the register shows the instrument out of calibration; the other issues are
     # in reference_issues and on the test page (one note per historical test would bury the warnings)
     # nor where the date itself is an error (in the future, or a typing slip): the file says so already
@@ -164,7 +228,7 @@ def ll_history(ctx: RunContext) -> list[Finding]:
 
 #: how a page words each status of :func:`uses`
 STATUS_WORDS = {"ok": "within calibration", "past-due": "PAST DUE on the test date",
-                "before-calibration": "before the calibration on record", "no-dates": "no dates on record"}
+                "before-calibration": "before the earliest calibration on record", "no-dates": "no dates on record"}
 
 
 @hookimpl
@@ -173,33 +237,82 @@ def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Sectio
     if table is None:
         return {}
     mine = table[table["test"].isin(tests)]
+    found = mine["found_out"].fillna("").astype(str)
     shown = pd.DataFrame({
         "role": mine["role"], "instrument": mine["instrument"],
+        "certificate": mine["certificate"].where(mine["certificate"] != "", "—"),
         **{col: pd.to_datetime(mine[col]).dt.strftime("%Y-%m-%d").fillna("—") for col in ("calibrated", "due")},
-        "status": mine["status"].map(STATUS_WORDS).fillna(mine["status"]),
+        "status": mine["status"].map(STATUS_WORDS).fillna(mine["status"]) + found.map(
+            lambda f: f"; FOUND OUT OF TOLERANCE at its next calibration, {f}" if f else ""),
     })
     rows = grouped(mine["test"].tolist(), shown.to_numpy().tolist())
     return {test: [Section(title="Reference instruments on the test date", kind="table", order=40,
-                           columns=["Role", "Instrument", "Calibrated", "Due", "Status"], rows=body)]
+                           columns=["Role", "Instrument", "Certificate in force", "Calibrated", "Due", "Status"],
+                           rows=body)]
             for test, body in rows.items()}
 
 
 # --- loopledger impacted ------------------------------------------------------------------------------
 
-def impacted(ctx: RunContext, instrument: str, since: dt.date | None) -> tuple[pd.DataFrame, dt.date | None]:
-    """Tests that used ``instrument`` on or after ``since`` (default: its calibrated date on record).
+def window(ctx: RunContext, instrument: str) -> tuple[dt.date | None, dt.date | None, pd.Series | None]:
+    """(since, until, the failing calibration) of the tests to review for ``instrument``: where its latest
+    calibration that found it out of tolerance (``as_found: fail``) is on record, from the calibration
+    before that one (its previous good calibration; all dates if none) up to the failing one; else from its
+    latest calibration on, with no end."""
+    cals = ctx.calibrations[ctx.calibrations["instrument"] == instrument] if len(ctx.calibrations) else \
+        ctx.calibrations
+    if len(cals):
+        cals = cals.sort_values("date").reset_index(drop=True)
+        failing = cals.index[cals["as_found"].fillna("") == "fail"]
+        if len(failing):
+            at = int(failing[-1])
+            since = pd.Timestamp(cals.at[at - 1, "date"]).date() if at > 0 else None
+            return since, pd.Timestamp(cals.at[at, "date"]).date(), cals.loc[at]
+    if instrument in ctx.instruments.index:
+        cal = ctx.instruments.at[instrument, "calibrated"]
+        return (None if pd.isna(cal) else pd.Timestamp(cal).date()), None, None
+    return None, None, None
+
+
+def found_out(ctx: RunContext) -> pd.DataFrame:
+    """One row per reference whose latest failing calibration is on record: instrument, date, certificate,
+    remarks, since (its previous good calibration) and n_tests (the tests that used it in between): what
+    the index lists under what needs action."""
+    rows = []
+    for ident in sorted(set(ctx.calibrations.loc[ctx.calibrations["as_found"].fillna("") == "fail", "instrument"])
+                        if len(ctx.calibrations) else set()):
+        since, until, cal = window(ctx, str(ident))
+        if cal is None:
+            continue
+        table, _ = impacted(ctx, str(ident), since, until)
+        rows.append({"instrument": str(ident), "date": pd.Timestamp(cal["date"]).date().isoformat(),
+                     "certificate": plain_text(cal.get("certificate")), "remarks": plain_text(cal.get("remarks")),
+                     "since": since.isoformat() if since else "", "n_tests": len(table)})
+    return pd.DataFrame(rows, columns=["instrument", "date", "certificate", "remarks", "since", "n_tests"])
+
+
+def plain_text(value: Any) -> str:
+    return "" if value is None or (isinstance(value, float) and np.isnan(value)) else str(value)
+
+
+def impacted(ctx: RunContext, instrument: str, since: dt.date | None,
+             until: dt.date | None = None) -> tuple[pd.DataFrame, dt.date | None]:
+    """Tests that used ``instrument`` on or after ``since`` (default: :func:`window`) and, if given, on or
+    before ``until``.
 
     One row per test: date, test, asset, role, verdict, status (of the instrument on that date, see
     :func:`uses`), source_file, worst_pct (largest |error| as %
     of the acceptance limit) and points (each point's |error| as % of its limit).
     """
-    if since is None and instrument in ctx.instruments.index:
-        cal = ctx.instruments.at[instrument, "calibrated"]
-        since = None if pd.isna(cal) else pd.Timestamp(cal).date()
-    table = uses(ctx.tests, ctx.instruments)
+    if since is None and until is None:
+        since, until, _ = window(ctx, instrument)
+    table = uses(ctx.tests, ctx.instruments, ctx.calibrations)
     mine = table[table["instrument"] == instrument]
+    on = pd.to_datetime(mine["date"].astype(str), errors="coerce", format="%Y-%m-%d")
     if since is not None:
-        mine = mine[pd.to_datetime(mine["date"].astype(str), errors="coerce", format="%Y-%m-%d") >= pd.Timestamp(since)]
+        mine, on = mine[on >= pd.Timestamp(since)], on[on >= pd.Timestamp(since)]
+    if until is not None:
+        mine = mine[on <= pd.Timestamp(until)]
     mine = mine.groupby("test", sort=False).agg(date=("date", "first"), role=("role", ", ".join),
                                                 source_file=("source_file", "first"), status=("status", "first"))
     info = ctx.tests.set_index("test")
@@ -221,8 +334,11 @@ def impacted(ctx: RunContext, instrument: str, since: dt.date | None) -> tuple[p
 
 def _add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("instrument", help="the instrument id in instruments.yaml")
-    parser.add_argument("--since", help="first test date to list (YYYY-MM-DD; default: the instrument's calibrated "
-                                        "date on record, taken as its last good calibration)")
+    parser.add_argument("--since", help="first test date to list (YYYY-MM-DD; default: where a calibration found "
+                                        "it out of tolerance, the calibration before that one, and the list ends "
+                                        "at the failing one; else its latest calibration on record)")
+    parser.add_argument("--error", help="the error its calibration found, signed (+0.02 %%rdg, -0.004 mA): judge "
+                                        "the listed tests again with it taken out and say what would change")
     parser.add_argument("--evidence", type=Path,
                         help="the evidence folder (default: the nearest folder at or above here holding assets.csv)")
     parser.add_argument("--as-of", dest="as_of", help="judge on this date (YYYY-MM-DD)")
@@ -248,19 +364,49 @@ def _run(args: argparse.Namespace) -> int:
         known = ", ".join(sorted(ctx.instruments.index)) or "none"
         raise ConfigError(absent("instrument", args.instrument, ctx.rejected_instruments, "instruments.yaml")
                           + ("" if args.instrument in ctx.rejected_instruments else f" (known: {known})"))
-    table, since = impacted(ctx, args.instrument, since)
+    start, until, failing = window(ctx, args.instrument)
+    table, since = impacted(ctx, args.instrument, since if since is not None else start,
+                            until if since is None else None)
     from loopledger.terminal import VisibleLines
 
     w = VisibleLines(sys.stdout).write  # ids and files quote the evidence: shown inert
+    if failing is not None and args.since is None:
+        cert = plain_text(failing.get("certificate"))
+        w(f"{args.instrument} was found out of tolerance at its calibration of "
+          f"{pd.Timestamp(failing['date']).date().isoformat()}" + (f" (certificate {cert})" if cert else "")
+          + (f": {plain_text(failing.get('remarks'))}" if plain_text(failing.get("remarks")) else "") + "\n")
     w(f"Tests that used {args.instrument} " + (f"since {since.isoformat()}" if since else "(all dates)")
-      + f": {len(table)}\n")
+      + (f" up to {until.isoformat()}" if until is not None and args.since is None else "") + f": {len(table)}\n")
     for r in table.itertuples():
         worst = "—" if pd.isna(r.worst_pct) else f"{r.worst_pct:.0f} %"
         late = "  (used after its due date)" if r.status == "past-due" else ""
         w(f"{r.date}  {r.asset}  {r.verdict}  as {r.role}  worst |error| {worst} of limit  {r.source_file}{late}\n")
         if r.points:
             w(f"    {r.points}\n")
+    if args.error:
+        _rejudged(ctx, args.instrument, list(table["test"]), args.error)
     return 0
+
+
+def _rejudged(ctx: RunContext, instrument: str, tests: list[str], text: str) -> None:
+    from loopledger.config import ConfigError
+    from loopledger.plugins.history.reference_error import parse_error, rejudge
+
+    try:
+        error = parse_error(text)
+    except ValueError as exc:
+        raise ConfigError(str(exc)) from None
+    points, verdicts = rejudge(ctx, instrument, tests, error)
+    from loopledger.terminal import VisibleLines
+
+    w = VisibleLines(sys.stdout).write  # ids quote the evidence: shown inert
+    w(f"Judged again with {instrument}'s found error {text} taken out: {len(points)} point decision(s) and "
+      f"{len(verdicts)} verdict(s) would change\n")
+    for p in points.itertuples():
+        w(f"  {p.test}  {p.phase.replace('_', '-')} {p.input_pct:g} %: error {p.error_before:+.4g} → "
+          f"{p.error_after:+.4g} {p.unit}, {p.decision_before} → {p.decision_after}\n")
+    for v in verdicts.itertuples():
+        w(f"  {v.test}: verdict {v.verdict_before} → {v.verdict_after}\n")
 
 
 @hookimpl

@@ -42,3 +42,9 @@ class Counts(ReadingMethod):
 @hookimpl
 def ll_reading_methods() -> list[ReadingMethod]:
     return [Counts()]
+
+
+@hookimpl
+def ll_registry_keys() -> dict[str, dict[str, str]]:
+    return {"assets.csv": {"counts_min": "the raw count the input card reports at output_min",
+                           "counts_max": "the raw count the input card reports at output_max"}}

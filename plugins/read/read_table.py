@@ -16,10 +16,11 @@ from pathlib import Path
 from typing import Any
 
 from loopledger.contracts import ResultRead
-from loopledger.findings import Finding, error, warning
+from loopledger.findings import Finding, error
 from loopledger.hookspecs import hookimpl
 from loopledger.load import HEADER_FIELDS, POINT_FIELDS
 from loopledger.plugins.read.blank import not_filled_in
+from loopledger.spelling import unknown
 from loopledger.textio import decode, other_separator
 
 UNIT_COLUMNS = {"input_unit": ("input",), "reading_unit": ("reading", "reading_min", "reading_max", "readings")}
@@ -101,7 +102,7 @@ def parse(table: Table, rel: str) -> ResultRead:
                                                                  line=1, field=col)])
         seen.add(col)
         if col not in KNOWN:
-            findings.append(warning(f"unknown column '{col}' ignored", file=rel, line=1, field=col))
+            findings.append(error(unknown("column", col, KNOWN), file=rel, line=1, field=col, code="unknown-key"))
     if not rows:
         return ResultRead({}, [], findings=[*findings, error("no rows", file=rel, line=1)])
     at = {c: i for i, c in enumerate(columns)}

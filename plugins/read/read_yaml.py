@@ -9,15 +9,18 @@ from typing import Any
 
 import yaml
 from loopledger.contracts import ResultRead
-from loopledger.findings import Finding, error, warning
+from loopledger.findings import Finding, error
 from loopledger.hookspecs import hookimpl
 from loopledger.load import HEADER_FIELDS, POINT_FIELDS
 from loopledger.plugins.read.blank import not_filled_in
+from loopledger.spelling import unknown
 from loopledger.textio import AliasBomb, DuplicateKey, TooManyNodes, compose, count_nodes, decode, key_lines, node_line
 
 PHASES = ("as_found", "as_left")
 _SPLIT_NUMBER = re.compile(r"^\d+(\s*\S+)?$")
 INSTRUMENT_ROLES = ("source", "meter", "shunt", "cjc_probe")
+#: the header fields written at the top level of a YAML file (the instruments' ids go under ``instruments``)
+HEADER_FIELDS_READ = tuple(f for f in HEADER_FIELDS if f not in INSTRUMENT_ROLES)
 _SCALAR = (str, int, float, dt.date)
 
 
@@ -57,8 +60,7 @@ def parse(text: str, rel: str) -> ResultRead:
             for role, ident in value.items():
                 role = str(role)
                 if role not in INSTRUMENT_ROLES:
-                    findings.append(error(f"unknown instrument role '{role}' (expected one of "
-                                          f"{', '.join(INSTRUMENT_ROLES)})", file=rel,
+                    findings.append(error(unknown("instrument role", role, INSTRUMENT_ROLES), file=rel,
                                           line=inner.get(role, (line, None))[0], field=f"instruments.{role}"))
                 elif not isinstance(ident, str | int):
                     findings.append(error("expected an instrument id", file=rel, field=f"instruments.{role}",
@@ -68,7 +70,8 @@ def parse(text: str, rel: str) -> ResultRead:
                     header_lines[role] = inner.get(role, (line, None))[0]
             continue
         if key not in HEADER_FIELDS:
-            findings.append(warning(f"unknown field '{key}' ignored", file=rel, line=line, field=key))
+            findings.append(error(unknown("field", key, (*HEADER_FIELDS_READ, *PHASES, "instruments")), file=rel,
+                                  line=line, field=key, code="unknown-key"))
             continue
         if value is not None and not isinstance(value, _SCALAR):
             findings.append(error(f"expected a single value, got a {type(value).__name__}", file=rel,
@@ -98,6 +101,7 @@ def _point(item: Any, node: yaml.Node, phase: str, number: int, rel: str,
     if not isinstance(item, dict):
         findings.append(error("expected a point such as {input: 25 %, reading: 8.002 mA}", **where))
         return point
+    at = key_lines(node)
     for key, value in item.items():
         key = str(key)
         if key not in POINT_FIELDS:
@@ -107,7 +111,8 @@ def _point(item: Any, node: yaml.Node, phase: str, number: int, rel: str,
                                       "{...} a comma separates fields, so a decimal comma cannot be read; "
                                       "write a decimal point (e.g. 12.010 mA)", field="reading", **where))
             else:
-                findings.append(warning(f"unknown point field '{key}' ignored", field=key, **where))
+                findings.append(error(unknown("point field", key, POINT_FIELDS), field=key, code="unknown-key",
+                                      **{**where, "line": at.get(key, (line, None))[0]}))
         elif key == "readings":
             if not isinstance(value, list) or not all(isinstance(v, str | int | float) for v in value):
                 findings.append(error("expected a list of readings with units", field=key, **where))

@@ -27,6 +27,9 @@ def describe(pm: pluggy.PluginManager) -> list[dict[str, Any]]:
         for hook, label in PROVIDERS:
             if hook in hooks:
                 entry[label] = list(getattr(plugin, hook)() or [])
+        for hook in ("ll_registry_keys",):  # named in a loop, as the providers above, for mypy's sake
+            if hook in hooks:
+                entry["registry keys"] = getattr(plugin, hook)() or {}
         out.append(entry)
     return out
 
@@ -42,6 +45,9 @@ def render(entries: list[dict[str, Any]]) -> str:
                 lines.append(f"    input_unit: of the kind of {' or '.join(item.input_units)}")
             for col, meaning in item.asset_columns.items():
                 lines.append(f"    assets.csv column {col}: {meaning}")
+        for file, names in entry.get("registry keys", {}).items():
+            what = "column" if file.endswith(".csv") else "key"
+            lines += [f"  {file} {what} {name}: {meaning}" for name, meaning in names.items()]
         for label in ("reading methods", "decision rules"):
             for item in entry.get(label, []):
                 lines.append(f"  {label[:-1]} {item.name}: {item.description}")
