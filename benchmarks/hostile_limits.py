@@ -2,7 +2,7 @@
 
     python benchmarks/hostile_limits.py [--workdir build/hostile]
 
-Builds each case (the same builders as tests/test_resource_limits.py), runs `loopledger check` on it in a
+Builds each case (the same builders as tests/pipeline/test_resource_limits.py), runs `loopledger check` on it in a
 fresh interpreter three times, and prints a Markdown table of the median wall time (interpreter start and
 imports included) and the peak resident memory (``VmHWM``). Also measures a run over an assets.csv of
 100,000 rows, under the row limit, which the issue measured at 1.7 GiB.

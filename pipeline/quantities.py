@@ -30,7 +30,7 @@ PERCENT = "%"
 #: the unit names read with the small registry of ``units.txt`` (built in milliseconds); a unit text naming
 #: anything else is read with pint's full default registry (about 0.2 s to build, so built only then).
 #: An explicit list, not everything the small file could read: pint reads some of its own names (``Eh``,
-#: ``hbar``) differently from a prefix and a unit. tests/test_units.py checks each name against pint's.
+#: ``hbar``) differently from a prefix and a unit. tests/pipeline/test_units.py checks each name against pint's.
 EVERYDAY = frozenset({
     "A", "mA", "uA", "µA", "kA", "ampere", "amp", "V", "mV", "uV", "µV", "kV", "volt",
     "W", "mW", "kW", "MW", "GW", "watt", "VA", "kVA", "MVA", "volt_ampere", "Hz", "kHz", "hertz",

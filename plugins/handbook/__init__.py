@@ -40,7 +40,7 @@ How it stays fast (a fleet has tens of thousands of pages):
 - Page data for a batch is made per column (:func:`.values.column_lists`): each table sorted once, its
   columns turned into Python lists once, each page taking its slice.
 - The parts every page repeats (the verdict badge, the plugins' blocks, the points table's rows) are made in
-  Python by :mod:`.blocks`, giving the bytes jinja2 would give (``tests/test_page_html.py`` renders the
+  Python by :mod:`.blocks`, giving the bytes jinja2 would give (``tests/plugins/handbook/test_page_html.py`` renders the
   equivalent macros and compares); change both together if a block's look changes.
 - Charts are SVG text (:mod:`.charts` over :mod:`.svgplot`, about 1 ms a chart), inline in the page.
 - Each test page carries its result file exactly as read (:func:`.asset_pages.original_file`).

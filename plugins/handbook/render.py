@@ -35,7 +35,7 @@ def render_markdown(text: Any) -> str:
     markdown-it (CommonMark, with tables) renders them with HTML off, so any HTML the remark contains shows
     as the text that was written, once escaped (a code span `<b>` shows <b>); link and image syntax is not
     interpreted; nh3 then keeps only plain formatting tags, without attributes. markdown-it's time grows
-    linearly with the text (tests/test_hostile_evidence.py), and remarks are limited in size
+    linearly with the text (tests/pipeline/test_hostile_evidence.py), and remarks are limited in size
     (``limits.max_remarks_bytes``).
     """
     if text is None or isinstance(text, float) or not str(text).strip():

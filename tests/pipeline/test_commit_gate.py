@@ -23,7 +23,7 @@ import yaml
 
 from tests.evidence import CT_ASSET, good_points, result_yaml, write_evidence
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 
 pytestmark = pytest.mark.skipif(shutil.which("git") is None, reason="git is not installed")
 

@@ -21,7 +21,7 @@ import pytest
 
 from tests.evidence import good_points, result_yaml, write_evidence
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 #: generous bounds for one refusal, start-up included, on a shared machine
 SECONDS = 60.0
 MIB = 500

@@ -15,7 +15,7 @@ from pathlib import Path
 
 import pytest
 
-ROOT = Path(__file__).resolve().parent.parent
+ROOT = Path(__file__).resolve().parents[2]
 SOURCES = ("pyproject.toml", "README.md", "pipeline", "plugins", "schemas", "site")
 OFFLINE_HINTS = ("Could not find a version", "NewConnectionError", "Temporary failure in name resolution",
                  "No matching distribution", "Network is unreachable")

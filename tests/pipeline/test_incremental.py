@@ -24,7 +24,7 @@ from loopledger.cli import main
 
 from tests.evidence import good_points, result_yaml, write_evidence
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 
 
 def _fleet(tmp_path: Path, n: int = 4) -> Path:

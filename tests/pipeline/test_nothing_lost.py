@@ -22,7 +22,7 @@ from loopledger.lock import exclusive
 
 from tests.evidence import CT_ASSET, good_points, result_yaml, write_evidence
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 ENV = {**os.environ, "PYTHONPATH": str(ROOT)}
 
 

@@ -7,7 +7,7 @@ from pathlib import Path
 
 from loopledger import hookspecs
 
-ROOT = Path(__file__).resolve().parent.parent
+ROOT = Path(__file__).resolve().parents[2]
 HOOKS = sorted(name for name, fn in vars(hookspecs).items() if name.startswith("ll_") and inspect.isfunction(fn))
 
 

@@ -26,7 +26,7 @@ from pathlib import Path
 
 from tests.evidence import CT_ASSET, good_points, result_yaml, write_evidence
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 TRIALS = int(os.environ.get("LOOPLEDGER_SOAK_TRIALS", "3"))
 SEED = int(os.environ.get("LOOPLEDGER_SOAK_SEED", "21"))
 ASSETS = 4

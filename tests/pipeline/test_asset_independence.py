@@ -22,7 +22,7 @@ from loopledger import runner
 from loopledger.context import RunContext
 from loopledger.host import get_plugin_manager
 
-DEMO = Path(__file__).resolve().parents[1] / "sample_results"
+DEMO = Path(__file__).resolve().parents[2] / "sample_results"
 
 #: the test columns that depend on other assets' tests: a test's false-accept prior counts the as-found
 #: results of its signal type (every asset's) dated before it
