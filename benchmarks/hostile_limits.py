@@ -21,7 +21,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from tests.evidence import good_points, result_yaml, write_evidence  # noqa: E402
-from tests.test_resource_limits import measure, xlsx_bomb  # noqa: E402
+from tests.pipeline.test_resource_limits import measure, xlsx_bomb  # noqa: E402
 
 
 def _cases(work: Path) -> dict[str, Path]:
