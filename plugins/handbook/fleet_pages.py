@@ -170,12 +170,12 @@ def changes_data(ctx: RunContext, tests: pd.DataFrame) -> dict[str, Any]:
     """The changes page: every verdict changed without its file changing, as the history stage kept them."""
     table = ctx.stash.get(keys.VERDICT_CHANGES)
     if not isinstance(table, pd.DataFrame) or table.empty:
-        return {"changes": [], "compared": bool(ctx.stash.get(keys.PREVIOUS_RUN))}
+        return {"changes": []}  # the same page whether or not an earlier run was there (a rebuild equals a cold run)
     pages = tests.set_index("test")["page"] if len(tests) else pd.Series(dtype=object)
     shown = table.sort_values(["run_date", "date", "test"], ascending=[False, False, True]).assign(
         page=table["test"].map(pages).fillna(""),
         asset_page=table["asset"].map(lambda a: page_name(a) if a in ctx.assets.index else ""))
-    return {"changes": records(shown, [*shown.columns]), "compared": True}
+    return {"changes": records(shown, [*shown.columns])}
 
 
 def _certificates(ctx: RunContext, ident: str) -> list[dict[str, Any]]:
