@@ -2,8 +2,8 @@
 
 Read a value with ``ctx.stash.get(KEY)`` (None when its owner did not run) or ``ctx.stash[KEY]``; only the
 owner writes it (``tests/pipeline/test_architecture.py`` checks that). The exported-column lists are the
-exception: every stage appends the columns it adds that belong in ``OUT/data/``. A site plugin declares keys of its own the
-same way, with its own name as owner, in its own module.
+exception: every stage appends the columns it adds that belong in ``OUT/data/``. A site plugin declares keys
+of its own the same way, with its own name as owner, in its own module.
 """
 
 from __future__ import annotations

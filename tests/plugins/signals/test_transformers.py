@@ -82,8 +82,8 @@ def test_power_transducer_states_that_phase_displacement_is_left_out(tmp_path, r
     injected power at rated current (100 % of the range), and the budget names what is left out."""
     pw = asset("T-P1", "power-transducer", (0, 500, "kW"), (4, 20, "mA"), ct_ratio="1000/1", vt_ratio="11000/110",
                ct_class="0.5", vt_class="0.5")
-    rig = copy.deepcopy(RIG)
-    rig["PW-1"] = {"kind": "source", "range": "100 MW", "accuracy": "0.1 %rdg"}
+    rig = copy.deepcopy(RIG)  # a primary source must reach the 50,000 MW injected (source-range check, issue 20)
+    rig["PW-1"] = {"kind": "source", "range": "60000 MW", "accuracy": "0.1 %rdg"}
     doc = result_yaml(asset="T-P1", as_found=[("50000 MW", "20.000 mA")], injection="primary",
                       instruments={"source": "PW-1", "meter": "DMM-1"})
     ctx = run_folder(write_evidence(tmp_path / "ev", {"p.yaml": doc}, assets=[pw], instruments=rig))
