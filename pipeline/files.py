@@ -115,3 +115,25 @@ def evidence_entry(evidence: Path, name: str, follow_links: bool, folder: bool =
         raise LinkRefused(f"'{name}' is {kind(st.st_mode)}, not {'a folder' if folder else 'a regular file'}; "
                           "it is not read")
     return path
+
+
+def outside_evidence(evidence: Path, path: Path, what: str) -> Path:
+    """``path`` resolved; a ConfigError when it and the evidence folder overlap: when it is the evidence
+    folder, lies inside it or holds it (a run replaces OUT/data and OUT/handbook whole, and tidies the cache
+    folder, so an evidence folder there would be deleted). Overlap is judged by the folders' identity on
+    disk, so links, ``..`` and file systems that ignore case cannot hide it."""
+    from loopledger.config import ConfigError
+
+    ev = evidence.resolve()
+    resolved = path.resolve()
+    if inside(resolved, ev):
+        beside = ev.parent / f"{ev.name}-out"
+        raise ConfigError(f"{what} '{resolved}' is inside the evidence folder '{ev}'; outputs never go there "
+                          f"(write them beside it, e.g. {what} '{beside}')")
+    if inside(ev, resolved):
+        raise ConfigError(f"the evidence folder '{ev}' is inside {what} '{resolved}': a run replaces what it "
+                          f"writes there whole and would delete the evidence. Name a {what} folder that neither "
+                          "holds the evidence folder nor lies inside it")
+    if resolved.exists() and not resolved.is_dir():
+        raise ConfigError(f"{what} '{path}' is a file; name a folder (it is made if it is not there)")
+    return resolved

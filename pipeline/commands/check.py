@@ -16,6 +16,7 @@ from dataclasses import replace
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from loopledger.cache import session
 from loopledger.cache import store as incremental
 from loopledger.commands import gate
 
@@ -50,11 +51,9 @@ def find_evidence(paths: list[Path]) -> Path:
 
 
 def cache_for(args: argparse.Namespace) -> incremental.Cache | None:
-    from loopledger.commands.run import make_cache
-
     args.evidence = args.evidence or find_evidence(args.paths)
     paths = sorted(str(p.resolve()) for p in args.paths)
-    return make_cache(args, "check", args.cache, None, paths=paths, strict=bool(args.strict),
+    return session.open_cache(args, "check", args.cache, None, paths=paths, strict=bool(args.strict),
                       label=_label(args.evidence))
 
 
@@ -64,8 +63,6 @@ def replay(args: argparse.Namespace) -> tuple[int | None, incremental.Cache | No
     committed, which the cache does not see)."""
     if args.cache is None or args.no_cache or args.paths_from or not args.paths:
         return None, None
-    from loopledger.commands.run import replay_with
-
     try:
         groups, orphans = gate.group(args.paths) if args.evidence is None else ({args.evidence: args.paths}, [])
         if orphans or len(groups) != 1 or any(gate.registers_named(ev, ps) for ev, ps in groups.items()):
@@ -73,11 +70,10 @@ def replay(args: argparse.Namespace) -> tuple[int | None, incremental.Cache | No
         cache = cache_for(args)
     except Exception:  # let the full path report it properly
         return None, None
-    return replay_with(cache, args.evidence)
+    return session.replay_with(cache, args.evidence)
 
 
 def main(args: argparse.Namespace) -> int:
-    from loopledger.commands.run import cached
     from loopledger.config import ConfigError
 
     paths = list(args.paths) + (gate.read_paths(args.paths_from) if args.paths_from else [])
@@ -90,7 +86,7 @@ def main(args: argparse.Namespace) -> int:
         sys.stderr.write(f"loopledger: no {gate.ASSETS} above '{path}': name the evidence folder with --evidence\n")
     if len(groups) == 1 and not orphans:
         args.evidence, args.paths = next(iter(groups.items()))
-        return cached(args, cache_for(args) if args.cache is not None else None, _full)
+        return session.cached(args, cache_for(args) if args.cache is not None else None, _full)
     codes = [3] if orphans else []
     for evidence, named in groups.items():
         codes.append(judge(args, evidence, named, label=os.path.relpath(evidence))[0])

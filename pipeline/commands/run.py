@@ -8,11 +8,11 @@ from __future__ import annotations
 
 import argparse
 import sys
-from collections.abc import Callable
 from pathlib import Path
-from typing import Any
 
+from loopledger.cache import session
 from loopledger.cache import store as incremental
+from loopledger.files import outside_evidence
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -48,29 +48,6 @@ def overrides(args: argparse.Namespace) -> dict[str, object]:
     return out
 
 
-def outside_evidence(evidence: Path, path: Path, what: str) -> Path:
-    """``path`` resolved; a ConfigError when it and the evidence folder overlap: when it is the evidence
-    folder, lies inside it or holds it (a run replaces OUT/data and OUT/handbook whole, and tidies the cache
-    folder, so an evidence folder there would be deleted). Overlap is judged by the folders' identity on
-    disk, so links, ``..`` and file systems that ignore case cannot hide it."""
-    from loopledger.config import ConfigError
-    from loopledger.files import inside
-
-    ev = evidence.resolve()
-    resolved = path.resolve()
-    if inside(resolved, ev):
-        beside = ev.parent / f"{ev.name}-out"
-        raise ConfigError(f"{what} '{resolved}' is inside the evidence folder '{ev}'; outputs never go there "
-                          f"(write them beside it, e.g. {what} '{beside}')")
-    if inside(ev, resolved):
-        raise ConfigError(f"the evidence folder '{ev}' is inside {what} '{resolved}': a run replaces what it "
-                          f"writes there whole and would delete the evidence. Name a {what} folder that neither "
-                          "holds the evidence folder nor lies inside it")
-    if resolved.exists() and not resolved.is_dir():
-        raise ConfigError(f"{what} '{path}' is a file; name a folder (it is made if it is not there)")
-    return resolved
-
-
 def out_folder(args: argparse.Namespace) -> Path:
     """The output folder: ``--out``, else ./build, else (./build inside the evidence folder, as after
     ``cd EVIDENCE; loopledger run .``) a folder named after the evidence folder beside it."""
@@ -83,23 +60,9 @@ def out_folder(args: argparse.Namespace) -> Path:
     return outside_evidence(ev, build, "--out")
 
 
-def make_cache(args: argparse.Namespace, command: str, folder: Path | None, writes: Path | None,
-               **key: Any) -> incremental.Cache | None:
-    """The cache for this invocation, or None (``--no-cache``, or no folder to keep one in)."""
-    if getattr(args, "no_cache", False) or folder is None:
-        return None
-    evidence = args.evidence.resolve()
-    folder = outside_evidence(evidence, folder, "--cache")
-    full_key = {"command": command, "evidence": str(evidence), "as_of": incremental.effective_as_of(
-        evidence, getattr(args, "as_of", None)), "rule": getattr(args, "rule", None),
-        "engine": incremental.engine_fingerprint(),
-        "follow_links": bool(getattr(args, "follow_links", False)), **key}
-    return incremental.Cache(folder, full_key, writes)
-
-
 def cache_for(args: argparse.Namespace) -> incremental.Cache | None:
     out = out_folder(args)
-    return make_cache(args, "run", args.cache or out / incremental.CACHE_NAME, out, out=str(out),
+    return session.open_cache(args, "run", args.cache or out / incremental.CACHE_NAME, out, out=str(out),
                       handbook=not args.no_handbook, verbose=bool(args.verbose))
 
 
@@ -108,15 +71,7 @@ def replay(args: argparse.Namespace) -> tuple[int | None, incremental.Cache | No
     cache looked at, or None)."""
     if not args.evidence.is_dir():
         return None, None
-    return replay_with(cache_for(args), args.evidence)
-
-
-def replay_with(cache: incremental.Cache | None, evidence: Path) -> tuple[int | None, incremental.Cache | None]:
-    """(exit code, None) when ``cache`` answers for ``evidence``; else (None, the cache, or None)."""
-    if cache is None:
-        return None, None
-    code = cache.replay(evidence, sys.stdout)
-    return (code, None) if code is not None else (None, cache)
+    return session.replay_with(cache_for(args), args.evidence)
 
 
 def main(args: argparse.Namespace) -> int:
@@ -129,32 +84,7 @@ def main(args: argparse.Namespace) -> int:
     cache = cache_for(args)
     wait = DEFAULT_WAIT if args.wait is None else max(0.0, args.wait)
     with exclusive(out_folder(args), sys.stderr.write, wait):
-        return cached(args, cache, _full)
-
-
-def cached(args: argparse.Namespace, cache: incremental.Cache | None,
-           full: Callable[[argparse.Namespace, incremental.Cache | None], tuple[int, dict[str, str]]]) -> int:
-    """Replay when nothing changed; else forget the manifest, do the ``full`` work and record it.
-
-    When the CLI's quick path already compared this same cache with the evidence folder and found a
-    change (``args.looked``), its scan is used rather than done again.
-    """
-    if cache is not None:
-        looked = getattr(args, "looked", None)
-        if looked is not None and (looked.folder, looked.key) == (cache.folder, cache.key):
-            cache.inputs = looked.inputs
-        else:
-            code = cache.replay(args.evidence, sys.stdout)
-            if code is not None:
-                return code
-        cache.invalidate()
-        if not cache.inputs:  # the replay stopped before scanning (no manifest, or another key)
-            cache.inputs = incremental.scan_inputs(args.evidence)  # stats before anything is read
-    with incremental.capture_stdout() as tee:
-        code, hashes = full(args, cache)
-    if cache is not None:
-        cache.save(args.evidence, hashes, tee.copy.getvalue(), code)
-    return code
+        return session.cached(args, cache, _full)
 
 
 def _full(args: argparse.Namespace, cache: incremental.Cache | None) -> tuple[int, dict[str, str]]:
