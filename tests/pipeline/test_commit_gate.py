@@ -3,7 +3,7 @@ with this repository's hook definition (.pre-commit-hooks.yaml), committing for 
 
 The repository holds two evidence folders and file names with accents and quotes, which `git diff
 --name-only` quotes (the plain hook once skipped them and let a bad file through). What the gate must do is
-issue 24's contract (README "Incremental runs and pre-commit"): an invalid file stops the commit (exit 2); a
+issue 24's contract (docs/guide.md "Incremental runs and pre-commit"): an invalid file stops the commit (exit 2); a
 failing test is evidence and is committed with its summary printed, unless --strict; a register edit is
 checked, its verdict changes printed, and a test that was already failing or invalid blocks nothing.
 The evidence is invented plumbing data (tests/evidence.py); the pass/fail figures are class 0.5 and 0.25

@@ -1,7 +1,7 @@
 """Incremental runs, the cache's integrity, atomic outputs and the pre-commit entry points.
 
 Plumbing tests on invented evidence folders (tests/evidence.py). What they
-check is the project's own contract (DEVELOPERS.md, README "Incremental runs
+check is the project's own contract (DEVELOPERS.md, docs/guide.md "Incremental runs
 and pre-commit"): an unchanged rerun replays the previous result without doing
 the work, a changed file is re-read and nothing else is, a damaged cache is
 rebuilt and never trusted, and a killed run leaves the previous outputs whole.

@@ -1,7 +1,7 @@
 """Issue 21: outputs never touch the evidence, a killed run never blocks the next, a rebuild tells the truth.
 
 Plumbing tests on invented evidence folders (tests/evidence.py). What they check is the project's own
-contract (README "Incremental runs and pre-commit"): the evidence folder and the output or cache folder
+contract (docs/guide.md "Incremental runs and pre-commit"): the evidence folder and the output or cache folder
 never overlap; the lock on OUT dies with the run and names its holder; a no-change replay happens only
 when every output is still as written; a same-size edit with its time stamp put back is still seen.
 """
