@@ -12,6 +12,7 @@ global ``verdict`` and the filters ``blocks_html``, ``point_rows``, ``num`` and
 
 from __future__ import annotations
 
+import re
 from typing import Any
 
 from jinja2 import ChainableUndefined
@@ -78,14 +79,21 @@ def _row(row: Any, cell: Any) -> Any:
     return cell(row)
 
 
+#: text without white space (str.isspace's definition, as ``\s`` in a str pattern)
+_NO_SPACE = re.compile(r"\S*")
+
+
 def one_token(value: Any) -> bool:
     """A cell that is one token with a hyphen (a date, an asset or instrument id): never broken at its
     hyphens (a browser may break after any hyphen, leaving '2026-03-' above '17')."""
     text = str(value)
-    return "-" in text and len(text) <= 40 and not any(c.isspace() for c in text)
+    return "-" in text and len(text) <= 40 and _NO_SPACE.fullmatch(text) is not None
 
 
 def _td(value: Any) -> str:
+    if type(value) is str:  # most cells: one C call each for the test and the escape
+        one = "-" in value and len(value) <= 40 and _NO_SPACE.fullmatch(value) is not None
+        return ('<td class="nw">' if one else "<td>") + value.translate(_ESCAPES) + "</td>"
     return ('<td class="nw">' if one_token(value) else "<td>") + _esc(value) + "</td>"
 
 
