@@ -15,6 +15,8 @@ page and ``loopledger check`` list these rows; the page does not work them out a
 
 from __future__ import annotations
 
+import bisect
+
 import numpy as np
 import pandas as pd
 from loopledger import keys
@@ -61,14 +63,18 @@ def as_found_failures(points: pd.DataFrame, tests: pd.DataFrame) -> pd.DataFrame
 
 
 def _put_right(valid: pd.DataFrame, open_events: pd.DataFrame) -> pd.Series:
-    """For each event with no as-left phase: the date of the asset's next passing test (NaN if none)."""
+    """For each event with no as-left phase: the date of the asset's next passing test (NaN if none). Each
+    asset's passing dates are sorted once and searched by bisection (one pass over the fleet, not one per
+    event)."""
     if open_events.empty:
         return pd.Series(dtype=object)
-    good = valid[valid["verdict"].isin(["pass", "adjusted"])][["asset", "date"]].sort_values("date")
+    good = valid[valid["verdict"].isin(["pass", "adjusted"])][["asset", "date"]].sort_values("date", kind="stable")
+    passes: dict[object, list[object]] = good.groupby("asset", sort=False)["date"].agg(list).to_dict()
     out = {}
     for test, asset, date in zip(open_events.index, open_events["asset"], open_events["date"], strict=True):
-        later = good.loc[(good["asset"] == asset) & (good["date"] > date), "date"]
-        out[test] = later.iloc[0] if len(later) else np.nan
+        dates = passes.get(asset, [])
+        at = bisect.bisect_right(dates, date)  # the first passing date after the event's
+        out[test] = dates[at] if at < len(dates) else np.nan
     return pd.Series(out, dtype=object)
 
 
