@@ -102,7 +102,7 @@ def batch_jobs(ctx: RunContext, sh: Shared, asset_ids: list[Any], test_ids: list
         if data["latest_chart"]:  # the same chart as the latest test's page
             charts["latest_chart"] = ("error", data.pop("latest_chart"), f"{ident}: test of {last_date}")
         if data["drift_chart"]:
-            charts["drift_chart"] = ("drift", data.pop("drift_chart"), f"{ident}: as-found error by year")
+            charts["drift_chart"] = ("drift", data.pop("drift_chart"), f"{ident}: as-found error over time")
         out.append(_job(sh, f"assets/{name}.html", "asset.html", data, charts))
         out.append(_job(sh, f"sheets/{name}.html", "sheet.html", {"sheet": sheets[str(ident)],
                                                                    "asset_page": f"{name}.html",

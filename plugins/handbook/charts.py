@@ -1,13 +1,16 @@
 """The handbook's two charts, written as SVG text (not a plugin itself).
 
 ``error_chart``: error in % of output span against input in %, the area outside ±MPE shaded, acceptance
-limits as dashed lines when they differ from the MPE, as-found and as-left points with ±U bars.
-``drift_chart``: as-found error per test point over the years, the fitted drift line of each point
-(restarting after every adjustment), as-left values as hollow marks, ±MPE shading; the years are the
-cells between thin dividers, each year's label centred in its cell.
+limits as dashed lines when they differ from the MPE, as-found and as-left points with ±U bars. On a
+square-root (DP flow) device the x axis is % of flow, the quantity the trade reads, with % of ΔP along the
+top.
+``drift_chart``: as-found error per test point over time on a dated axis (:mod:`dateaxis`), the fitted
+drift line of each point (restarting at the as-left error after every test that recorded one), as-left
+values as hollow marks, ±MPE shading.
 
-Black and greys only, with a distinct marker shape and dash pattern per series, so they read in print.
-The same data and title always give the same bytes. Drawing bits shared by both are in :mod:`svgplot`.
+The error chart is black and greys; the drift chart gives each test point its own colour, marker shape
+and dash pattern, so no series is told apart by colour alone and both read in print. The same data and
+title always give the same bytes. Drawing bits shared by both are in :mod:`svgplot`.
 """
 
 from __future__ import annotations
@@ -16,6 +19,7 @@ import math
 from typing import Any
 
 import numpy as np
+from loopledger.plugins.handbook import dateaxis
 from loopledger.plugins.handbook import svgplot as sp
 from loopledger.plugins.handbook.svgplot import BOTTOM, LEFT, RIGHT, TOP, KeyEntry
 
@@ -28,10 +32,30 @@ def _column(points: list[dict[str, Any]], name: str) -> np.ndarray:
     return sp.finite([p.get(name) for p in points])
 
 
+def flow_pct(dp_pct: np.ndarray) -> np.ndarray:
+    """% of flow for % of ΔP on a square-root device: 100·√(ΔP % / 100), since flow through an orifice plate
+    or venturi goes as the root of its pressure drop (Q ∝ √ΔP, common practice). A ΔP below zero is put as
+    far left of zero as its root (−√|ΔP|), so such a point is still drawn, apart from the one at zero."""
+    return np.sign(dp_pct) * 100.0 * np.sqrt(np.abs(dp_pct) / 100.0)
+
+
+def dp_pct(flow: np.ndarray) -> np.ndarray:
+    """The inverse of :func:`flow_pct`: % of ΔP for % of flow."""
+    return np.sign(flow) * flow * flow / 100.0
+
+
+def is_sqrt(points: list[dict[str, Any]]) -> bool:
+    """Whether the points are of a square-root (DP flow) device, as its assets.csv row says."""
+    return any(p.get("characteristic") == "sqrt" for p in points)
+
+
 def error_chart(data: dict[str, Any], title: str) -> str:
-    """Error in % of span against input in %, with the ±MPE zone, acceptance limits and U error bars."""
+    """Error in % of span against input in %, with the ±MPE zone, acceptance limits and U error bars; on a
+    square-root device against % of flow, with % of ΔP along the top."""
     pts = list(data.get("points") or [])
+    sqrt = is_sqrt(pts)
     x, err, mpe = _column(pts, "input_pct"), _column(pts, "error_pct"), _column(pts, "mpe_pct")
+    x = flow_pct(x) if sqrt else x
     acc, u = _column(pts, "accept_pct"), np.abs(_column(pts, "U_pct"))
     phase = np.array([str(p.get("phase")) for p in pts], dtype=object)
     u0 = np.where(np.isfinite(u), u, 0.0)
@@ -70,7 +94,8 @@ def error_chart(data: dict[str, Any], title: str) -> str:
         entries.append(KeyEntry(label, colour, shape, hollow, style))
     if bars:
         entries.append(KeyEntry("bars: ±U", bar=True))
-    body += [_x_value_frame(xa, xticks, xstep), sp.x_label("Input (% of input range)"), sp.key(entries)]
+    body += [_x_value_frame(xa, xticks, xstep), sp.key(entries)]
+    body += [_dp_frame(xa), sp.x_label("Flow (% of flow range)")] if sqrt else [sp.x_label("Input (% of input range)")]
     return sp.document(title, error_alt(data), body)
 
 
@@ -82,59 +107,40 @@ def _x_value_frame(axis: sp.Axis, ticks: np.ndarray, step: float) -> str:
     return f'<path class="ax" d="M{LEFT:.1f},{BOTTOM:.1f}H{RIGHT:.1f}{stubs}"/>{labels}'
 
 
-def _days(values: list[Any]) -> np.ndarray:
-    """Dates (ISO text) as float days since 1970-01-01; NaN where missing or not a date."""
-    try:
-        arr = np.array([None if v is None else str(v)[:10] for v in values], dtype="datetime64[D]")
-    except ValueError:
-        arr = np.array([_day(v) for v in values], dtype="datetime64[D]")
-    out = arr.astype("int64").astype(float)
-    out[np.isnat(arr)] = np.nan
-    return out
+def _dp_frame(axis: sp.Axis) -> str:
+    """The secondary axis along the top of a square-root device's chart: % of ΔP at the places its roots
+    put them on the flow axis below (1-2-5 ticks, and a tenth and a half of their step, where the root
+    spreads the low end out), each label kept only where it does not touch one already placed."""
+    lo, hi = dp_pct(np.array([axis.lo, axis.hi]))
+    main, step = sp.nice_ticks(float(lo), float(hi), most=12)
+    labels = dict(zip(main.tolist(), sp.tick_text(main, step), strict=True))
+    for v in (step / 10, step / 2, -step / 10, -step / 2):
+        labels.setdefault(v, f"{v:g}")
+    kept: list[tuple[float, float, str]] = []  # (pixel, half width, label)
+    for value, text in labels.items():
+        x = float(axis.px(flow_pct(np.array([value])))[0])
+        half = sp.text_width(text, 10) / 2
+        if LEFT - 0.5 <= x <= RIGHT + 0.5 and all(abs(x - k) >= half + h + 6 for k, h, _t in kept):
+            kept.append((x, half, text))
+    kept.sort()
+    stubs = "".join(f"M{x:.1f},{TOP:.1f}v-4" for x, _h, _t in kept)
+    text = "".join(f'<text class="tk xt-dp" x="{x:.1f}" y="{TOP - 7:.1f}" text-anchor="middle">{t}</text>'
+                   for x, _h, t in kept)
+    return (f'<path class="ax" d="M{LEFT:.1f},{TOP:.1f}H{RIGHT:.1f}{stubs}"/>{text}'
+            f'<text class="al" x="{RIGHT + 8:.1f}" y="{TOP - 7:.1f}">ΔP (% of input range)</text>')
 
 
-def _day(value: Any) -> np.datetime64:
-    try:
-        return np.datetime64(str(value)[:10], "D")
-    except ValueError:
-        return np.datetime64("NaT", "D")
-
-
-def _year_start(year: int) -> float:
-    return float(np.datetime64(f"{year:04d}-01-01", "D").astype("int64"))
-
-
-def _year_frame(days: np.ndarray) -> tuple[sp.Axis, str]:
-    """The date axis over whole calendar years covering ``days``: a divider at each 1 January, the year's
-    label centred in its cell (every 1, 2, 5, 10, ... years when there are many)."""
-    good = days[np.isfinite(days)]
-    if not good.size:
-        good = np.array([_year_start(2000)])
-    ends = np.array([good.min(), good.max()]).astype("int64").astype("datetime64[D]")
-    years = ends.astype("datetime64[Y]").astype("int64") + 1970
-    last = int(min(max(years[1], 1), 9998)) + 1
-    first = min(int(max(years[0], 1)), last - 1)
-    axis = sp.Axis(_year_start(first), _year_start(last), LEFT, RIGHT)
-    count = last - first
-    every = next(m * 10**e for e in range(5) for m in (1, 2, 5) if count / (m * 10**e) <= 10)
-    starts = np.array([_year_start(y) for y in range(first, last + 1)])
-    xs = axis.px(starts).tolist()
-    cells = range(count) if count <= 40 else range(0, count + 1, every)
-    dividers = "".join(f"M{xs[i]:.1f},{TOP:.1f}V{BOTTOM:.1f}" for i in cells if 0 < i < count)
-    stubs = "".join(f"M{xs[i]:.1f},{BOTTOM:.1f}v4" for i in cells if 0 <= i <= count)
-    labels = "".join(f'<text class="tk xt" x="{(xs[i] + xs[i + 1]) / 2:.1f}" y="{BOTTOM + 15:.1f}" '
-                     f'text-anchor="middle">{first + i}</text>' for i in range(count) if (first + i) % every == 0)
-    frame = (f'<path class="gd" d="{dividers}"/>' if dividers else "") + \
-        f'<path class="ax" d="M{LEFT:.1f},{BOTTOM:.1f}H{RIGHT:.1f}{stubs}"/>{labels}'
-    return axis, frame
-
-
-def _fit_segments(when: np.ndarray, trims: np.ndarray | None, fit: dict[str, Any],
+def _fit_segments(when: np.ndarray, left: np.ndarray, trims: np.ndarray | None, fit: dict[str, Any],
                   end: float) -> list[tuple[float, float, float, float]] | None:
-    """The fitted drift line as (day, value, day, value) pieces: with the trims made at adjustments it
-    restarts after each test, the last piece running on to ``end`` (the as-of date) when that is later;
-    without trims one piece from the reference date (or first test) to the last test."""
-    ref = _days([fit.get("ref_date")])[0]
+    """The fitted drift line as (day, value, day, value) pieces, one from each test on or after the fit's
+    reference date to the next (the last running on to ``end``, the as-of date, when that is later).
+
+    Between two tests a point drifts from where it was left (the drift model of the history stage), so a
+    piece after a test with an as-left error starts at that as-left error; a piece after a test that left
+    the point as found goes on from where the piece before it ended; the first piece starts on the fitted
+    line (less the trims made before it). Each piece runs at the fitted rate. Without trims (no drift
+    stage) one piece from the reference date (or first test) to the last test."""
+    ref = dateaxis.days([fit.get("ref_date")])[0]
     slope, intercept = sp.finite([fit.get("slope_pct_per_year"), fit.get("intercept_pct")])
     if not (np.isfinite(ref) and np.isfinite(slope)) or not when.size:
         return None
@@ -143,62 +149,88 @@ def _fit_segments(when: np.ndarray, trims: np.ndarray | None, fit: dict[str, Any
     def at(day: float) -> float:
         return float(intercept + slope * (day - ref) / 365.25)
 
-    if trims is not None:
-        bounds = [*when.tolist(), max(float(when[-1]), end) if np.isfinite(end) else float(when[-1])]
-        return [(a, at(a) - t, b, at(b) - t) for a, b, t in zip(bounds[:-1], bounds[1:], trims.tolist(), strict=True)]
-    a, b = min(float(when[0]), float(ref)), float(when[-1])
-    return [(a, at(a), b, at(b))]
+    if trims is None:
+        a, b = min(float(when[0]), float(ref)), float(when[-1])
+        return [(a, at(a), b, at(b))]
+    mine = np.flatnonzero(when >= ref)
+    if not mine.size:
+        return None
+    last = float(when[-1])
+    bounds = [*when[mine].tolist(), max(last, end) if np.isfinite(end) else last]
+    pieces: list[tuple[float, float, float, float]] = []
+    for i, (a, b) in zip(mine.tolist(), zip(bounds[:-1], bounds[1:], strict=True), strict=True):
+        if np.isfinite(left[i]):
+            start = float(left[i])
+        elif pieces:
+            start = pieces[-1][3]
+        else:
+            start = at(a) - float(trims[i])
+        pieces.append((a, start, b, start + float(slope) * (b - a) / 365.25))
+    return [p for p in pieces if p[2] > p[0]] or pieces[-1:]
+
+
+def _series(data: dict[str, Any]) -> tuple[list[tuple[float, np.ndarray, list[tuple[float, float, float, float]]]],
+                                           dict[str, np.ndarray]]:
+    """Each test point's rows (in date order) and fitted pieces, and the columns they index."""
+    pts = list(data.get("points") or [])
+    cols = {"day": dateaxis.days([p.get("date") for p in pts]), "pct": _column(pts, "input_pct"),
+            "found": _column(pts, "error_pct"), "left": _column(pts, "as_left_pct")}
+    has_trims = any("trims_pct" in p for p in pts)
+    trims = np.nan_to_num(_column(pts, "trims_pct"), nan=0.0)
+    end = dateaxis.days([data.get("end")])[0] if data.get("end") else np.nan
+    fits = {round(float(f["input_pct"]), 3): f for f in data.get("fits") or [] if f.get("input_pct") is not None}
+    usable = np.isfinite(cols["day"]) & np.isfinite(cols["pct"])
+    cols["usable"] = usable
+    series = []
+    for value in np.unique(cols["pct"][usable]).tolist():
+        rows = np.flatnonzero(usable & (cols["pct"] == value))
+        rows = rows[np.argsort(cols["day"][rows], kind="stable")]
+        fit = fits.get(round(value, 3))
+        pieces = _fit_segments(cols["day"][rows], cols["left"][rows], trims[rows] if has_trims else None, fit,
+                               end) if fit else None
+        series.append((value, rows, pieces or []))
+    return series, cols
 
 
 def drift_chart(data: dict[str, Any], title: str) -> str:
-    """As-found error over the years, one series per test point, with fitted drift lines when present."""
-    pts = list(data.get("points") or [])
-    day, pct, found = _days([p.get("date") for p in pts]), _column(pts, "input_pct"), _column(pts, "error_pct")
-    left = _column(pts, "as_left_pct")
-    has_trims = any("trims_pct" in p for p in pts)
-    trims = np.nan_to_num(_column(pts, "trims_pct"), nan=0.0)
-    end = _days([data.get("end")])[0] if data.get("end") else np.nan
-    fits = {round(float(f["input_pct"]), 3): f for f in data.get("fits") or [] if f.get("input_pct") is not None}
+    """As-found error over time, one series per test point (its own colour, marker shape and line dash),
+    as-left errors hollow, with the fitted drift lines when present, against a dated axis."""
+    series, c = _series(data)
+    usable, day, found, left = c["usable"], c["day"], c["found"], c["left"]
+    segs = np.array([s for _v, _r, pieces in series for s in pieces], dtype=float).reshape(-1, 4)
+    xa, xticks, xlabels = dateaxis.date_axis(np.concatenate([day[usable], segs[:, 0], segs[:, 2]]), LEFT, RIGHT)
     mpe = float(sp.finite([data.get("mpe_pct")])[0])
     mpe = abs(mpe) if np.isfinite(mpe) and mpe != 0 else np.nan
-    usable = np.isfinite(day) & np.isfinite(pct)
-    series = []  # (percent, rows in date order, fit pieces)
-    for value in np.unique(pct[usable]).tolist():
-        rows = np.flatnonzero(usable & (pct == value))
-        rows = rows[np.argsort(day[rows], kind="stable")]
-        fit = fits.get(round(value, 3))
-        pieces = _fit_segments(day[rows], trims[rows] if has_trims else None, fit, end) if fit else None
-        series.append((value, rows, pieces or []))
-    segs = np.array([s for _v, _r, pieces in series for s in pieces], dtype=float).reshape(-1, 4)
-    xa, years = _year_frame(np.concatenate([day[usable], segs[:, 0], segs[:, 2]]))
     ya, yticks, ystep = sp.value_axis(np.concatenate([found[usable], left[usable], segs[:, 1], segs[:, 3],
                                                       [mpe, -mpe, 0.0]]), BOTTOM, TOP)
     body = [sp.heading(title), sp.tolerance_zone(np.array([xa.lo]), np.array([mpe]), xa, ya),
-            sp.y_frame(ya, yticks, ystep, "As-found error (% of output span)"), years, sp.zero_line(ya)]
+            sp.y_frame(ya, yticks, ystep, "As-found error (% of output span)"),
+            dateaxis.frame(xa, xticks, xlabels), sp.zero_line(ya)]
     entries = [KeyEntry("outside ±MPE", swatch=True)] if np.isfinite(mpe) else []
     any_left = any_line = False
     for i, (value, rows, pieces) in enumerate(series):
-        shape, colour = sp.MARKERS[i % len(sp.MARKERS)], sp.GREYS[i % len(sp.GREYS)]
-        style = sp.DASHES[(i + i // len(sp.MARKERS)) % len(sp.DASHES)]
+        shape, colour, style = sp.series_style(i)
         if pieces:
             any_line = True
             p = np.array(pieces, dtype=float)
             x0, y0, x1, y1 = xa.px(p[:, 0]), ya.px(p[:, 1]), xa.px(p[:, 2]), ya.px(p[:, 3])
             d = "".join(f"M{a:.1f},{b:.1f}L{c:.1f},{e:.1f}"
                         for a, b, c, e in zip(x0.tolist(), y0.tolist(), x1.tolist(), y1.tolist(), strict=True))
-            body.append(sp.path(d, f'class="fit" stroke="{colour}" stroke-width="1" fill="none"{sp.dash(style)}'))
+            body.append(sp.path(d, f'class="fit s{i}" stroke="{colour}" stroke-width="1.2" fill="none"'
+                                   f"{sp.dash(style)}"))
         px = xa.px(day[rows])
         if np.isfinite(left[rows]).any():
             any_left = True
             body.append(sp.path(sp.marks(px, ya.px(left[rows]), shape),
-                                f'class="pt as_left" fill="#fff" stroke="{colour}" stroke-width="1"'))
+                                f'class="pt as_left s{i}" fill="#fff" stroke="{colour}" stroke-width="1.2"'))
         body.append(sp.path(sp.marks(px, ya.px(found[rows]), shape),
-                            f'class="pt as_found" fill="{colour}" stroke="{colour}" stroke-width="1"'))
+                            f'class="pt as_found s{i}" fill="{colour}" stroke="#fff" stroke-width="1.6" '
+                            f'paint-order="stroke"'))
         entries.append(KeyEntry(f"{value:g} % input", colour, shape, line=style if pieces else None))
     if any_left:
         entries.append(KeyEntry("as left (hollow)", "#000", sp.MARKERS[0], hollow=True))
     if any_line:
-        entries.append(KeyEntry("fitted drift", line=""))
+        entries.append(KeyEntry("lines: fitted drift"))
     body += [sp.x_label("Test date"), sp.key(entries)]
     return sp.document(title, drift_alt(data), body)
 
@@ -206,6 +238,7 @@ def drift_chart(data: dict[str, Any], title: str) -> str:
 def error_alt(data: dict[str, Any]) -> str:
     """A text alternative for :func:`error_chart`: the worst point of each phase against its limit."""
     pts = list(data.get("points") or [])
+    sqrt = is_sqrt(pts)
     parts = []
     for phase, (label, *_rest) in PHASES.items():
         mine = [p for p in pts if p.get("phase") == phase]
@@ -218,18 +251,33 @@ def error_alt(data: dict[str, Any]) -> str:
         worst = mine[errors.index(max(errors))]
         mpe = sp.number(worst.get("mpe_pct"))
         limit = f"MPE ±{mpe:.3f} %" if math.isfinite(mpe) else "no MPE"
+        dp = sp.number(worst.get("input_pct"))
+        where = f"{float(flow_pct(np.array([dp]))[0]):.3g} % flow ({dp:g} % ΔP)" if sqrt else f"{dp:g} % input"
         parts.append(f"{label}: {len(mine)} points, largest error {sp.number(worst['error_pct']):+.3f} % of span at "
-                     f"{sp.number(worst.get('input_pct')):g} % input ({limit}).")
-    return "Chart of error against input. " + " ".join(parts)
+                     f"{where} ({limit}).")
+    head = ("Chart of error against flow, square-root device (% of flow = 100·√(% of ΔP / 100)). " if sqrt
+            else "Chart of error against input. ")
+    return head + " ".join(parts)
 
 
 def drift_alt(data: dict[str, Any]) -> str:
-    """A text alternative for :func:`drift_chart`: how many points and tests, and each fitted drift."""
+    """A text alternative for :func:`drift_chart`: the test points and tests, the dates of the tests, those
+    with as-left errors (where the fitted lines restart), and each fitted drift."""
     pts = list(data.get("points") or [])
-    dates = sorted({str(p["date"]) for p in pts if p.get("date") is not None})
+    good = dateaxis.days([p.get("date") for p in pts])
+    dates = sorted({dateaxis.iso(d) for d in good.tolist() if np.isfinite(d)})
     count = len({v for v in _column(pts, "input_pct").tolist() if np.isfinite(v)})
-    text = (f"Chart of as-found error over time at {count} test points, "
-            f"{len(dates)} tests from {dates[0]} to {dates[-1]}." if dates else "Chart of as-found error over time.")
+    if not dates:
+        return "Chart of as-found error over time."
+    text = (f"Chart of as-found error over time at {count} test points, tested on {len(dates)} "
+            f"date{'s' if len(dates) != 1 else ''} from {dates[0]} to {dates[-1]}")
+    text += f" ({', '.join(dates)})." if 1 < len(dates) <= 12 else "."
+    left = _column(pts, "as_left_pct")
+    restarts = sorted({dateaxis.iso(d) for d, v in zip(good.tolist(), left.tolist(), strict=True)
+                       if np.isfinite(d) and np.isfinite(v)})
+    if restarts:
+        text += f" As-left errors (hollow marks) on {', '.join(restarts)}"
+        text += ", where the fitted lines restart." if data.get("fits") else "."
     for f in data.get("fits") or []:
         if f.get("slope_pct_per_year") is not None and f.get("input_pct") is not None:
             text += (f" Fitted drift at {float(f['input_pct']):g} %: "

@@ -197,11 +197,12 @@ def _found_out(ctx: RunContext) -> list[dict[str, Any]]:
 # ---------------------------------------------------------------------------------------------
 # charts' data
 
-CHART_COLS = ["phase", "input_pct", "error_pct", "mpe_pct", "accept_pct", "U_pct"]
+CHART_COLS = ["phase", "input_pct", "error_pct", "mpe_pct", "accept_pct", "U_pct", "characteristic"]
 
 
 def chart_columns(points: pd.DataFrame) -> pd.DataFrame:
-    """The error chart's columns for every point at once, all in % of span."""
+    """The error chart's columns for every point at once, all in % of span, and the asset's
+    ``characteristic`` (``sqrt`` puts % of flow on the chart's x axis)."""
     if points.empty:
         return pd.DataFrame(columns=CHART_COLS)
     span = points["span"].abs().replace(0, np.nan)
@@ -210,6 +211,7 @@ def chart_columns(points: pd.DataFrame) -> pd.DataFrame:
         "mpe_pct": points["mpe"] / span * 100.0,
         "accept_pct": _col(points, "acceptance_limit") / span * 100.0,
         "U_pct": _col(points, "U") / span * 100.0,
+        "characteristic": _col(points, "characteristic", None),
     }, index=points.index)
 
 

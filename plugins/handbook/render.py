@@ -113,7 +113,7 @@ def _theme_digest() -> str:
         for item in sorted(root.joinpath(folder).iterdir(), key=lambda p: p.name):
             if item.is_file():
                 h.update(item.name.encode() + b"\0" + item.read_bytes())
-    for module in ("charts.py", "svgplot.py", "build.py", "blocks.py"):
+    for module in ("charts.py", "svgplot.py", "dateaxis.py", "build.py", "blocks.py"):
         h.update(importlib.resources.files("loopledger.plugins.handbook").joinpath(module).read_bytes())
     return h.hexdigest()
 

@@ -132,6 +132,19 @@ MARKERS = [
 ]
 DASHES = ["", "6 3", "2 2", "8 3 2 3"]
 GREYS = ["#000", "#3d3d3d", "#5e5e5e", "#262626"]
+#: the drift chart's series: a colour, a marker shape and a dash pattern each, so that no series is told
+#: apart by its colour alone (in print or to a reader who does not see the colours, the shape and the dash
+#: still differ); dark colours of differing lightness, which stay apart when printed in greys
+SERIES_COLOURS = ["#1b1b1b", "#1f5c99", "#a34d00", "#2e7d4f", "#7a3b8f", "#6b5a1e", "#b0305a", "#3f6f7a"]
+SERIES_DASHES = ["", "7 3", "2 2", "9 3 2 3", "4 2 1 2 1 2", "12 4", "1 3", "6 2 6 5"]
+
+
+def series_style(i: int) -> tuple[str, str, str]:
+    """Series ``i``'s marker shape, colour and dash pattern: every combination differs from the series
+    before it in all three until all are used (8 shapes, 8 colours, 8 dashes; then the dash steps on so
+    series 8 on do not repeat the first eight's combinations)."""
+    n = len(MARKERS)
+    return MARKERS[i % n], SERIES_COLOURS[i % n], SERIES_DASHES[(i + i // n) % len(SERIES_DASHES)]
 
 
 def marks(xs: np.ndarray, ys: np.ndarray, shape: str) -> str:
@@ -174,7 +187,7 @@ def heading(title: str) -> str:
     """The chart's heading, squeezed to the canvas width when it is long."""
     room = WIDTH - 2 * 8.0
     fit = f' textLength="{room:.0f}" lengthAdjust="spacingAndGlyphs"' if text_width(title, 12) > room else ""
-    return f'<text class="hd" x="8" y="18"{fit}>{esc(title)}</text>'
+    return f'<text class="hd" x="8" y="14"{fit}>{esc(title)}</text>'
 
 
 def y_frame(axis: Axis, ticks: np.ndarray, step: float, label: str) -> str:
@@ -221,7 +234,8 @@ def tolerance_zone(xs: np.ndarray, limit: np.ndarray, xa: Axis, ya: Axis) -> str
 @dataclass(frozen=True)
 class KeyEntry:
     """One line of the key: its words and how its sample is drawn (``marker`` shape, hollow or filled,
-    line dash; ``swatch`` for a shaded-area sample; ``bar`` for an error-bar sample)."""
+    line dash; ``swatch`` for a shaded-area sample; ``bar`` for an error-bar sample; none of them: words
+    only)."""
 
     label: str
     colour: str = "#000"

@@ -13,7 +13,6 @@ import xml.etree.ElementTree as ET
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
@@ -57,14 +56,20 @@ def starts(root: ET.Element, cls: str) -> list[tuple[float, float]]:
     return out
 
 
-def mid_year(year: int) -> float:
-    """Days since 1970-01-01 of the middle of ``year`` (where the drift chart centres its year label)."""
-    start, end = dt.date(year, 1, 1), dt.date(year + 1, 1, 1)
-    return (start - dt.date(1970, 1, 1)).days + (end - start).days / 2
-
-
 def day(text: str) -> float:
+    """Days since 1970-01-01 (the standard library's calendar is the reference)."""
     return float((dt.date.fromisoformat(text) - dt.date(1970, 1, 1)).days)
+
+
+def label_day(text: str) -> float:
+    """The day a date-axis label names: ``2024`` is 1 January, ``2024-03`` the 1st of March."""
+    parts = [int(p) for p in text.split("-")]
+    return day(dt.date(parts[0], *(parts[1:] + [1, 1])[:2]).isoformat())
+
+
+def date_map(root: ET.Element) -> tuple[float, float]:
+    """Pixel = offset + slope * day, read from the drift chart's date labels."""
+    return line_map([(label_day(t), p) for p, t in ticks(root, "xt", "x")])
 
 
 def all_numbers_finite(root: ET.Element) -> bool:
@@ -193,21 +198,24 @@ def test_error_chart_survives_missing_and_wild_values(name: str) -> None:
 # --------------------------------------------------------------------------------------------------------
 # the drift chart
 
-def test_drift_chart_dates_land_in_their_year() -> None:
+def test_drift_chart_dates_land_on_their_day() -> None:
     data = drift_data()
     root = parse(charts.drift_chart(data, "T-1"))
-    years = ticks(root, "xt", "x")
-    assert [t for _p, t in years] == ["2021", "2022", "2023", "2024", "2025"]
-    ax, bx = line_map([(mid_year(int(t)), p) for p, t in years])
+    labels = [t for _p, t in ticks(root, "xt", "x")]
+    assert len(labels) >= 2 and all(re.fullmatch(r"\d{4}(-\d{2}(-\d{2})?)?", t) for t in labels)
+    ax, bx = date_map(root)
     ay, by = line_map([(float(t), p) for p, t in ticks(root, "yt", "y")])
     found = starts(root, "as_found")
     assert len(found) == 15
     # 50 % input on 2023-03-01: error 0.05 * 2 + 0.05 = 0.15 %
-    assert (pytest.approx(bx + ax * day("2023-03-01"), abs=0.2), pytest.approx(by + ay * 0.15, abs=0.2)) in found
+    assert (pytest.approx(bx + ax * day("2023-03-01"), abs=0.3), pytest.approx(by + ay * 0.15, abs=0.2)) in found
+    # every label lands where the map from the first and last puts it: one linear date axis
+    for p, t in ticks(root, "xt", "x"):
+        assert p == pytest.approx(bx + ax * label_day(t), abs=0.3)
     # one fitted line per test point, from the first test on to the as-of date
     pieces = starts(root, "fit")
     assert len(pieces) == 3 * 5
-    assert min(x for x, _y in pieces) == pytest.approx(bx + ax * day("2021-03-01"), abs=0.2)
+    assert min(x for x, _y in pieces) == pytest.approx(bx + ax * day("2021-03-01"), abs=0.3)
 
 
 WILD_DRIFT = {
@@ -230,8 +238,8 @@ WILD_DRIFT = {
 def test_drift_chart_survives_missing_and_wild_values(name: str) -> None:
     root = parse(charts.drift_chart(WILD_DRIFT[name], f"T-1 <{name}>"))
     assert all_numbers_finite(root)
-    years = [t for _p, t in ticks(root, "xt", "x")]
-    assert years and all(re.fullmatch(r"\d{4}", t) for t in years)
+    labels = [t for _p, t in ticks(root, "xt", "x")]
+    assert labels and all(re.fullmatch(r"\d{4}(-\d{2}(-\d{2})?)?", t) for t in labels)
     for x, y in starts(root, "pt"):
         assert svgplot.LEFT - 1 <= x <= svgplot.RIGHT + 1 and svgplot.TOP - 1 <= y <= svgplot.BOTTOM + 1
     assert charts.drift_alt(WILD_DRIFT[name]).startswith("Chart of as-found error over time")
@@ -242,30 +250,57 @@ def test_thirty_years_are_labelled_every_five() -> None:
     assert years == list(range(1995, 2030, 5))
 
 
-def test_drift_line_follows_readings_after_an_adjustment(tmp_path: Path, run_folder) -> None:
+def pieces_of(root: ET.Element, series: str) -> list[tuple[float, float, float, float]]:
+    """The straight pieces (x0, y0, x1, y1) of the fitted line of ``series`` (its class), in drawing order."""
+    out = []
+    for p in root.iter(SVG + "path"):
+        if {"fit", series} <= set(p.attrib.get("class", "").split()):
+            out += [tuple(map(float, m)) for m in re.findall(r"M(-?[\d.]+),(-?[\d.]+)L(-?[\d.]+),(-?[\d.]+)",
+                                                             p.attrib["d"])]
+    return out
+
+
+def test_drift_line_restarts_at_the_as_left_point_of_an_adjustment(tmp_path: Path, run_folder) -> None:
     results = {f"t{i}.yaml": result_yaml(date=d, as_found=good_points(f),
                                          as_left=good_points(left) if left is not None else None)
                for i, (d, f, left) in enumerate(HISTORY)}
     ctx = run_folder(write_evidence(tmp_path / "ev", results, config="as_of = 2025-06-01\n"))
     data = asset_pages.drift_charts(ctx, ctx.assets.loc[["T-CT1"]], ctx.points)["T-CT1"]
-    pts = pd.DataFrame(data["points"])
     fit = data["fits"][0]
-    assert {"trims_pct", "as_left_pct"} <= set(pts.columns)
-    last = pts[(pts["input_pct"] == fit["input_pct"]) & (pts["date"] == "2025-03-01")].iloc[0]
-    years = (pd.Timestamp("2025-03-01") - pd.Timestamp(fit["ref_date"])).days / 365.25
-    on_line = float(fit["intercept_pct"]) + float(fit["slope_pct_per_year"]) * years
-    # the trim made in 2024 (0.085 mA = 0.53 % of the 16 mA span) must be taken off the line after it
-    assert float(last["trims_pct"]) > 0.4
-    assert abs(on_line - float(last["trims_pct"]) - float(last["error_pct"])) < abs(on_line - float(last["error_pct"]))
-    # and the chart draws it so: a line piece starts at the last test, lowered by the trim
+    # the drift model: each adjustment's step (as-found - as-left) is added back to the later as-found errors,
+    # and a straight line is fitted to them by least squares; numpy.polyfit is the reference for that line
+    span = 16.0  # mA, 4-20 mA
+    years = np.array([(day(d) - day(HISTORY[0][0])) / 365.25 for d, _f, _l in HISTORY])
+    step = (HISTORY[2][1] - HISTORY[2][2]) / span * 100.0
+    continuous = np.array([f / span * 100.0 for _d, f, _l in HISTORY]) + np.array([0, 0, 0, step])
+    slope, _intercept = np.polyfit(years, continuous, 1)
+    assert float(fit["slope_pct_per_year"]) == pytest.approx(slope, rel=1e-6)
     root = parse(charts.drift_chart(data, "T-CT1"))
-    ax, bx = line_map([(mid_year(int(t)), p) for p, t in ticks(root, "xt", "x")])
+    ax, bx = date_map(root)
     ay, by = line_map([(float(t), p) for p, t in ticks(root, "yt", "y")])
-    x_last = bx + ax * day("2025-03-01")
-    pieces = [(x, y) for x, y in starts(root, "fit") if abs(x - x_last) < 0.3]
-    assert any(y == pytest.approx(by + ay * (on_line - float(last["trims_pct"])), abs=0.3) for _x, y in pieces)
-    assert not any(y == pytest.approx(by + ay * on_line, abs=0.3) for _x, y in pieces)
-    assert len(starts(root, "as_left")) == 5  # the as-left readings of the adjusted test, hollow
+    left_error = HISTORY[2][2] / span * 100.0  # +0.005 mA as left, in % of span
+    hollow = starts(root, "as_left")
+    assert len(hollow) == 5  # the as-left readings of the adjusted test, hollow
+    x_adj = bx + ax * day(HISTORY[2][0])
+    pieces = pieces_of(root, "s0")
+    restart = [p for p in pieces if abs(p[0] - x_adj) < 0.3]
+    assert len(restart) == 1
+    x0, y0, x1, y1 = restart[0]
+    # its first vertex is the as-left point: where the hollow mark is drawn, and where the axes put the error
+    assert any(math.isclose(x0, hx, abs_tol=0.05) and math.isclose(y0, hy, abs_tol=0.05) for hx, hy in hollow)
+    assert y0 == pytest.approx(by + ay * left_error, abs=0.3)
+    # and it runs at the fitted rate
+    rate = ((y1 - y0) / ay) / ((x1 - x0) / ax) * 365.25
+    assert rate == pytest.approx(slope, rel=0.02)
+    # the pieces follow one another in time: none runs back over another, so they cannot cross
+    assert all(b[0] >= a[2] - 0.05 for a, b in zip(pieces, pieces[1:], strict=False))
+    # the piece after the unadjusted 2025 test goes on from where the restarted one ended
+    after = [p for p in pieces if abs(p[0] - (bx + ax * day(HISTORY[3][0]))) < 0.3]
+    assert len(after) == 1 and after[0][1] == pytest.approx(y1, abs=0.05)
+    # the text alternative says the same: every test date, and where the lines restart
+    alt = charts.drift_alt(data)
+    assert root[1].text == alt and all(d in alt for d, _f, _l in HISTORY)
+    assert f"As-left errors (hollow marks) on {HISTORY[2][0]}, where the fitted lines restart." in alt
 
 
 def test_handbook_charts_through_the_cli(tmp_path: Path) -> None:
@@ -281,3 +316,91 @@ def test_handbook_charts_through_the_cli(tmp_path: Path) -> None:
         root = parse(svg)
         assert root.attrib["role"] == "img" and "T-CT1" in (root[0].text or "")
         assert all_numbers_finite(root) and starts(root, "as_found")
+
+
+def test_each_test_point_has_its_own_marker_dash_and_colour() -> None:
+    data = drift_data()
+    data["points"] = [{**p, "input_pct": x} for x in (0.0, 25.0, 50.0, 75.0, 100.0)
+                      for p in data["points"][:5]]
+    data["fits"] = [{**data["fits"][0], "input_pct": x} for x in (0.0, 25.0, 50.0, 75.0, 100.0)]
+    root = parse(charts.drift_chart(data, "T"))
+    shapes, dashes, colours = {}, {}, {}
+    for p in root.iter(SVG + "path"):
+        cls = p.attrib.get("class", "").split()
+        series = next((c for c in cls if re.fullmatch(r"s\d+", c)), None)
+        if series and "as_found" in cls:
+            # every mark of a series is the same shape: the path after each 'M x,y'
+            found = set(re.split(r"M-?[\d.]+,-?[\d.]+", p.attrib["d"])[1:])
+            assert len(found) == 1
+            shapes[series], colours[series] = found.pop(), p.attrib["fill"]
+        if series and "fit" in cls:
+            dashes[series] = p.attrib.get("stroke-dasharray", "solid")
+    assert len(shapes) == 5
+    # told apart by shape and by line dash, each on its own (so never by colour alone), and by colour too
+    assert len(set(shapes.values())) == 5 and len(set(dashes.values())) == 5 and len(set(colours.values())) == 5
+    # the key shows each series with its own shape and words
+    key = next(g for g in root.iter(SVG + "g") if g.attrib.get("class") == "key")
+    key_text = [t.text for t in key.iter(SVG + "text")]
+    assert [f"{x:g} % input" for x in (0, 25, 50, 75, 100)] == [t for t in key_text if t and "% input" in t]
+    key_shapes = {re.split(r"M-?[\d.]+,-?[\d.]+", p.attrib["d"])[1] for p in key.iter(SVG + "path")
+                  if p.attrib["d"].count("M") == 1 and "m" in p.attrib["d"]}
+    assert set(shapes.values()) <= key_shapes
+
+
+def test_series_styles_do_not_repeat_within_many_series() -> None:
+    styles = [svgplot.series_style(i) for i in range(21)]  # 21 points: 0, 5, ..., 100 %
+    assert len(set(styles)) == len(styles)
+    for a, b in zip(styles, styles[1:], strict=False):  # neighbours differ in shape and dash, not only in colour
+        assert a[0] != b[0] and a[2] != b[2]
+
+
+# --------------------------------------------------------------------------------------------------------
+# square-root (DP flow) devices: % of flow below, % of ΔP along the top
+
+def sqrt_data() -> dict[str, object]:
+    pts = [{"phase": "as_found", "input_pct": x, "error_pct": e, "mpe_pct": 0.5, "accept_pct": 0.5, "U_pct": 0.05,
+            "characteristic": "sqrt"} for x, e in ((0.0, 0.0), (1.0, 0.2), (6.25, 0.1), (25.0, 0.15),
+                                                    (56.25, -0.1), (100.0, 0.05))]
+    return {"points": pts}
+
+
+def test_square_root_chart_puts_points_at_the_root_of_dp() -> None:
+    data = sqrt_data()
+    root = parse(charts.error_chart(data, "FT-1: test of 2026-08-12"))
+    ax, bx = line_map([(float(t), p) for p, t in ticks(root, "xt", "x")])
+    found = starts(root, "as_found")
+    dp = np.array([p["input_pct"] for p in data["points"]])
+    # flow = 100 sqrt(ΔP / 100) (Q ∝ √ΔP, common practice; numpy.sqrt is the reference for the root)
+    flow = 100.0 * np.sqrt(dp / 100.0)
+    assert [x for x, _y in found] == pytest.approx((bx + ax * flow).tolist(), abs=0.3)
+    # the trade's landmark (README, common practice): 25 % of ΔP is 50 % of flow
+    assert found[3][0] == pytest.approx(bx + ax * 50.0, abs=0.3)
+    # the secondary axis along the top names % of ΔP where its root falls on the flow axis
+    top = ticks(root, "xt-dp", "x")
+    assert len(top) >= 5 and {"0", "100"} <= {t for _p, t in top}
+    for p, t in top:
+        assert p == pytest.approx(bx + ax * 100.0 * np.sqrt(float(t) / 100.0), abs=0.3)
+    assert all(b[0] - a[0] > 10 for a, b in zip(top, top[1:], strict=False))  # labels apart, left to right
+    texts = [t.text or "" for t in root.iter(SVG + "text")]
+    assert "Flow (% of flow range)" in texts and "ΔP (% of input range)" in texts
+    alt = charts.error_alt(data)
+    assert alt.startswith("Chart of error against flow") and "10 % flow (1 % ΔP)" in alt
+
+
+def test_linear_chart_has_no_dp_axis() -> None:
+    root = parse(charts.error_chart(error_data(), "T"))
+    assert not ticks(root, "xt-dp", "x")
+    assert "Input (% of input range)" in [t.text for t in root.iter(SVG + "text")]
+
+
+@pytest.mark.parametrize("name", list(WILD_ERROR))
+def test_square_root_chart_survives_missing_and_wild_values(name: str) -> None:
+    data = copy.deepcopy(WILD_ERROR[name])
+    for p in data["points"]:
+        p["characteristic"] = "sqrt"
+    root = parse(charts.error_chart(data, f"T-1 {name}"))
+    assert all_numbers_finite(root)
+    assert len(ticks(root, "xt", "x")) >= 2
+    assert len(ticks(root, "xt-dp", "x")) >= (2 if data["points"] else 0)  # no points: nothing says sqrt
+    for x, y in starts(root, "pt"):
+        assert svgplot.LEFT - 1 <= x <= svgplot.RIGHT + 1 and svgplot.TOP - 1 <= y <= svgplot.BOTTOM + 1
