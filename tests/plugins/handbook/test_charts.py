@@ -404,3 +404,27 @@ def test_square_root_chart_survives_missing_and_wild_values(name: str) -> None:
     assert len(ticks(root, "xt-dp", "x")) >= (2 if data["points"] else 0)  # no points: nothing says sqrt
     for x, y in starts(root, "pt"):
         assert svgplot.LEFT - 1 <= x <= svgplot.RIGHT + 1 and svgplot.TOP - 1 <= y <= svgplot.BOTTOM + 1
+
+
+def test_square_root_device_through_the_cli(tmp_path: Path) -> None:
+    """A DP flow transmitter (characteristic sqrt) judged and published: its test page's chart is drawn
+    against % of flow, with the % of ΔP axis along the top."""
+    from tests.evidence import CT_ASSET, INSTRUMENTS
+
+    asset = {**CT_ASSET, "asset": "T-FT1", "signal": "process-transmitter", "input_min": 0, "input_max": 250,
+             "input_unit": "mbar", "characteristic": "sqrt", "ct_ratio": None, "display_min": None,
+             "display_max": None, "display_unit": None}
+    source = {"kind": "source", "range": "1 bar", "accuracy": "0.025 %range", "calibrated": "2026-01-01",
+              "due": "2027-01-01"}
+    dp = [0.0, 1.0, 25.0, 56.25, 100.0]
+    # the expected output of a square-root transmitter (README: 25 % ΔP = 50 % flow = 12 mA, common practice)
+    points = [(f"{x} %", f"{4 + 16 * math.sqrt(x / 100):.4f} mA") for x in dp]
+    ev = write_evidence(tmp_path / "ev", {"ft.yaml": result_yaml(asset="T-FT1", as_found=points)}, assets=[asset],
+                        instruments={**INSTRUMENTS, "SRC-1": source})
+    assert main(["run", str(ev), "--out", str(tmp_path / "out")]) in (0, 1)
+    page = next((tmp_path / "out" / "handbook" / "tests").glob("*.html")).read_text(encoding="utf-8")
+    root = parse(re.search(r"<svg.*?</svg>", page, re.S).group(0))
+    ax, bx = line_map([(float(t), p) for p, t in ticks(root, "xt", "x")])
+    xs = [x for x, _y in starts(root, "as_found")]
+    assert xs == pytest.approx((bx + ax * 100.0 * np.sqrt(np.array(dp) / 100.0)).tolist(), abs=0.3)  # numpy.sqrt
+    assert ticks(root, "xt-dp", "x") and "Flow (% of flow range)" in page
