@@ -262,22 +262,24 @@ def error_alt(data: dict[str, Any]) -> str:
 
 def drift_alt(data: dict[str, Any]) -> str:
     """A text alternative for :func:`drift_chart`: the test points and tests, the dates of the tests, those
-    with as-left errors (where the fitted lines restart), and each fitted drift."""
-    pts = list(data.get("points") or [])
-    good = dateaxis.days([p.get("date") for p in pts])
-    dates = sorted({dateaxis.iso(d) for d in good.tolist() if np.isfinite(d)})
-    count = len({v for v in _column(pts, "input_pct").tolist() if np.isfinite(v)})
+    with as-left errors and those where a fitted line restarts at one, and each fitted drift."""
+    series, c = _series(data)
+    day, left = c["day"], c["left"]
+    dates = sorted({dateaxis.iso(d) for d in day.tolist() if np.isfinite(d)})
     if not dates:
         return "Chart of as-found error over time."
-    text = (f"Chart of as-found error over time at {count} test points, tested on {len(dates)} "
-            f"date{'s' if len(dates) != 1 else ''} from {dates[0]} to {dates[-1]}")
+    count = len(series)
+    text = (f"Chart of as-found error over time at {count} test point{'s' if count != 1 else ''}, tested on "
+            f"{len(dates)} date{'s' if len(dates) != 1 else ''} from {dates[0]} to {dates[-1]}")
     text += f" ({', '.join(dates)})." if 1 < len(dates) <= 12 else "."
-    left = _column(pts, "as_left_pct")
-    restarts = sorted({dateaxis.iso(d) for d, v in zip(good.tolist(), left.tolist(), strict=True)
-                       if np.isfinite(d) and np.isfinite(v)})
+    lefts = {dateaxis.iso(d) for d, v in zip(day.tolist(), left.tolist(), strict=True)
+             if np.isfinite(d) and np.isfinite(v)}
+    restarts = {dateaxis.iso(day[r]) for _v, rows, pieces in series for r in rows.tolist()
+                if np.isfinite(left[r]) and day[r] in {p[0] for p in pieces}}
+    if lefts:
+        text += f" As-left errors (hollow marks) on {', '.join(sorted(lefts))}."
     if restarts:
-        text += f" As-left errors (hollow marks) on {', '.join(restarts)}"
-        text += ", where the fitted lines restart." if data.get("fits") else "."
+        text += f" The fitted lines restart at the as-left errors of {', '.join(sorted(restarts))}."
     for f in data.get("fits") or []:
         if f.get("slope_pct_per_year") is not None and f.get("input_pct") is not None:
             text += (f" Fitted drift at {float(f['input_pct']):g} %: "

@@ -300,7 +300,8 @@ def test_drift_line_restarts_at_the_as_left_point_of_an_adjustment(tmp_path: Pat
     # the text alternative says the same: every test date, and where the lines restart
     alt = charts.drift_alt(data)
     assert root[1].text == alt and all(d in alt for d, _f, _l in HISTORY)
-    assert f"As-left errors (hollow marks) on {HISTORY[2][0]}, where the fitted lines restart." in alt
+    assert f"As-left errors (hollow marks) on {HISTORY[2][0]}." in alt
+    assert f"The fitted lines restart at the as-left errors of {HISTORY[2][0]}." in alt
 
 
 def test_handbook_charts_through_the_cli(tmp_path: Path) -> None:
