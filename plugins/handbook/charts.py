@@ -58,7 +58,7 @@ def error_chart(data: dict[str, Any], title: str) -> str:
     x = flow_pct(x) if sqrt else x
     acc, u = _column(pts, "accept_pct"), np.abs(_column(pts, "U_pct"))
     phase = np.array([str(p.get("phase")) for p in pts], dtype=object)
-    u0 = np.where(np.isfinite(u), u, 0.0)
+    u0 = np.minimum(np.where(np.isfinite(u), u, 0.0), u_room(mpe, acc))
     xa, xticks, xstep = sp.value_axis(np.concatenate([x, [0.0, 100.0]]), LEFT, RIGHT)
     ya, yticks, ystep = sp.value_axis(np.concatenate([err + u0, err - u0, mpe, -mpe, acc, -acc, [0.0]]), BOTTOM, TOP)
     body = [sp.heading(title), sp.tolerance_zone(x, mpe, xa, ya), sp.y_frame(ya, yticks, ystep,
@@ -74,7 +74,7 @@ def error_chart(data: dict[str, Any], title: str) -> str:
         body.append(sp.path(lines, f'class="accept" stroke="#000" stroke-width="1" fill="none"{sp.dash(ACCEPT_DASH)}'))
         entries.append(KeyEntry("acceptance limit", line=ACCEPT_DASH))
     body.append(sp.zero_line(ya))
-    bars = False
+    bars = clipped = False
     for name, (label, shape, colour, style, hollow) in PHASES.items():
         mine = np.flatnonzero(phase == name)
         if not mine.size:
@@ -84,19 +84,46 @@ def error_chart(data: dict[str, Any], title: str) -> str:
         has_u = np.isfinite(u[mine]) & np.isfinite(px) & np.isfinite(py)
         if has_u.any():
             bars = True
-            lo, hi = ya.px(err[mine] - u[mine]), ya.px(err[mine] + u[mine])
-            d = "".join(f"M{a:.1f},{b:.1f}V{c:.1f}m-3,0h6M{a - 3:.1f},{b:.1f}h6"
-                        for a, b, c in zip(px[has_u].tolist(), lo[has_u].tolist(), hi[has_u].tolist(), strict=True))
-            body.append(sp.path(d, f'stroke="{colour}" stroke-width=".9" fill="none"'))
+            d, cut = _u_bars(px[has_u], err[mine][has_u], u[mine][has_u], ya)
+            clipped = clipped or cut
+            body.append(sp.path(d, f'class="ubar" stroke="{colour}" stroke-width=".9" fill="none"'))
         body.append(sp.path(sp.polyline(px, py), f'stroke="{colour}" stroke-width="1.1" fill="none"{sp.dash(style)}'))
         body.append(sp.path(sp.marks(px, py, shape), f'class="pt {name}" fill="{"#fff" if hollow else colour}" '
                                                      f'stroke="{colour}" stroke-width="1"'))
         entries.append(KeyEntry(label, colour, shape, hollow, style))
     if bars:
         entries.append(KeyEntry("bars: ±U", bar=True))
+    if clipped:
+        entries.append(KeyEntry("arrow: U runs on"))
     body += [_x_value_frame(xa, xticks, xstep), sp.key(entries)]
     body += [_dp_frame(xa), sp.x_label("Flow (% of flow range)")] if sqrt else [sp.x_label("Input (% of input range)")]
     return sp.document(title, error_alt(data), body)
+
+
+def u_room(mpe: np.ndarray, acc: np.ndarray) -> float:
+    """How far a ±U bar is drawn from its point: three times the widest limit (MPE or acceptance) of the
+    chart, so that a U far beyond the tolerance (a square root near zero ΔP, a rig with a TUR well under
+    1) cannot squash the ±MPE zone flat; unbounded when no limit is known."""
+    limits = np.abs(np.concatenate([mpe, acc]))
+    limits = limits[np.isfinite(limits) & (limits > 0)]
+    return 3.0 * float(limits.max()) if limits.size else math.inf
+
+
+def _u_bars(px: np.ndarray, err: np.ndarray, u: np.ndarray, ya: sp.Axis) -> tuple[str, bool]:
+    """Path data of ±U bars at pixels ``px``: a cap at each end inside the plot, an arrowhead where a bar
+    runs past its edge (cut there); and whether any was cut."""
+    lo, hi = ya.px(err - u), ya.px(err + u)  # pixels: lo below (larger), hi above
+    out, cut = [], False
+    for x, a, b in zip(px.tolist(), lo.tolist(), hi.tolist(), strict=True):
+        a_cut, b_cut = a > BOTTOM, b < TOP
+        a, b = min(a, BOTTOM), max(b, TOP)
+        cut = cut or a_cut or b_cut
+        out.append(f"M{x:.1f},{a:.1f}V{b:.1f}")
+        out.append(f"M{x - 3:.1f},{b + 4:.1f}L{x:.1f},{b:.1f}L{x + 3:.1f},{b + 4:.1f}" if b_cut
+                   else f"M{x - 3:.1f},{b:.1f}h6")
+        out.append(f"M{x - 3:.1f},{a - 4:.1f}L{x:.1f},{a:.1f}L{x + 3:.1f},{a - 4:.1f}" if a_cut
+                   else f"M{x - 3:.1f},{a:.1f}h6")
+    return "".join(out), cut
 
 
 def _x_value_frame(axis: sp.Axis, ticks: np.ndarray, step: float) -> str:
@@ -255,6 +282,12 @@ def error_alt(data: dict[str, Any]) -> str:
         where = f"{float(flow_pct(np.array([dp]))[0]):.3g} % flow ({dp:g} % ΔP)" if sqrt else f"{dp:g} % input"
         parts.append(f"{label}: {len(mine)} points, largest error {sp.number(worst['error_pct']):+.3f} % of span at "
                      f"{where} ({limit}).")
+    u, room = np.abs(_column(pts, "U_pct")), u_room(_column(pts, "mpe_pct"), _column(pts, "accept_pct"))
+    beyond = np.flatnonzero(np.isfinite(u) & (u > room))
+    if beyond.size:
+        big = int(beyond[np.argmax(u[beyond])])
+        parts.append(f"The ±U bars of {beyond.size} point{'s' if beyond.size != 1 else ''} run beyond the chart "
+                     f"(an arrowhead where cut; the largest U is ±{u[big]:.3g} % of span).")
     head = ("Chart of error against flow, square-root device (% of flow = 100·√(% of ΔP / 100)). " if sqrt
             else "Chart of error against input. ")
     return head + " ".join(parts)

@@ -173,6 +173,24 @@ def test_same_data_gives_same_bytes() -> None:
     assert charts.drift_chart(drift, "T") == charts.drift_chart(copy.deepcopy(drift), "T")
 
 
+def test_a_u_far_beyond_the_tolerance_is_cut_not_squashing_the_zone() -> None:
+    data = error_data()
+    data["points"][1]["U_pct"] = 40.0  # 80 times the MPE: a square root near zero ΔP, or a far too coarse rig
+    root = parse(charts.error_chart(data, "T"))
+    values = [float(t) for _p, t in ticks(root, "yt", "y")]
+    # the y axis covers the errors, the ±MPE and at most three MPEs of U beyond them, not ±40 %
+    assert values[0] <= -0.5 and values[-1] >= 0.5 and values[-1] - values[0] <= 4.0
+    ay, by = line_map([(float(t), p) for p, t in ticks(root, "yt", "y")])
+    bars = " ".join(p.attrib["d"] for p in root.iter(SVG + "path") if "ubar" in p.attrib.get("class", "").split())
+    # that bar runs to both edges of the plot and ends in arrowheads there; the others keep their caps
+    for edge in (svgplot.TOP, svgplot.BOTTOM):
+        assert re.search(rf"L-?[\d.]+,{edge:.1f}L", bars)
+    assert bars.count("h6") == 2 * (len(data["points"]) - 1)
+    # the next point's bar (+0.2 % ± 0.05 %) is drawn whole, where the axes put it
+    assert any(abs(float(v) - (by + ay * 0.25)) < 0.2 for v in re.findall(r"V(-?[\d.]+)", bars))
+    assert "run beyond the chart" in charts.error_alt(data) and "±40 % of span" in charts.error_alt(data)
+
+
 WILD_ERROR = {
     "empty": {"points": []},
     "no U, no MPE, no acceptance": error_data(U_pct=None, mpe_pct=None, accept_pct=None),
