@@ -125,7 +125,7 @@ def drift_charts(ctx: RunContext, assets: pd.DataFrame, points: pd.DataFrame) ->
     if isinstance(fits, pd.DataFrame) and {"asset", "input_pct", "slope_pct_per_year", "intercept_pct",
                                            "ref_date"} <= set(fits.columns):
         lines = grouped(fits[fits["asset"].isin(charted)], "asset", ["input_pct"],
-                        ["input_pct", "slope_pct_per_year", "intercept_pct", "ref_date", "n", "stderr"])
+                        ["input_pct", "slope_pct_per_year", "intercept_pct", "ref_date", "n", "stderr", "status"])
     mpe = (pts["mpe"] / pts["span"].abs() * 100.0).groupby(pts["asset"], sort=False).max()
     end = ctx.as_of.isoformat()
     return {a: {"points": series.get(a, []), "fits": lines.get(a, []), "mpe_pct": values.plain(mpe.get(a)), "end": end}

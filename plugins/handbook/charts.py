@@ -26,6 +26,8 @@ from loopledger.plugins.handbook.svgplot import BOTTOM, LEFT, RIGHT, TOP, KeyEnt
 PHASES = {"as_found": ("As found", sp.MARKERS[0], "#000", "", False),
           "as_left": ("As left", sp.MARKERS[1], "#4a4a4a", "6 3", True)}
 ACCEPT_DASH = "5 2"
+#: the history stage's word for a fit whose slope does not differ from zero at its significance
+NO_TREND = "no significant trend"
 
 
 def _column(points: list[dict[str, Any]], name: str) -> np.ndarray:
@@ -196,9 +198,12 @@ def _fit_segments(when: np.ndarray, left: np.ndarray, trims: np.ndarray | None, 
     return [p for p in pieces if p[2] > p[0]] or pieces[-1:]
 
 
-def _series(data: dict[str, Any]) -> tuple[list[tuple[float, np.ndarray, list[tuple[float, float, float, float]]]],
-                                           dict[str, np.ndarray]]:
-    """Each test point's rows (in date order) and fitted pieces, and the columns they index."""
+Series = tuple[float, np.ndarray, list[tuple[float, float, float, float]], bool]
+
+
+def _series(data: dict[str, Any]) -> tuple[list[Series], dict[str, np.ndarray]]:
+    """Each test point's rows (in date order), fitted pieces and whether its fit is a trend at the history
+    stage's significance (True when the fit says nothing of it), and the columns the rows index."""
     pts = list(data.get("points") or [])
     cols = {"day": dateaxis.days([p.get("date") for p in pts]), "pct": _column(pts, "input_pct"),
             "found": _column(pts, "error_pct"), "left": _column(pts, "as_left_pct")}
@@ -215,7 +220,7 @@ def _series(data: dict[str, Any]) -> tuple[list[tuple[float, np.ndarray, list[tu
         fit = fits.get(round(value, 3))
         pieces = _fit_segments(cols["day"][rows], cols["left"][rows], trims[rows] if has_trims else None, fit,
                                end) if fit else None
-        series.append((value, rows, pieces or []))
+        series.append((value, rows, pieces or [], not fit or fit.get("status") != NO_TREND))
     return series, cols
 
 
@@ -224,7 +229,7 @@ def drift_chart(data: dict[str, Any], title: str) -> str:
     as-left errors hollow, with the fitted drift lines when present, against a dated axis."""
     series, c = _series(data)
     usable, day, found, left = c["usable"], c["day"], c["found"], c["left"]
-    segs = np.array([s for _v, _r, pieces in series for s in pieces], dtype=float).reshape(-1, 4)
+    segs = np.array([s for _v, _r, pieces, _t in series for s in pieces], dtype=float).reshape(-1, 4)
     xa, xticks, xlabels = dateaxis.date_axis(np.concatenate([day[usable], segs[:, 0], segs[:, 2]]), LEFT, RIGHT)
     mpe = float(sp.finite([data.get("mpe_pct")])[0])
     mpe = abs(mpe) if np.isfinite(mpe) and mpe != 0 else np.nan
@@ -234,8 +239,8 @@ def drift_chart(data: dict[str, Any], title: str) -> str:
             sp.y_frame(ya, yticks, ystep, "As-found error (% of output span)"),
             dateaxis.frame(xa, xticks, xlabels), sp.zero_line(ya)]
     entries = [KeyEntry("outside ±MPE", swatch=True)] if np.isfinite(mpe) else []
-    any_left = any_line = False
-    for i, (value, rows, pieces) in enumerate(series):
+    any_left = any_line = any_weak = False
+    for i, (value, rows, pieces, trend) in enumerate(series):
         shape, colour, style = sp.series_style(i)
         if pieces:
             any_line = True
@@ -243,8 +248,9 @@ def drift_chart(data: dict[str, Any], title: str) -> str:
             x0, y0, x1, y1 = xa.px(p[:, 0]), ya.px(p[:, 1]), xa.px(p[:, 2]), ya.px(p[:, 3])
             d = "".join(f"M{a:.1f},{b:.1f}L{c:.1f},{e:.1f}"
                         for a, b, c, e in zip(x0.tolist(), y0.tolist(), x1.tolist(), y1.tolist(), strict=True))
-            body.append(sp.path(d, f'class="fit s{i}" stroke="{colour}" stroke-width="1.2" fill="none"'
-                                   f"{sp.dash(style)}"))
+            any_weak = any_weak or not trend
+            body.append(sp.path(d, f'class="fit s{i}" stroke="{colour}" stroke-width="{1.2 if trend else 0.7}" '
+                                   f'fill="none"{sp.dash(style)}'))
         px = xa.px(day[rows])
         if np.isfinite(left[rows]).any():
             any_left = True
@@ -258,6 +264,8 @@ def drift_chart(data: dict[str, Any], title: str) -> str:
         entries.append(KeyEntry("as left (hollow)", "#000", sp.MARKERS[0], hollow=True))
     if any_line:
         entries.append(KeyEntry("lines: fitted drift"))
+    if any_weak:
+        entries.append(KeyEntry("thin: no sig. trend"))
     body += [sp.x_label("Test date"), sp.key(entries)]
     return sp.document(title, drift_alt(data), body)
 
@@ -307,7 +315,7 @@ def drift_alt(data: dict[str, Any]) -> str:
     text += f" ({', '.join(dates)})." if 1 < len(dates) <= 12 else "."
     lefts = {dateaxis.iso(d) for d, v in zip(day.tolist(), left.tolist(), strict=True)
              if np.isfinite(d) and np.isfinite(v)}
-    restarts = {dateaxis.iso(day[r]) for _v, rows, pieces in series for r in rows.tolist()
+    restarts = {dateaxis.iso(day[r]) for _v, rows, pieces, _t in series for r in rows.tolist()
                 if np.isfinite(left[r]) and day[r] in {p[0] for p in pieces}}
     if lefts:
         text += f" As-left errors (hollow marks) on {', '.join(sorted(lefts))}."
@@ -315,6 +323,7 @@ def drift_alt(data: dict[str, Any]) -> str:
         text += f" The fitted lines restart at the as-left errors of {', '.join(sorted(restarts))}."
     for f in data.get("fits") or []:
         if f.get("slope_pct_per_year") is not None and f.get("input_pct") is not None:
+            weak = " (no significant trend)" if f.get("status") == NO_TREND else ""
             text += (f" Fitted drift at {float(f['input_pct']):g} %: "
-                     f"{float(f['slope_pct_per_year']):+.3f} % of span a year.")
+                     f"{float(f['slope_pct_per_year']):+.3f} % of span a year{weak}.")
     return text

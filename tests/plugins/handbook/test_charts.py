@@ -293,7 +293,14 @@ def test_drift_line_restarts_at_the_as_left_point_of_an_adjustment(tmp_path: Pat
     continuous = np.array([f / span * 100.0 for _d, f, _l in HISTORY]) + np.array([0, 0, 0, step])
     slope, _intercept = np.polyfit(years, continuous, 1)
     assert float(fit["slope_pct_per_year"]) == pytest.approx(slope, rel=1e-6)
+    # a trend at the default significance 0.05: scipy.stats.linregress's two-sided p-value is the reference
+    from scipy.stats import linregress
+
+    trend = linregress(years, continuous).pvalue < 0.05
+    assert fit["status"] == ("trend" if trend else "no significant trend")
     root = parse(charts.drift_chart(data, "T-CT1"))
+    widths = {p.attrib["stroke-width"] for p in root.iter(SVG + "path") if "fit" in p.attrib.get("class", "").split()}
+    assert widths == {"1.2" if trend else "0.7"}  # a fit that is no trend is drawn thin
     ax, bx = date_map(root)
     ay, by = line_map([(float(t), p) for p, t in ticks(root, "yt", "y")])
     left_error = HISTORY[2][2] / span * 100.0  # +0.005 mA as left, in % of span
@@ -447,3 +454,16 @@ def test_square_root_device_through_the_cli(tmp_path: Path) -> None:
     xs = [x for x, _y in starts(root, "as_found")]
     assert xs == pytest.approx((bx + ax * 100.0 * np.sqrt(np.array(dp) / 100.0)).tolist(), abs=0.3)  # numpy.sqrt
     assert ticks(root, "xt-dp", "x") and "Flow (% of flow range)" in page
+
+
+def test_a_fit_that_is_no_significant_trend_is_drawn_thin_and_said_so() -> None:
+    data = drift_data()
+    data["fits"][1]["status"] = "no significant trend"  # the 50 % point's fit
+    data["fits"][0]["status"] = "trend"
+    root = parse(charts.drift_chart(data, "T"))
+    widths = [p.attrib["stroke-width"] for p in root.iter(SVG + "path") if "fit" in p.attrib.get("class", "").split()]
+    assert widths == ["1.2", "0.7", "1.2"]  # no status (the third) draws as a fitted line
+    assert "thin: no sig. trend" in [t.text for t in root.iter(SVG + "text")]
+    alt = charts.drift_alt(data)
+    assert "Fitted drift at 50 %: +0.050 % of span a year (no significant trend)." in alt
+    assert "Fitted drift at 0 %: +0.050 % of span a year." in alt
