@@ -103,7 +103,10 @@ class Section:
     escaped), ``html`` (``html`` the plugin has made safe) or ``svg`` (an
     inline chart in ``html`` with ``alt`` text). ``screen_only`` keeps a long
     block (a whole budget) off the printed page, which says where it is instead;
-    give it only where another block summarises it.
+    give it only where another block summarises it. ``covers`` names the codes of
+    the findings this block states in full (``"fault-signature"``): on the page
+    such a finding of the test is shown once, as a severity mark beside the
+    block's title, and the list of findings points to the block instead.
     """
 
     title: str
@@ -115,6 +118,7 @@ class Section:
     alt: str = ""
     order: int = 50
     screen_only: bool = False
+    covers: tuple[str, ...] = ()
 
 
 @dataclass

@@ -373,7 +373,8 @@ def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Sectio
         return {}
     mine = terms[terms.index.isin(tests)]
     mine = mine[~mine.index.duplicated()]
-    return {str(test): [Section(title="Loop burden", kind="facts", rows=term_rows(row), order=40)]
+    return {str(test): [Section(title="Loop burden", kind="facts", rows=term_rows(row), order=40,
+                                        covers=("burden", "burden-ne43"))]
             for test, row in zip(mine.index, mine.itertuples(), strict=True)}
 
 

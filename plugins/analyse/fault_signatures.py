@@ -215,7 +215,8 @@ def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Sectio
         facts = found.setdefault(str(test), [])
         if label:
             facts.append((str(phase).replace("_", "-"), f"{label}: {detail}"))
-    return {test: [Section(title="Fault signature", kind="facts", rows=facts, order=46) if facts else
+    return {test: [Section(title="Fault signature", kind="facts", rows=facts, order=46,
+                           covers=("fault-signature",)) if facts else
                    Section(title="Fault signature", kind="text", order=46,
                            text="No fault pattern found (signatures are read only when a point fails, "
                                 "except for unsteady repeats).")]

@@ -17,8 +17,9 @@ from loopledger import keys
 from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.plugins.handbook import fleet_pages, values
-from loopledger.plugins.handbook.blocks import sections_html
+from loopledger.plugins.handbook.blocks import finding_mark, sections_html
 from loopledger.plugins.handbook.values import column_lists, dict_rows, grouped
+from loopledger.plugins.history import traceability
 
 
 def registry_rows(ctx: RunContext) -> dict[Any, dict[str, Any]]:
@@ -38,16 +39,56 @@ def instrument_rows(ctx: RunContext) -> dict[Any, dict[str, Any]]:
             for i, ident in enumerate(inst.index)}
 
 
-def _rig(used: pd.DataFrame, instruments: dict[Any, dict[str, Any]]) -> dict[Any, list[dict[str, Any]]]:
+def _rig(ctx: RunContext, used: pd.DataFrame,
+         instruments: dict[Any, dict[str, Any]]) -> dict[Any, list[dict[str, Any]]]:
+    """Each test's reference instruments, one row per role, for the page's one table of them: what
+    instruments.yaml says of each (description, serial, specification), and the certificate in force on the
+    test date with its dates and status in words (:func:`traceability.page_rows`; where the history stage
+    has none, the register's flat dates and :func:`traceability.usage`'s words)."""
     out: dict[Any, list[dict[str, Any]]] = {}
     blank = {"description": None, "serial": None, "calibrated": None, "due": None, "spec": None}
+    tests = list(dict.fromkeys(str(t) for t in used["test"]))
+    in_force = {(test, row[0]): row for test, rows in traceability.page_rows(ctx, tests).items() for row in rows}
     for test, role, ident, status, out_of_cal, known in zip(
             used["test"], used["role"], used["instrument"], used["status"], used["out_of_cal"], used["known"],
             strict=True):
         info = instruments.get(ident, blank) if known else blank
-        out.setdefault(test, []).append({"role": role, "id": ident, "status": status, "out_of_cal": bool(out_of_cal),
-                                         **info})
+        row = {"role": role, "id": ident, "status": status, "out_of_cal": bool(out_of_cal), "certificate": None,
+               **info}
+        cert = in_force.get((str(test), role))
+        if cert is not None:
+            row.update(certificate=cert[2], calibrated=cert[3], due=cert[4], status=cert[5])
+        out.setdefault(test, []).append(row)
     return out
+
+
+#: the findings the page's own table of reference instruments states in full
+INSTRUMENT_CODES = ("reference-past-due",)
+
+
+def page_findings(findings: list[dict[str, Any]], sections: list[Section]) -> dict[str, Any]:
+    """A test page's findings, each shown once: a finding whose code a block on the page ``covers`` (or the
+    page's table of reference instruments) is shown as a mark beside that block's title, and the list names
+    the blocks that carry them. Returns ``findings`` (those listed), ``marks`` (block index -> mark),
+    ``carried`` (title and mark of each block carrying findings) and ``instruments_mark``."""
+    where: dict[str, int] = {}
+    for i, s in enumerate(sections):
+        for code in getattr(s, "covers", ()) or ():
+            where.setdefault(code, i)
+    listed: list[dict[str, Any]] = []
+    by_block: dict[int, list[dict[str, Any]]] = {}
+    for f in findings:
+        code = f.get("code") or ""
+        at = -1 if code in INSTRUMENT_CODES else where.get(code)
+        if at is None:
+            listed.append(f)
+        else:
+            by_block.setdefault(at, []).append(f)
+    marks = {i: finding_mark(fs) for i, fs in by_block.items()}
+    carried = [{"title": "Reference instruments" if i < 0 else sections[i].title, "mark": marks[i]}
+               for i in sorted(by_block)]
+    return {"findings": listed, "marks": {i: m for i, m in marks.items() if i >= 0}, "carried": carried,
+            "instruments_mark": marks.get(-1, "")}
 
 
 def test_pages(ctx: RunContext, tests: pd.DataFrame, points: pd.DataFrame, used: pd.DataFrame,
@@ -60,20 +101,22 @@ def test_pages(ctx: RunContext, tests: pd.DataFrame, points: pd.DataFrame, used:
     mine = points[points["test"].isin(tests["test"])] if len(points) else points
     table = grouped(mine, "test", ["phase", "point"], pts_cols)
     charts = grouped(mine, "test", ["phase", "input_pct"], fleet_pages.CHART_COLS) if len(mine) else {}
-    rig = _rig(used[used["test"].isin(tests["test"])], instruments)
+    rig = _rig(ctx, used[used["test"].isin(tests["test"])], instruments)
     heads = dict_rows(column_lists(tests))
     out: dict[Any, dict[str, Any]] = {}
     for head in heads:
         tid = head["test"]
         chart = charts.get(tid)
+        shown = (blocks.get(str(tid)) or []) if head.get("valid") else []
+        said = page_findings([{"severity": f.severity, "line": values.plain(f.line), "field": f.field,
+                               "point": f.point, "message": f.message, "stage": f.stage, "code": f.code}
+                              for f in fleet_pages.findings_of(ctx, str(head["source_file"]))], shown)
         out[tid] = {
             "test": head, "asset": registry.get(head.get("asset"), {}), "instruments": rig.get(tid, []),
-            "points": table.get(tid, []), "point_cols": pts_cols,
-            "findings": [{"severity": f.severity, "line": values.plain(f.line), "field": f.field, "point": f.point,
-                          "message": f.message, "stage": f.stage}
-                         for f in fleet_pages.findings_of(ctx, str(head["source_file"]))],
+            "points": table.get(tid, []), "point_cols": pts_cols, "findings": said["findings"],
+            "carried": said["carried"], "instruments_mark": said["instruments_mark"],
             "chart": {"points": chart} if chart else None,
-            "sections": sections_html(blocks.get(str(tid)) if head.get("valid") else None)}
+            "sections": sections_html(shown, said["marks"])}
     return out
 
 

@@ -105,8 +105,9 @@ def _block(get: Any, cell: Any) -> str:
     kind = get("kind")
     screen = bool(get("screen_only"))
     wide = kind == "table" and len(get("columns") or []) > WIDE_COLUMNS
+    mark = get("mark")  # the findings this block states in full (:func:`finding_mark`)
     parts = ['<section class="plugin-section', " screen-only" if screen else "", " wide" if wide else "", '">\n  <h2>',
-             _esc(cell(get("title"))), "</h2>\n"]
+             _esc(cell(get("title"))), f' <span class="finding-mark">{_esc(mark)}</span>' if mark else "", "</h2>\n"]
     if kind == "facts":
         parts.append('  <dl class="facts">')
         for pair in get("rows") or []:
@@ -147,10 +148,30 @@ def blocks_html(sections: Any) -> Markup:
     return Markup("".join(block_html(s) for s in sections or []))
 
 
-def sections_html(sections: list[Section] | None) -> Markup:
+def sections_html(sections: list[Section] | None, marks: dict[int, str] | None = None) -> Markup:
     """A page's plugin blocks straight from the plugins' :class:`Section` objects: the same HTML as
-    :func:`blocks_html` of their page-data dicts, without making the dicts."""
-    return Markup("".join(_block(lambda name, s=s: getattr(s, name, None), plain) for s in sections or []))
+    :func:`blocks_html` of their page-data dicts, without making the dicts. ``marks``: the finding mark
+    of a block, by its place in ``sections``."""
+    marks = marks or {}
+    return Markup("".join(_block(lambda name, s=s, i=i: marks.get(i) if name == "mark" else getattr(s, name, None),
+                                 plain) for i, s in enumerate(sections or [])))
+
+
+#: the mark of each severity (a shape as well as the word, so the meaning does not rest on colour)
+SEVERITY_MARKS = {"error": "✖", "warning": "⚠", "note": "ℹ"}
+
+
+def finding_mark(findings: list[dict[str, Any]]) -> str:
+    """The mark beside a block's title for the findings it states in full: each finding's severity word
+    and shape, and its line and field where the finding names them ("⚠ warning (line 6, field connection)")."""
+    said: dict[str, int] = {}
+    for f in findings:
+        where = ", ".join(w for w in (f"line {f['line']}" if f.get("line") else "",
+                                      f"field {f['field']}" if f.get("field") else "") if w)
+        key = f"{f['severity']}" + (f" ({where})" if where else "")
+        said[key] = said.get(key, 0) + 1
+    return "; ".join(f"{SEVERITY_MARKS.get(key.split(' ')[0], '·')} " + (f"{n} × " if n > 1 else "") + key
+                     for key, n in said.items())
 
 
 def point_rows(points: list[dict[str, Any]] | None, point_cols: Any, rule: Any) -> Markup:

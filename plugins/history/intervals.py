@@ -403,7 +403,8 @@ def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Sectio
     mine = ctx.tests[ctx.tests["test"].isin(tests)].drop_duplicates("test", keep="last")
     limit = float(settings(ctx)["false_accept_limit"])
     met = {False: f"≤ {limit:.0%} — met", True: f"≤ {limit:.0%} — exceeded"}
-    return {str(test): [Section(title="Global false-accept probability", kind="facts", order=60, rows=[
+    return {str(test): [Section(title="Global false-accept probability", kind="facts", order=60,
+                                        covers=("false-accept",), rows=[
         ("Probability (bivariate normal model)", text or "— (not worked out)"),
         ("Prior: the signal type's in-tolerance probability", prior),
         ("Target", met[bool(over)] if text else "—")])]

@@ -29,7 +29,7 @@ import pandas as pd
 from loopledger import keys
 from loopledger.cells import grouped
 from loopledger.context import RunContext
-from loopledger.contracts import Command, Section
+from loopledger.contracts import Command
 from loopledger.findings import Finding, warning
 from loopledger.hookspecs import hookimpl
 
@@ -231,8 +231,11 @@ STATUS_WORDS = {"ok": "within calibration", "past-due": "PAST DUE on the test da
                 "before-calibration": "before the earliest calibration on record", "no-dates": "no dates on record"}
 
 
-@hookimpl
-def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Section]]:
+def page_rows(ctx: RunContext, tests: list[str]) -> dict[str, list[list[str]]]:
+    """What each test's page says of the reference instruments it names, one row per role: role, instrument,
+    the certificate in force on the test date, its calibration and due dates, and the status in words (with
+    a later calibration's out-of-tolerance finding). The handbook shows them in the test page's one table of
+    reference instruments, beside what instruments.yaml says of each."""
     table = ctx.stash.get(keys.REFERENCE_USES)
     if table is None:
         return {}
@@ -245,11 +248,7 @@ def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Sectio
         "status": mine["status"].map(STATUS_WORDS).fillna(mine["status"]) + found.map(
             lambda f: f"; FOUND OUT OF TOLERANCE at its next calibration, {f}" if f else ""),
     })
-    rows = grouped(mine["test"].tolist(), shown.to_numpy().tolist())
-    return {test: [Section(title="Reference instruments on the test date", kind="table", order=40,
-                           columns=["Role", "Instrument", "Certificate in force", "Calibrated", "Due", "Status"],
-                           rows=body)]
-            for test, body in rows.items()}
+    return grouped(mine["test"].tolist(), shown.to_numpy().tolist())
 
 
 # --- loopledger impacted ------------------------------------------------------------------------------

@@ -25,7 +25,7 @@ REFERENCE = """\
 {% macro section(s) -%}
 <section class="plugin-section{{ ' screen-only' if s.screen_only }}\
 {{ ' wide' if s.kind == 'table' and (s.columns or []) | length > 6 }}">
-  <h2>{{ s.title }}</h2>
+  <h2>{{ s.title }}{% if s.mark %} <span class="finding-mark">{{ s.mark }}</span>{% endif %}</h2>
   {% if s.kind == 'facts' %}
   <dl class="facts">{% for pair in s.rows %}<dt>{{ pair[0] }}</dt><dd>{{ pair[1] }}</dd>{% endfor %}</dl>
   {% elif s.kind == 'table' %}
@@ -94,6 +94,7 @@ CASES = [
     {"title": None, "kind": "text", "text": None},
     {"title": "Budget", "kind": "table", "columns": list("abcdefg"), "rows": [["2026-03-17", "QM-P1-I", "a - b"]] * 3,
      "screen_only": True},
+    {"title": "Marked", "kind": "text", "text": "stated in full", "mark": "⚠ warning (field <b>)"},
 ]
 
 
@@ -186,3 +187,5 @@ def test_blocks_straight_from_sections_match_their_page_data() -> None:
     dicts = [section_dict(s) for s in sections]
     assert blocks.sections_html(sections) == blocks.blocks_html(dicts) == _jinja_blocks(dicts)
     assert blocks.sections_html(None) == "" == blocks.sections_html([])
+    marked = [dict(d, mark="⚠ 2 × warning (field <x>)") if i == 2 else d for i, d in enumerate(dicts)]
+    assert blocks.sections_html(sections, {2: "⚠ 2 × warning (field <x>)"}) == _jinja_blocks(marked)

@@ -53,14 +53,14 @@ def test_use_before_the_calibration_on_record_is_noted_not_flagged_out(tmp_path,
 
 
 def test_each_test_page_of_a_batch_lists_its_own_instruments(tmp_path, run_folder):
-    pages = batch_and_alone(traceability.ll_test_sections, run_folder(_evidence(tmp_path)), ["a", "b", "c", "d"])
-    (b,), (c,) = pages["b"], pages["c"]
+    pages = batch_and_alone(traceability.page_rows, run_folder(_evidence(tmp_path)), ["a", "b", "c", "d"])
+    b, c = pages["b"], pages["c"]
     # b: DMM-2 (due 2026-03-01) used on 2026-04-20; c: DMM-1 (2026-01-01 to 2027-01-01) on 2026-05-05
     # the flat calibrated/due name no certificate
-    assert b.rows == [["meter", "DMM-2", "—", "2025-03-01", "2026-03-01", "PAST DUE on the test date"],
-                      ["source", "SRC-1", "—", "2026-01-01", "2027-01-01", "within calibration"]]
-    assert c.rows[0] == ["meter", "DMM-1", "—", "2026-01-01", "2027-01-01", "within calibration"]
-    assert pages["d"][0].rows[0][5] == "before the earliest calibration on record"  # 2025-01-15, before 2025-03-01
+    assert b == [["meter", "DMM-2", "—", "2025-03-01", "2026-03-01", "PAST DUE on the test date"],
+                 ["source", "SRC-1", "—", "2026-01-01", "2027-01-01", "within calibration"]]
+    assert c[0] == ["meter", "DMM-1", "—", "2026-01-01", "2027-01-01", "within calibration"]
+    assert pages["d"][0][5] == "before the earliest calibration on record"  # 2025-01-15, before 2025-03-01
 
 
 def test_impacted_lists_exactly_the_tests_that_used_it(tmp_path, run_folder):
