@@ -97,14 +97,28 @@ def _td(value: Any) -> str:
     return ('<td class="nw">' if one_token(value) else "<td>") + _esc(value) + "</td>"
 
 
-#: a table of more columns than this spans the printed page's two columns of sections
-WIDE_COLUMNS = 6
+#: a table whose widest line (:func:`table_chars`) is longer than this many characters spans the printed
+#: page's two columns of sections (about 9 cm each: some 60 characters of 6.5 pt text with the cells' padding)
+WIDE_CHARS = 60
+
+
+def table_chars(columns: Any, rows: Any) -> int:
+    """About how many characters wide a table must be: per column, the longest of its cells and of the words
+    of its heading (a heading wraps between words), plus two for the padding."""
+    widths = [max((len(w) for w in str(c).split()), default=0) + 2 for c in columns or []]
+    for row in rows or []:
+        if isinstance(row, (list, tuple)):
+            for i, v in enumerate(row[:len(widths)]):
+                widths[i] = max(widths[i], len(str(v)) + 2)
+    return sum(widths)
 
 
 def _block(get: Any, cell: Any) -> str:
     kind = get("kind")
     screen = bool(get("screen_only"))
-    wide = kind == "table" and len(get("columns") or []) > WIDE_COLUMNS
+    body = [_row(row, cell) for row in get("rows") or []] if kind == "table" else []
+    columns = [cell(c) for c in get("columns") or []] if kind == "table" else []
+    wide = kind == "table" and table_chars(columns, body) > WIDE_CHARS
     mark = get("mark")  # the findings this block states in full (:func:`finding_mark`)
     parts = ['<section class="plugin-section', " screen-only" if screen else "", " wide" if wide else "", '">\n  <h2>',
              _esc(cell(get("title"))), f' <span class="finding-mark">{_esc(mark)}</span>' if mark else "", "</h2>\n"]
@@ -116,11 +130,10 @@ def _block(get: Any, cell: Any) -> str:
         parts.append("</dl>\n")
     elif kind == "table":
         parts.append('  <div class="scroll"><table><thead><tr>')
-        for c in get("columns") or []:
-            parts += ['<th scope="col">', _esc(cell(c)), "</th>"]
+        for c in columns:
+            parts += ['<th scope="col">', _esc(c), "</th>"]
         parts.append("</tr></thead>\n  <tbody>")
-        for row in get("rows") or []:
-            cells = _row(row, cell)
+        for cells in body:
             parts.append("<tr>" + "".join(_td(c) for c in cells) + "</tr>")
         parts.append("</tbody></table></div>\n")
     elif kind == "text":

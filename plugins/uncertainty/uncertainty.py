@@ -148,12 +148,11 @@ def rows_by(keys: pd.Series, columns: list[np.ndarray]) -> dict[str, list[list[s
 
 
 def point_rows(pts: pd.DataFrame) -> list[np.ndarray]:
-    """The columns of the per-point table, formatted."""
-    c = pts.reindex(columns=["phase", "point", "u", "k", "nu_eff", "U", "u_method", "mpe", "tur", "risk",
-                             "acceptance_limit", "decision"])
+    """The columns of the per-point table, formatted: what the test page's points table does not show
+    (there: MPE, acceptance limit, TUR and the decision, beside the error they judge)."""
+    c = pts.reindex(columns=["phase", "point", "u", "k", "nu_eff", "U", "u_method", "risk"])
     return [phase_texts(c["phase"]), texts(c["point"]), fmt_all(c["u"]), fmt_all(c["k"], 3), fmt_all(c["nu_eff"], 3),
-            fmt_all(c["U"]), texts(c["u_method"].fillna("GUM")), fmt_all(c["mpe"]), fmt_all(c["tur"], 3),
-            each_value(c["risk"], percent), fmt_all(c["acceptance_limit"]), texts(c["decision"])]
+            fmt_all(c["U"]), texts(c["u_method"].fillna("GUM")), each_value(c["risk"], percent)]
 
 
 def budget_rows(frame: pd.DataFrame) -> list[np.ndarray]:
@@ -187,8 +186,6 @@ def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Sectio
         return {}
     first = pts.drop_duplicates("test")
     units = dict(zip(first["test"].astype(str), first["output_unit"].astype(str), strict=True))
-    rules = dict(zip(first["test"].astype(str), first["decision_rule"].astype(str), strict=True)) \
-        if "decision_rule" in first else {}
     pts = pts.sort_values(["test", "phase", "point"], kind="stable")
     points = rows_by(pts["test"], point_rows(pts))
     frame = ctx.stash.get(keys.BUDGET)
@@ -198,11 +195,11 @@ def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Sectio
         terms = rows_by(mine["test"], budget_rows(mine))
     out: dict[str, list[Section]] = {}
     for test, rows in points.items():
-        unit, rule = units[test], rules.get(test, "")
+        unit = units[test]
         out[test] = [Section(
-            title=f"Uncertainty and conformity per point (rule: {rule}; values in {unit})", kind="table",
-            columns=["Phase", "#", "u", "k", "ν_eff", "U (95.45 %)", "U from", "MPE ±", "TUR", "Risk",
-                     "Acceptance limit", "Decision"], rows=rows, order=20)]
+            title=f"Uncertainty and specific risk per point (values in {unit})", kind="table",
+            columns=["Phase", "#", "u", "k", "ν_eff", "U (95.45 %)", "U from", "Risk (true error outside ±MPE)"],
+            rows=rows, order=20)]
         if frame is not None:
             out[test].append(Section(
                 title=f"Uncertainty budget (contributions u_i in {unit})", kind="table",

@@ -24,7 +24,7 @@ REFERENCE = """\
 {%- endmacro %}
 {% macro section(s) -%}
 <section class="plugin-section{{ ' screen-only' if s.screen_only }}\
-{{ ' wide' if s.kind == 'table' and (s.columns or []) | length > 6 }}">
+{{ ' wide' if s.kind == 'table' and s is wide }}">
   <h2>{{ s.title }}{% if s.mark %} <span class="finding-mark">{{ s.mark }}</span>{% endif %}</h2>
   {% if s.kind == 'facts' %}
   <dl class="facts">{% for pair in s.rows %}<dt>{{ pair[0] }}</dt><dd>{{ pair[1] }}</dd>{% endfor %}</dl>
@@ -64,6 +64,7 @@ def _env() -> jinja2.Environment:
                              undefined=jinja2.ChainableUndefined, trim_blocks=True, lstrip_blocks=True,
                              keep_trailing_newline=True)
     env.filters["num"] = blocks.num
+    env.tests["wide"] = lambda s: blocks.table_chars(s.get("columns"), s.get("rows")) > blocks.WIDE_CHARS  # see below
     env.tests["one_token"] = lambda v: "-" in str(v) and len(str(v)) <= 40 and not any(c.isspace() for c in str(v))
     env.filters["signed"] = lambda v, d=3: blocks.num(v, d, sign=True)
     env.filters["phase"] = lambda v: {"as_found": "as found", "as_left": "as left"}.get(v, v or "")
@@ -189,3 +190,18 @@ def test_blocks_straight_from_sections_match_their_page_data() -> None:
     assert blocks.sections_html(None) == "" == blocks.sections_html([])
     marked = [dict(d, mark="⚠ 2 × warning (field <x>)") if i == 2 else d for i, d in enumerate(dicts)]
     assert blocks.sections_html(sections, {2: "⚠ 2 × warning (field <x>)"}) == _jinja_blocks(marked)
+
+
+def test_a_table_spans_both_printed_columns_only_when_its_widest_line_would_not_fit_one():
+    # per column: the longest cell or heading word, plus 2 for the padding
+    assert blocks.table_chars(["Phase", "U (95.45 %)"], [["as-found", "0.01549"], ["as-left", "0.1"]]) == 10 + 9
+    assert blocks.table_chars(["a", "b"], [["x"], "not a row"]) == 3 + 3  # short rows and odd rows: headings
+    summary = [["as-found", "5", "0.007745", "2", "∞", "0.01549", "GUM", "< 0.001 %"]] * 5
+    assert blocks.table_chars(["Phase", "#", "u", "k", "ν_eff", "U (95.45 %)", "U from", "Risk (true error "
+                                                                                      "outside ±MPE)"], summary) <= 60
+    split = [["as-found", "0", "heron/2026/HB-PS1-PT-101_2026-08-12", "heron/2026/HB-PS1-PT-101_2026-08-12_plc",
+              "+0.062", "+0.195", "+0.133"]]
+    assert blocks.table_chars(list("abcdefg"), split) > 60
+    html = blocks.blocks_html([{"title": "t", "kind": "table", "columns": list("abcdefg"), "rows": split},
+                               {"title": "n", "kind": "table", "columns": list("abcdefgh"), "rows": summary}])
+    assert html.count('class="plugin-section wide"') == 1

@@ -285,7 +285,7 @@ def test_a_batch_gives_each_test_page_its_own_points_and_terms(tmp_path, run_fol
     ctx = run_folder(ev)
     hook = ctx.pm.hook
     tests = list(ctx.tests["test"])
-    titles = ("Uncertainty and conformity per point", "Uncertainty budget")
+    titles = ("Uncertainty and specific risk per point", "Uncertainty budget")
 
     def mine(found, test):
         return [s for s in blocks(found, test) if s.title.startswith(titles)]
