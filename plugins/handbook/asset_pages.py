@@ -17,7 +17,7 @@ from loopledger import keys
 from loopledger.context import RunContext
 from loopledger.contracts import Section
 from loopledger.plugins.handbook import fleet_pages, values
-from loopledger.plugins.handbook.blocks import finding_mark, sections_html
+from loopledger.plugins.handbook.blocks import SEVERITY_MARKS, finding_mark, sections_html
 from loopledger.plugins.handbook.values import column_lists, dict_rows, grouped
 from loopledger.plugins.history import traceability
 
@@ -88,7 +88,14 @@ def page_findings(findings: list[dict[str, Any]], sections: list[Section]) -> di
     carried = [{"title": "Reference instruments" if i < 0 else sections[i].title, "mark": marks[i]}
                for i in sorted(by_block)]
     return {"findings": listed, "marks": {i: m for i, m in marks.items() if i >= 0}, "carried": carried,
-            "instruments_mark": marks.get(-1, "")}
+            "instruments_mark": marks.get(-1, ""), "tally": finding_tally(findings)}
+
+
+def finding_tally(findings: list[dict[str, Any]]) -> str:
+    """How many findings of each severity the page has, in words with their marks ("⚠ 2 warnings")."""
+    words = {"error": ("error", "errors"), "warning": ("warning", "warnings"), "note": ("note", "notes")}
+    counts = {sev: sum(f["severity"] == sev for f in findings) for sev in words}
+    return ", ".join(f"{SEVERITY_MARKS[sev]} {n} {words[sev][n != 1]}" for sev, n in counts.items() if n)
 
 
 def test_pages(ctx: RunContext, tests: pd.DataFrame, points: pd.DataFrame, used: pd.DataFrame,
@@ -114,7 +121,7 @@ def test_pages(ctx: RunContext, tests: pd.DataFrame, points: pd.DataFrame, used:
         out[tid] = {
             "test": head, "asset": registry.get(head.get("asset"), {}), "instruments": rig.get(tid, []),
             "points": table.get(tid, []), "point_cols": pts_cols, "findings": said["findings"],
-            "carried": said["carried"], "instruments_mark": said["instruments_mark"],
+            "carried": said["carried"], "instruments_mark": said["instruments_mark"], "tally": said["tally"],
             "chart": {"points": chart} if chart else None,
             "sections": sections_html(shown, said["marks"])}
     return out

@@ -122,6 +122,8 @@ def test_a_finding_a_block_states_is_shown_once_with_that_block(tmp_path):
     assert "past its calibration due date" not in text  # the finding's own words are not repeated
     assert any("field instruments.meter" in m for m in page.marks)
     assert "2026-03-01" in text
+    # the points table's heading counts the page's findings and links to them
+    assert re.search(r"Points ⚠ \d+ warnings: see Findings", " ".join(page.headings)), page.headings
 
 
 def test_findings_are_split_by_the_codes_blocks_cover():
@@ -137,5 +139,8 @@ def test_findings_are_split_by_the_codes_blocks_cover():
     assert said["marks"] == {0: "ℹ note; ⚠ warning (line 5, field connection)", 1: "⚠ warning (field readings)"}
     assert said["instruments_mark"] == "⚠ warning (field instruments.meter)"
     assert [c["title"] for c in said["carried"]] == ["Reference instruments", "Loop burden", "Fault signature"]
-    # every finding is either listed or carried by exactly one block
+    # every finding is either listed or carried by exactly one block, and all are counted near the top
     assert len(said["findings"]) + 4 == len(findings)
+    assert said["tally"] == "⚠ 4 warnings, ℹ 1 note"
+    assert asset_pages.page_findings(findings[:1], [])["tally"] == "⚠ 1 warning"
+    assert asset_pages.page_findings([], blocks)["tally"] == ""
