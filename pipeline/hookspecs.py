@@ -201,7 +201,9 @@ def ll_test_sections(ctx: RunContext, tests: list[str]) -> dict[str, list[Sectio
     ``ctx.points[ctx.points["test"].isin(tests)]``, work over them in one pass and group the result.
     Leave out tests with nothing to show. A page's blocks must depend only on the run's tables.
     ``ctx`` is :meth:`RunContext.page_view`: what a stage marked ``fleet_only`` is not in it (the
-    handbook keeps an asset's pages when nothing else they are made from changed).
+    handbook keeps an asset's pages when nothing else they are made from changed). A page shows each
+    fact once: a block that states one of the plugin's findings in full names its code in
+    ``Section.covers``, and the page shows that finding beside the block instead of in its list.
     """
 
 
