@@ -102,11 +102,14 @@ def _td(value: Any) -> str:
 WIDE_CHARS = 60
 
 
-def table_chars(columns: Any, rows: Any) -> int:
+def table_chars(columns: Any, rows: Any, enough: int | None = None) -> int:
     """About how many characters wide a table must be: per column, the longest of its cells and of the words
-    of its heading (a heading wraps between words), plus two for the padding."""
+    of its heading (a heading wraps between words), plus two for the padding. With ``enough``, stops once
+    the width passes it (a long budget is known to be wide after its first row)."""
     widths = [max((len(w) for w in str(c).split()), default=0) + 2 for c in columns or []]
     for row in rows or []:
+        if enough is not None and sum(widths) > enough:
+            break
         if isinstance(row, (list, tuple)):
             for i, v in enumerate(row[:len(widths)]):
                 widths[i] = max(widths[i], len(str(v)) + 2)
@@ -118,7 +121,7 @@ def _block(get: Any, cell: Any) -> str:
     screen = bool(get("screen_only"))
     body = [_row(row, cell) for row in get("rows") or []] if kind == "table" else []
     columns = [cell(c) for c in get("columns") or []] if kind == "table" else []
-    wide = kind == "table" and table_chars(columns, body) > WIDE_CHARS
+    wide = kind == "table" and table_chars(columns, body, WIDE_CHARS) > WIDE_CHARS
     mark = get("mark")  # the findings this block states in full (:func:`finding_mark`)
     parts = ['<section class="plugin-section', " screen-only" if screen else "", " wide" if wide else "", '">\n  <h2>',
              _esc(cell(get("title"))), f' <span class="finding-mark">{_esc(mark)}</span>' if mark else "", "</h2>\n"]

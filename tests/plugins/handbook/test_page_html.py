@@ -202,6 +202,7 @@ def test_a_table_spans_both_printed_columns_only_when_its_widest_line_would_not_
     split = [["as-found", "0", "heron/2026/HB-PS1-PT-101_2026-08-12", "heron/2026/HB-PS1-PT-101_2026-08-12_plc",
               "+0.062", "+0.195", "+0.133"]]
     assert blocks.table_chars(list("abcdefg"), split) > 60
+    assert blocks.table_chars(list("abcdefg"), split * 3, 60) == blocks.table_chars(list("abcdefg"), split)
     html = blocks.blocks_html([{"title": "t", "kind": "table", "columns": list("abcdefg"), "rows": split},
                                {"title": "n", "kind": "table", "columns": list("abcdefgh"), "rows": summary}])
     assert html.count('class="plugin-section wide"') == 1
