@@ -156,7 +156,7 @@ def _dp_frame(axis: sp.Axis) -> str:
     text = "".join(f'<text class="tk xt-dp" x="{x:.1f}" y="{TOP - 7:.1f}" text-anchor="middle">{t}</text>'
                    for x, _h, t in kept)
     return (f'<path class="ax" d="M{LEFT:.1f},{TOP:.1f}H{RIGHT:.1f}{stubs}"/>{text}'
-            f'<text class="al" x="{RIGHT + 8:.1f}" y="{TOP - 7:.1f}">ΔP (% of input range)</text>')
+            f'<text class="al dpl" x="{RIGHT + 8:.1f}" y="{TOP - 7:.1f}">ΔP (% of input range)</text>')
 
 
 def _fit_segments(when: np.ndarray, left: np.ndarray, trims: np.ndarray | None, fit: dict[str, Any],
