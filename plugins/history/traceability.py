@@ -7,7 +7,7 @@ Each test's source, meter and shunt are looked up in instruments.yaml:
 - used before its ``calibrated`` date → the register holds only a later
   certificate, so it does not show the calibration in force that day (an
   auditor asks for that certificate): noted in ``reference_issues``;
-- no dates on record → noted likewise.
+- no calibration due date on record → noted likewise.
 
 ``loopledger impacted INSTRUMENT [--since DATE]`` lists every test that used
 the instrument since its last good calibration (default: its ``calibrated``
@@ -80,8 +80,10 @@ def in_force(instrument: pd.Series, on: pd.Series, calibrations: pd.DataFrame) -
 def uses(tests: pd.DataFrame, instruments: pd.DataFrame, calibrations: pd.DataFrame | None = None) -> pd.DataFrame:
     """One row per (test, role) that names an instrument, with the certificate in force on the test date.
 
-    status: ok | past-due | before-calibration (before the earliest certificate on record) | no-dates |
-    unknown (not in the register). ``found_out``: the next calibration found it out of tolerance.
+    status: ok | past-due | before-calibration (before the earliest certificate on record) | no-dates (no
+    due date in force: nothing says until when it was calibrated) | unknown (not in the register). The one
+    classification of a reference's status: :func:`usage` words the same statuses for the handbook.
+    ``found_out``: the next calibration found it out of tolerance.
     """
     roles = [r for r in ROLES if r in tests.columns]
     if tests.empty or not roles:
@@ -99,8 +101,7 @@ def uses(tests: pd.DataFrame, instruments: pd.DataFrame, calibrations: pd.DataFr
     early = cert["first"].notna() & (when < cert["first"])
     long["calibrated"] = long["calibrated"].where(~early, cert["first"])  # the first on record, for the words
     long["status"] = np.select(
-        [~known, early, long["due"].notna() & (when > long["due"]),
-         long["calibrated"].isna() & long["due"].isna()],
+        [~known, early, long["due"].notna() & (when > long["due"]), long["due"].isna()],
         ["unknown", "before-calibration", "past-due", "no-dates"], default="ok")
     return long.sort_values(["source_file", "role"], kind="stable").reset_index(drop=True)[USES_COLUMNS]
 
@@ -130,40 +131,33 @@ def cal_status(calibrated: Any, due: Any, on: Any) -> str:
 
 
 def usage(ctx: RunContext) -> pd.DataFrame:
-    """One row per (test, role) naming a reference instrument, with its status on the test date (the
-    certificate in force that day, from the instrument's calibration history).
-
-    The same words as :func:`cal_status`, computed over the whole table at once; ``certificate`` names the
-    certificate in force ('' where none is recorded).
+    """One row per (test, role) naming a reference instrument, with its status on the test date in words:
+    the statuses of :func:`uses` (the certificate in force that day), worded as :func:`cal_status` words
+    them; ``certificate`` names the certificate in force ('' where none is recorded).
     """
-    tests = ctx.tests
-    roles = [r for r in ROLES if r in tests.columns]
-    if tests.empty or not roles:
+    table = uses(ctx.tests, ctx.instruments, ctx.calibrations)
+    if table.empty:
         return pd.DataFrame(columns=["test", "role", "instrument", "date", "status", "out_of_cal", "known",
                                      "certificate"])
-    long = tests.melt(id_vars=["test", "date"], value_vars=roles, var_name="role", value_name="instrument")
-    long = long[long["instrument"].notna() & (long["instrument"].astype(str) != "")].copy()
-    long["instrument"] = long["instrument"].astype(str)
-    inst = ctx.instruments
-    known = long["instrument"].isin(inst.index) if len(inst) else pd.Series(False, index=long.index)
-    cert = in_force(long["instrument"], long["date"], ctx.calibrations)
-    first, due = cert["first"], cert["due"]
-    on = _as_dates(long["date"].astype(str))  # invalid tests: any value
-    due_text, first_text = due.dt.strftime("%Y-%m-%d"), first.dt.strftime("%Y-%m-%d")
-    early = first.notna() & on.notna() & (on < first)
-    late = due.notna() & on.notna() & (on > due) & ~early
-    long["known"] = known
-    long["certificate"] = cert["certificate"].where(~early, "")
-    named = long["certificate"].map(lambda c: f" (certificate {c})" if c else "")
-    long["status"] = np.select(
-        [~known, early, due.isna(), on.isna(), late],
+    status = table["status"]
+    on = _as_dates(table["date"].astype(str))  # invalid tests: any value
+    due_text = _as_dates(table["due"]).dt.strftime("%Y-%m-%d")
+    first_text = _as_dates(table["calibrated"]).dt.strftime("%Y-%m-%d")  # the first on record, when early
+    early = status == "before-calibration"
+    certificate = table["certificate"].fillna("").astype(str).where(~early, "")
+    named = certificate.map(lambda c: f" (certificate {c})" if c else "")
+    out = table[["test", "role", "instrument", "date"]].copy()
+    out["status"] = np.select(
+        [status == "unknown", early, status == "no-dates", on.isna(), status == "past-due"],
         ["not in instruments.yaml",
          "before the earliest calibration on file (" + first_text + "); the earlier certificate is not recorded",
          "no calibration due date recorded", "due " + due_text, "OUT OF CALIBRATION: due " + due_text + named],
         default="in calibration until " + due_text + named)
-    long["out_of_cal"] = (known & late).astype(bool)
-    long["role_order"] = long["role"].map(ROLES.index)
-    return long.sort_values(["test", "role_order"]).drop(columns="role_order").reset_index(drop=True)
+    out["out_of_cal"] = (status == "past-due") & on.notna()
+    out["known"] = status != "unknown"
+    out["certificate"] = certificate
+    out["role_order"] = out["role"].map(ROLES.index)
+    return out.sort_values(["test", "role_order"], kind="stable").drop(columns="role_order").reset_index(drop=True)
 
 
 def describe(table: pd.DataFrame) -> pd.Series:
@@ -178,7 +172,7 @@ def describe(table: pd.DataFrame) -> pd.Series:
         [who + " was past its calibration due date " + due,
          who + " was used before its earliest calibration on record (" + cal + "); the certificate in force "
          "that day is not in instruments.yaml",
-         who + " has no calibration dates in instruments.yaml"], default="")
+         who + " has no calibration due date in instruments.yaml"], default="")
     found = table["found_out"].fillna("").astype(str) if "found_out" in table.columns else \
         pd.Series("", index=table.index)
     out = (who + " was found out of tolerance at its next calibration, " + found + ": see loopledger impacted "
@@ -228,7 +222,8 @@ def ll_history(ctx: RunContext) -> list[Finding]:
 
 #: how a page words each status of :func:`uses`
 STATUS_WORDS = {"ok": "within calibration", "past-due": "PAST DUE on the test date",
-                "before-calibration": "before the earliest calibration on record", "no-dates": "no dates on record"}
+                "before-calibration": "before the earliest calibration on record",
+                "no-dates": "no calibration due date on record"}
 
 
 def page_rows(ctx: RunContext, tests: list[str]) -> dict[str, list[list[str]]]:

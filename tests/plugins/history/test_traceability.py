@@ -95,3 +95,27 @@ def test_cli_run_flags_the_test_in_tests_csv(tmp_path):
     assert not bool(tests.at["results/a.yaml", "reference_out_of_cal"])
     page = next((tmp_path / "out" / "handbook" / "tests").glob("b*.html")).read_text(encoding="utf-8")
     assert "PAST DUE on the test date" in page
+
+
+def test_a_meter_with_no_due_date_is_never_called_within_calibration(tmp_path, run_folder):
+    """A calibration date without a due date says nothing of until when the meter could be relied on (the
+    rule in this module's docstring needs both ends). The test page, the reference issues and the
+    instruments page (traceability.usage) must all say so; they once disagreed, the test page reading
+    'within calibration'."""
+    inst = _instruments()
+    inst["DMM-2"].pop("due")
+    ev = write_evidence(tmp_path / "ev", {
+        "a.yaml": result_yaml(date="2026-02-10", as_found=good_points(0.02),
+                              instruments={"source": "SRC-1", "meter": "DMM-2"}),
+        "c.yaml": result_yaml(date="2026-05-05", as_found=good_points(0.01)),  # DMM-1, with both dates
+    }, instruments=inst)
+    ctx = run_folder(ev)
+    page = {row[0]: row[-1] for row in traceability.page_rows(ctx, ["a"])["a"]}
+    assert page["meter"] == "no calibration due date on record"
+    assert page["source"] == "within calibration"
+    issues = ctx.tests.set_index("source_file")["reference_issues"]
+    assert "meter DMM-2 has no calibration due date" in issues["results/a.yaml"]
+    assert issues["results/c.yaml"] == ""
+    words = traceability.usage(ctx).set_index(["test", "role"])["status"]
+    assert words[("a", "meter")] == "no calibration due date recorded"
+    assert words[("c", "meter")].startswith("in calibration until 2027-01-01")
