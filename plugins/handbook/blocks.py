@@ -91,9 +91,6 @@ def one_token(value: Any) -> bool:
 
 
 def _td(value: Any) -> str:
-    if type(value) is str:  # most cells: one C call each for the test and the escape
-        one = "-" in value and len(value) <= 40 and _NO_SPACE.fullmatch(value) is not None
-        return ('<td class="nw">' if one else "<td>") + value.translate(_ESCAPES) + "</td>"
     return ('<td class="nw">' if one_token(value) else "<td>") + _esc(value) + "</td>"
 
 
